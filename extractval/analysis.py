@@ -1,0 +1,254 @@
+"""From a Study to a StudyReport: observations, the fit, model choice, procedure predictions.
+
+:class:`StudyReport` is the single source of every number: the CLI summary, ``fit --json`` and
+the dossier all render :meth:`StudyReport.to_dict`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from functools import cached_property
+
+import numpy as np
+
+from . import __version__
+from .fitting import (ERROR_MODEL, INTERVAL_METHOD, LOG_D, LOG_E, LOG_Q, WEIGHTING,
+                      FitImpossible, FitResult, Observations, fit_model)
+from .models import MODELS, get_model
+from .procedures import ProcedurePrediction, predict_procedure
+from .results import clean
+from .study import Run, Study
+
+#: pH span (units) below which ``model: auto`` does not try the ampholyte (two pKa need room).
+AMPHOLYTE_MIN_SPAN = 4.0
+#: points of the fitted log D curve and its band handed to the plots
+CURVE_POINTS = 25
+
+
+@dataclass(frozen=True)
+class RunOutcome:
+    """How one run entered the fit: used, excluded (by the user) or not usable (and why)."""
+
+    run: Run
+    status: str                      # "used" | "excluded" | "not usable"
+    reason: str | None = None
+    kind: str | None = None          # LOG_D / LOG_E / LOG_Q when used
+    y: float | None = None
+    index: int | None = None         # row in the Observations when used
+
+
+def _observation(run: Run) -> tuple[str, float] | str:
+    """(kind, y) for a run, or the reason it cannot enter a log-scale fit."""
+    r = run.volume_ratio
+    m = run.measurement
+    if m == "recovery":
+        if run.recovery_pct <= 0:
+            return ("recovery_pct is 0: nothing measured in the organic phase, so the run sets "
+                    "no finite value on the log scale")
+        return LOG_E, float(np.log10(run.recovery_pct / 100.0))
+    aq = run.found_aqueous if run.found_aqueous is not None else 0.0
+    org = run.found_organic if run.found_organic is not None else 0.0
+    if m == "both" and aq > 0 and org > 0:
+        return LOG_D, float(np.log10(org / aq) - np.log10(r))
+    if m in ("both", "organic") and org > 0:
+        return LOG_E, float(np.log10(org / run.spiked))
+    if m in ("both", "aqueous") and aq > 0:
+        return LOG_Q, float(np.log10(aq / run.spiked))
+    return ("no analyte found in the measured phase(s): the run sets no finite value on the "
+            "log scale")
+
+
+def build_observations(runs) -> tuple[Observations, tuple[RunOutcome, ...]]:
+    outcomes, ids, pH, lr, kinds, ys, groups = [], [], [], [], [], [], []
+    for run in runs:
+        if run.excluded:
+            outcomes.append(RunOutcome(run, "excluded", run.excluded))
+            continue
+        got = _observation(run)
+        if isinstance(got, str):
+            outcomes.append(RunOutcome(run, "not usable", got))
+            continue
+        kind, y = got
+        note = None
+        if run.measurement == "both" and kind != LOG_D:
+            phase = "aqueous" if kind == LOG_E else "organic"
+            note = (f"nothing found in the {phase} phase: fitted as a one-phase measurement "
+                    f"({kind})")
+        outcomes.append(RunOutcome(run, "used", note, kind, y, len(ids)))
+        ids.append(run.run_id)
+        pH.append(run.pH)
+        lr.append(np.log10(run.volume_ratio))
+        kinds.append(kind)
+        ys.append(y)
+        groups.append(run.replicate or f"pH {run.pH:g}, ratio {run.volume_ratio:.4g}")
+    obs = Observations(tuple(ids), np.array(pH, dtype=float), np.array(lr, dtype=float),
+                       tuple(kinds), np.array(ys, dtype=float), tuple(groups))
+    return obs, tuple(outcomes)
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """One model tried by ``model: auto``."""
+
+    model: str
+    aicc: float | None
+    weight: float | None
+    rss: float | None
+    note: str | None = None
+
+
+def _candidates(study: Study, obs: Observations) -> list[str]:
+    names = ["neutral", "acid", "base"]
+    if obs.n and np.ptp(obs.pH) >= AMPHOLYTE_MIN_SPAN and obs.n >= 8:
+        names.append("ampholyte")
+    return names
+
+
+def choose_model(study: Study, obs: Observations) -> tuple[FitResult, list[Candidate]]:
+    """Fit every candidate model and keep the one with the lowest AICc (Akaike weights given)."""
+    fits, notes = {}, {}
+    for name in _candidates(study, obs):
+        try:
+            fits[name] = fit_model(obs, MODELS[name], intervals=False)
+        except FitImpossible as exc:
+            notes[name] = str(exc)
+    if not fits:
+        raise FitImpossible("; ".join(notes.values()))
+    aicc = {k: f.aicc for k, f in fits.items()}
+    best = min(aicc, key=aicc.get)
+    finite = {k: v for k, v in aicc.items() if np.isfinite(v)}
+    rel = {k: np.exp(-0.5 * (v - aicc[best])) for k, v in finite.items()}
+    total = sum(rel.values())
+    cands = [Candidate(k, clean(aicc.get(k)), clean(rel[k] / total) if k in rel else None,
+                       clean(fits[k].rss) if k in fits else None, notes.get(k))
+             for k in _candidates(study, obs)]
+    chosen = fit_model(obs, get_model(best, study.ion_pair), MODELS[best])
+    return chosen, cands
+
+
+@dataclass
+class StudyReport:
+    """Everything computed for one study; :meth:`to_dict` is what every renderer uses."""
+
+    study: Study
+    fit: FitResult | None
+    outcomes: tuple[RunOutcome, ...]
+    predictions: tuple[ProcedurePrediction, ...] = ()
+    candidates: tuple[Candidate, ...] = ()
+    problems: tuple[str, ...] = ()          # why there is no fit, when fit is None
+    warnings: list[str] = field(default_factory=list)
+
+    @cached_property
+    def curve(self) -> dict | None:
+        """The fitted log D(pH) with its 95 % profile band, for plots."""
+        if self.fit is None:
+            return None
+        pH = self.fit.obs.pH
+        grid = np.linspace(max(0.0, pH.min() - 0.5), min(14.0, pH.max() + 0.5), CURVE_POINTS)
+        ests = [self.fit.log_d_interval(float(x)) for x in grid]
+        return {"pH": [clean(x, 6) for x in grid],
+                "log_d": [clean(e.value, 6) for e in ests],
+                "lo": [clean(e.ci95.lo, 6) for e in ests],
+                "hi": [clean(e.ci95.hi, 6) for e in ests],
+                "method": ests[0].ci95.method if ests else INTERVAL_METHOD}
+
+    def run_rows(self) -> list[dict]:
+        rows = []
+        for o in self.outcomes:
+            r = o.run
+            row = {
+                "run": r.run_id, "pH": clean(r.pH), "aqueous_mL": clean(r.aqueous_mL),
+                "organic_mL": clean(r.organic_mL), "volume_ratio": clean(r.volume_ratio),
+                "measurement": r.measurement, "replicate": r.replicate, "status": o.status,
+                "reason": o.reason, "note": r.note, "mass_balance_pct": clean(r.mass_balance_pct),
+                "spiked": clean(r.spiked), "found_aqueous": clean(r.found_aqueous),
+                "found_organic": clean(r.found_organic), "recovery_pct": clean(r.recovery_pct),
+                "fitted_as": o.kind, "y": clean(o.y), "location": str(r.location),
+            }
+            if self.fit is not None:
+                # log D from the observation itself where one phase ratio gives it directly
+                row["log_d_observed"] = clean(o.y) if o.kind == LOG_D else None
+                if o.index is not None:
+                    i = o.index
+                    row["fitted"] = clean(self.fit.fitted[i])
+                    row["residual"] = clean(self.fit.weighted_residuals[i])
+                    row["studentized_residual"] = clean(self.fit.studentized_residuals[i])
+                row["fitted_log_d"] = clean(float(self.fit.log_d(r.pH)))
+            rows.append(row)
+        return rows
+
+    def to_dict(self) -> dict:
+        s, fit = self.study, self.fit
+        counts = {k: sum(o.status == k for o in self.outcomes)
+                  for k in ("used", "excluded", "not usable")}
+        out = {
+            "study": s.study_id,
+            "title": s.title,
+            "analyte": s.analyte_name,
+            "model": fit.model.name if fit else s.model,
+            "model_requested": s.model,
+            "model_description": fit.model.description if fit else None,
+            "system": dict(s.system),
+            "inputs": [{"path": f.path, "sha256": f.sha256, "role": f.role} for f in s.inputs],
+            "targets": {k: (list(v) if isinstance(v, tuple) else v)
+                        for k, v in vars(s.targets).items() if v is not None},
+            "runs": {"used": counts["used"], "excluded": counts["excluded"],
+                     "not_usable": counts["not usable"], "total": len(self.outcomes)},
+            "parameters": {},
+            "procedures": [p.to_dict() for p in self.predictions],
+            "warnings": list(self.warnings),
+            "problems": list(self.problems),
+            "software": {"name": "extractval", "version": __version__},
+        }
+        if fit is not None:
+            out["parameters"] = {k: e.to_dict() for k, e in fit.parameters.items()}
+            out["correlation"] = {"parameters": list(fit.model.params),
+                                  "matrix": [[clean(c, 6) for c in row]
+                                             for row in fit.correlation]}
+            out["statistics"] = {
+                "residual_sd": clean(fit.residual_sd),
+                "residual_sd_meaning": "relative sd of one measured amount (sigma)",
+                "dof": fit.dof,
+                "n_fitted": fit.n,
+                "weighted_rss": clean(fit.rss),
+                "aicc": clean(fit.aicc),
+                "error_model": ERROR_MODEL,
+                "weighting": WEIGHTING,
+                "interval_method": INTERVAL_METHOD,
+            }
+            out["curve"] = self.curve
+        if self.candidates:
+            out["model_selection"] = {
+                "criterion": "AICc",
+                "chosen": fit.model.name if fit else None,
+                "candidates": [vars(c) for c in self.candidates],
+            }
+        out["run_table"] = self.run_rows()
+        return out
+
+
+def fit_study(study: Study) -> StudyReport:
+    """Fit the study's model and predict its procedures. Never raises for data problems."""
+    obs, outcomes = build_observations(study.runs)
+    warnings = [str(p) for p in study.warnings]
+    for o in outcomes:
+        if o.status == "not usable":
+            warnings.append(f"{o.run.location}: run {o.run.run_id!r} not used in the fit: "
+                            f"{o.reason}")
+        elif o.reason:
+            warnings.append(f"{o.run.location}: run {o.run.run_id!r}: {o.reason}")
+    candidates: list[Candidate] = []
+    try:
+        if study.model == "auto":
+            fit, candidates = choose_model(study, obs)
+            warnings.append(f"model chosen by AICc among {', '.join(c.model for c in candidates)}:"
+                            f" {fit.model.name}")
+        else:
+            model = get_model(study.model, study.ion_pair)
+            fit = fit_model(obs, model, MODELS.get(study.model))
+    except FitImpossible as exc:
+        return StudyReport(study, None, outcomes, problems=(str(exc),), warnings=warnings)
+    warnings.extend(fit.warnings)
+    target = study.targets.recovery_pct
+    preds = tuple(predict_procedure(fit, p, target) for p in study.procedures)
+    return StudyReport(study, fit, outcomes, preds, tuple(candidates), warnings=warnings)

@@ -1,0 +1,150 @@
+"""The ``extractval`` command line: check, fit, build, serve, new.
+
+Errors in the input are printed as located messages on stderr with exit status 1; no traceback
+reaches the user for bad input. Exit status 2 is a usage error.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+
+from . import __version__
+from .errors import Problem, StudyError
+
+
+def _discover(paths: list[str]) -> tuple[list[Path], list[Problem]]:
+    from .study import discover_studies
+
+    folders, problems = [], []
+    for p in paths:
+        try:
+            folders.extend(discover_studies(p))
+        except StudyError as exc:
+            problems.extend(exc.problems)
+    return folders, problems
+
+
+def _print_problems(problems, stream=sys.stderr) -> None:
+    for p in problems:
+        print(str(p), file=stream)
+
+
+def cmd_check(args) -> int:
+    from .study import check_study
+
+    folders, problems = _discover(args.paths)
+    _print_problems(problems)
+    n_err = len([p for p in problems if p.severity == "error"])
+    for folder in folders:
+        study, found = check_study(folder)
+        errors = [p for p in found if p.severity == "error"]
+        n_err += len(errors)
+        _print_problems(found)
+        if errors:
+            print(f"{folder.name}: {len(errors)} error(s), "
+                  f"{len(found) - len(errors)} warning(s)", file=sys.stderr)
+        else:
+            print(f"{folder.name}: ok ({len(study.runs)} runs, "
+                  f"{len(study.excluded_runs)} excluded, {len(found)} warning(s))")
+    return 1 if n_err else 0
+
+
+def cmd_fit(args) -> int:
+    from .analysis import fit_study
+    from .report.summary import render_summary
+    from .study import check_study
+
+    folders, problems = _discover(args.paths)
+    _print_problems(problems)
+    status = 1 if problems else 0
+    for folder in folders:
+        study, found = check_study(folder)
+        if study is None:
+            _print_problems(found)
+            print(f"{folder.name}: not fitted, the input has errors (see above)", file=sys.stderr)
+            status = 1
+            continue
+        report = fit_study(study)
+        data = report.to_dict()
+        if report.fit is None:
+            status = 1
+        if args.json:
+            sys.stdout.write(json.dumps(data, sort_keys=False, allow_nan=False) + "\n")
+        else:
+            sys.stdout.write(render_summary(data) + "\n")
+        sys.stdout.flush()
+    return status
+
+
+def cmd_build(args) -> int:
+    from .site import build_command
+
+    return build_command(args)
+
+
+def cmd_serve(args) -> int:
+    from .site import serve_command
+
+    return serve_command(args)
+
+
+def cmd_new(args) -> int:
+    from .scaffold import new_command
+
+    return new_command(args)
+
+
+def make_parser() -> argparse.ArgumentParser:
+    ap = argparse.ArgumentParser(
+        prog="extractval",
+        description="Validate liquid-liquid extraction procedures from shake-flask studies.")
+    ap.add_argument("--version", action="version", version=f"extractval {__version__}")
+    sub = ap.add_subparsers(dest="command", required=True)
+
+    p = sub.add_parser("check", help="validate study folders without fitting")
+    p.add_argument("paths", nargs="+", metavar="PATH",
+                   help="a study folder or a folder holding study folders")
+    p.set_defaults(func=cmd_check)
+
+    p = sub.add_parser("fit", help="fit log K and pKa, predict each procedure's recovery")
+    p.add_argument("paths", nargs="+", metavar="PATH",
+                   help="a study folder or a folder holding study folders")
+    p.add_argument("--json", action="store_true", help="print JSON Lines, one object per study")
+    p.set_defaults(func=cmd_fit)
+
+    p = sub.add_parser("build", help="check, fit and build the dossier site")
+    p.add_argument("--studies", default=None, help="folder of study folders (default studies/)")
+    p.add_argument("--site", default=None, help="output folder (default site/)")
+    p.add_argument("--keep-going", action="store_true",
+                   help="publish the good studies; a broken one gets a page listing its errors")
+    p.set_defaults(func=cmd_build)
+
+    p = sub.add_parser("serve", help="live preview of the dossier")
+    p.add_argument("--studies", default=None)
+    p.add_argument("--addr", default="127.0.0.1:8000")
+    p.set_defaults(func=cmd_serve)
+
+    p = sub.add_parser("new", help="scaffold a new study folder")
+    p.add_argument("study_id", metavar="STUDY-ID")
+    p.add_argument("--studies", default="studies", help="where to create it (default studies/)")
+    p.set_defaults(func=cmd_new)
+    return ap
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = make_parser().parse_args(argv)
+    try:
+        return int(args.func(args) or 0)
+    except StudyError as exc:
+        _print_problems(exc.problems)
+        return 1
+    except KeyboardInterrupt:
+        print("interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,51 @@
+"""The readable per-study summary printed by ``extractval fit``."""
+
+from __future__ import annotations
+
+
+def fmt(x, digits: int = 3) -> str:
+    """A number for people: fixed decimals, 'open' for an open interval end."""
+    if x is None:
+        return "open"
+    return f"{x:.{digits}f}"
+
+
+def fmt_pct(x) -> str:
+    """A recovery in percent with enough decimals to show what is left (99.97, not 100.0)."""
+    if x is None:
+        return "open"
+    if x >= 99.9 and x < 100.0:
+        rest = 100.0 - x
+        digits = 1
+        while digits < 6 and round(rest, digits) == 0:
+            digits += 1
+        return f"{x:.{digits + 1}f}"
+    return f"{x:.1f}"
+
+
+def render_summary(d: dict) -> str:
+    lines = [f"== {d['study']}: {d['title']}",
+             f"   analyte {d['analyte']}, model {d['model']}"
+             + (f" (requested {d['model_requested']})" if d["model_requested"] != d["model"]
+                else "")]
+    runs = d["runs"]
+    lines.append(f"   runs: {runs['used']} used, {runs['excluded']} excluded, "
+                 f"{runs['not_usable']} not usable, {runs['total']} in all")
+    for prob in d.get("problems", []):
+        lines.append(f"   NOT FITTED: {prob}")
+    for name, p in d["parameters"].items():
+        lo, hi = p["ci95"]
+        lines.append(f"   {name:<9} {fmt(p['value'])}  SE {fmt(p['se'])}  "
+                     f"95% CI [{fmt(lo)}, {fmt(hi)}]")
+    st = d.get("statistics")
+    if st:
+        lines.append(f"   residual sd {100 * st['residual_sd']:.2f} % per measured amount, "
+                     f"{st['dof']} dof; intervals: {st['interval_method']}")
+    for pr in d["procedures"]:
+        rec = pr["recovery_pct"]
+        lo, hi = rec["ci95"]
+        lines.append(f"   {pr['id']}: recovery {fmt_pct(rec['value'])} % "
+                     f"[{fmt_pct(lo)}, {fmt_pct(hi)}]  ({pr['label']})")
+    for w in d["warnings"]:
+        lines.append(f"   warning: {w}")
+    return "\n".join(lines)
