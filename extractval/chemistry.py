@@ -101,9 +101,11 @@ def log_d_base(pH, logK, pKa):
 
 
 def log_d_ampholyte(pH, logK, pKa1, pKa2):
-    r"""log D of an ordinary ampholyte (cation <-> neutral <-> anion), neutral form partitioning [3]_.
+    r"""log D of an ordinary ampholyte (cation, neutral, anion); the neutral form partitions [3]_.
 
-    .. math:: D = \frac{K}{1 + 10^{\mathrm{p}K_{a1} - \mathrm{pH}} + 10^{\mathrm{pH} - \mathrm{p}K_{a2}}}
+    .. math::
+        D = \frac{K}{1 + 10^{\mathrm{p}K_{a1} - \mathrm{pH}}
+                     + 10^{\mathrm{pH} - \mathrm{p}K_{a2}}}
 
     ``pKa1`` belongs to the cation (e.g. ammonium), ``pKa2`` to the neutral form (e.g. phenol).
 
@@ -148,7 +150,8 @@ def remaining_fraction_single(D, aqueous_mL, organic_mL):
     >>> remaining_fraction_single(2.0, 100.0, 50.0)
     0.5
     """
-    return aqueous_mL / (aqueous_mL + np.asarray(D, dtype=float) * organic_mL)
+    out = aqueous_mL / (aqueous_mL + np.asarray(D, dtype=float) * organic_mL)
+    return float(out) if np.ndim(out) == 0 else out
 
 
 def remaining_fraction(D, aqueous_mL, organic_portions_mL):
@@ -179,11 +182,12 @@ def fraction_extracted_equal_portions(D, volume_ratio, n):
     >>> fraction_extracted_equal_portions(2.0, 0.5, 4)
     0.9375
     """
-    return 1.0 - (volume_ratio * np.asarray(D, dtype=float) + 1.0) ** (-n)
+    out = 1.0 - (volume_ratio * np.asarray(D, dtype=float) + 1.0) ** (-n)
+    return float(out) if np.ndim(out) == 0 else out
 
 
 def split_limit_remaining(D, aqueous_mL, total_organic_mL):
-    r"""Limit of the remaining fraction when a fixed solvent volume is split into ever more portions.
+    r"""Limit of the remaining fraction when a fixed solvent volume is split ever finer.
 
     .. math:: \lim_{n\to\infty}\left(1 + \frac{D V_{tot}}{n V_{aq}}\right)^{-n}
               = \exp\!\left(-\frac{D V_{tot}}{V_{aq}}\right)

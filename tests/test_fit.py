@@ -1,0 +1,123 @@
+"""Behaviour of the fit on simulated studies with known truth."""
+
+import dataclasses
+
+import numpy as np
+import pytest
+
+from extractval.analysis import build_observations, fit_study
+from extractval.fitting import FitImpossible, fit_model
+from extractval.models import MODELS
+from extractval.simulate import simulate_runs, simulated_study
+from extractval.study import Procedure
+from tests.reference import handbook as ref
+
+CASES = [
+    ("neutral", (ref.LOGP_PHENOL,), [6.0, 7.0]),
+    ("acid", (ref.LOGP_BENZOIC_ACID, ref.PKA_BENZOIC_ACID), [2.5, 3.5, 4.2, 5.0, 6.0]),
+    ("base", (ref.LOGP_ANILINE, ref.PKA_ANILINIUM), [3.0, 4.0, 4.6, 5.5, 7.0]),
+    ("ampholyte", (2.0, 3.5, 9.5), [1.5, 2.5, 3.5, 5.0, 6.5, 8.0, 9.5, 10.5, 11.5]),
+]
+
+
+@pytest.mark.parametrize("model, theta, pH", CASES)
+@pytest.mark.parametrize("form", ["both", "organic", "aqueous", "recovery"])
+def test_noise_free_data_reproduce_parameters(model, theta, pH, form):
+    runs = simulate_runs(model, theta, pH, sigma=0.0, form=form, rng=0)
+    obs, _ = build_observations(runs)
+    fit = fit_model(obs, MODELS[model], intervals=False)
+    assert fit.theta == pytest.approx(np.array(theta), abs=1e-4)
+
+
+def test_ion_pair_noise_free():
+    theta = (2.6, 8.3, -0.5)
+    runs = simulate_runs("base", theta, [5, 6, 7, 8, 9, 10, 11], sigma=0.0, form="both",
+                         ion_pair=True, rng=0)
+    obs, _ = build_observations(runs)
+    fit = fit_model(obs, MODELS["base+ion_pair"], MODELS["base"], intervals=False)
+    assert fit.theta == pytest.approx(np.array(theta), abs=1e-4)
+
+
+def test_complete_recoveries_neither_crash_nor_dominate():
+    # a strongly extracted acid: most recoveries read 100 % or above (assay noise)
+    runs = simulate_runs("acid", (3.5, 4.2), [2.0, 3.0, 4.0, 5.0, 6.0, 7.0], sigma=0.03,
+                         form="recovery", rng=4)
+    runs = tuple(dataclasses.replace(r, recovery_pct=100.0) if r.pH <= 3.0 else r for r in runs)
+    assert sum(r.recovery_pct >= 100.0 for r in runs) >= 12
+    obs, _ = build_observations(runs)
+    fit = fit_model(obs, MODELS["acid"])
+    # the informative runs above the pKa still fix log K + pKa (log D ~ log K + pKa - pH there)
+    assert np.isfinite(fit.theta).all()
+    assert fit.theta[1] + fit.theta[0] == pytest.approx(4.2 + 3.5, abs=0.1)
+
+
+def test_all_recoveries_complete_give_open_interval_not_a_number():
+    runs = simulate_runs("neutral", (4.0,), [7.0], sigma=0.0, form="recovery", replicates=4)
+    runs = tuple(dataclasses.replace(r, recovery_pct=100.0) for r in runs)
+    obs, _ = build_observations(runs)
+    fit = fit_model(obs, MODELS["neutral"])
+    est = fit.parameters["logK"]
+    assert est.ci95.hi is None
+    assert any("logK" in w for w in fit.warnings)
+
+
+def test_runs_all_on_one_side_of_pKa_say_so():
+    # a base measured only far below its pKa: log D = log K - (pKa - pH); only the difference
+    # is determined
+    runs = simulate_runs("base", (2.6, 8.3), [3.0, 4.0, 5.0], sigma=0.03, form="both", rng=2)
+    study = simulated_study("SIDE", "base", (2.6, 8.3), [3.0, 4.0, 5.0], sigma=0.03, rng=2)
+    report = fit_study(study)
+    d = report.to_dict()
+    assert len(runs) == d["runs"]["used"]
+    open_ends = [e for p in d["parameters"].values() for e in p["ci95"] if e is None]
+    assert open_ends, d["parameters"]
+    assert any("pKa" in w for w in d["warnings"])
+
+
+def test_excluded_and_unusable_runs_stay_visible():
+    study = simulated_study("VIS", "acid", (1.88, 4.21), [3.0, 4.0, 5.0], sigma=0.03,
+                            form="recovery", rng=1)
+    runs = list(study.runs)
+    runs[0] = dataclasses.replace(runs[0], excluded="phase separation incomplete (emulsion)")
+    runs[1] = dataclasses.replace(runs[1], recovery_pct=0.0)
+    report = fit_study(dataclasses.replace(study, runs=tuple(runs)))
+    d = report.to_dict()
+    assert d["runs"] == {"used": 16, "excluded": 1, "not_usable": 1, "total": 18}
+    rows = {r["run"]: r for r in d["run_table"]}
+    assert rows[runs[0].run_id]["status"] == "excluded"
+    assert "emulsion" in rows[runs[0].run_id]["reason"]
+    assert rows[runs[1].run_id]["status"] == "not usable"
+    assert any(runs[1].run_id in w for w in d["warnings"])
+
+
+def test_too_few_runs_is_a_clear_message():
+    runs = simulate_runs("acid", (1.88, 4.21), [4.0], ratios=(1.0,), replicates=2, sigma=0.02)
+    obs, _ = build_observations(runs)
+    with pytest.raises(FitImpossible, match="needs at least 3 runs"):
+        fit_model(obs, MODELS["acid"])
+
+
+def test_procedure_prediction_matches_closed_form_on_noise_free_fit():
+    proc = Procedure("P1", "three portions", 3.0, 25.0, (10.0, 10.0, 10.0))
+    study = simulated_study("NF", "acid", (1.88, 4.21), [2.5, 3.5, 4.2, 5.0, 6.0], (proc,),
+                            sigma=0.0, form="both")
+    d = fit_study(study).to_dict()
+    logd = 1.88 - np.log10(1 + 10 ** (3.0 - 4.21))
+    q = (25.0 / (25.0 + 10 ** logd * 10.0)) ** 3          # IUPAC Gold Book F02503
+    pr = d["procedures"][0]
+    assert pr["remaining_fraction"]["value"] == pytest.approx(q, rel=1e-6)
+    assert pr["recovery_pct"]["value"] == pytest.approx(100 * (1 - q), rel=1e-8)
+    assert [a["value"] for a in pr["after_portions"]] == pytest.approx(
+        [(25.0 / (25.0 + 10 ** logd * 10.0)) ** n for n in (1, 2, 3)], rel=1e-6)
+
+
+def test_prediction_interval_contains_value_and_orders_ends():
+    proc = Procedure("P1", "one portion", 4.5, 20.0, (10.0,))
+    study = simulated_study("PI", "acid", (1.88, 4.21), [2.5, 3.5, 4.2, 5.0, 6.0], (proc,),
+                            sigma=0.05, form="recovery", rng=8)
+    pr = fit_study(study).to_dict()["procedures"][0]
+    lo, hi = pr["recovery_pct"]["ci95"]
+    assert lo < pr["recovery_pct"]["value"] < hi
+    qlo, qhi = pr["remaining_fraction"]["ci95"]
+    assert qlo == pytest.approx(1 - hi / 100, rel=1e-9)
+    assert qhi == pytest.approx(1 - lo / 100, rel=1e-9)
