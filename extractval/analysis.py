@@ -15,14 +15,13 @@ from . import __version__
 from .fitting import (ERROR_MODEL, INTERVAL_METHOD, LOG_D, LOG_E, LOG_Q, WEIGHTING,
                       FitImpossible, FitResult, Observations, fit_model)
 from .models import MODELS, get_model
-from .procedures import ProcedurePrediction, predict_procedure
+from .procedures import (LogDBand, ProcedureDesign, ProcedurePrediction, design_procedure,
+                         design_space, log_d_band, predict_procedure)
 from .results import clean
 from .study import Run, Study
 
 #: pH span (units) below which ``model: auto`` does not try the ampholyte (two pKa need room).
 AMPHOLYTE_MIN_SPAN = 4.0
-#: points of the fitted log D curve and its band handed to the plots
-CURVE_POINTS = 25
 
 
 @dataclass(frozen=True)
@@ -139,18 +138,27 @@ class StudyReport:
     warnings: list[str] = field(default_factory=list)
 
     @cached_property
-    def curve(self) -> dict | None:
-        """The fitted log D(pH) with its 95 % profile band, for plots."""
+    def band(self) -> LogDBand | None:
+        """log D(pH) and its 95 % band on a grid: plots, pH windows and the design map use it."""
+        return None if self.fit is None else log_d_band(self.fit)
+
+    @cached_property
+    def designs(self) -> tuple[ProcedureDesign, ...]:
         if self.fit is None:
+            return ()
+        target = self.study.targets.recovery_pct
+        return tuple(design_procedure(self.fit, self.band, p.procedure, target)
+                     for p in self.predictions)
+
+    @property
+    def curve(self) -> dict | None:
+        """The fitted log D(pH) with its 95 % band, as plain lists for the plots."""
+        b = self.band
+        if b is None:
             return None
-        pH = self.fit.obs.pH
-        grid = np.linspace(max(0.0, pH.min() - 0.5), min(14.0, pH.max() + 0.5), CURVE_POINTS)
-        ests = [self.fit.log_d_interval(float(x)) for x in grid]
-        return {"pH": [clean(x, 6) for x in grid],
-                "log_d": [clean(e.value, 6) for e in ests],
-                "lo": [clean(e.ci95.lo, 6) for e in ests],
-                "hi": [clean(e.ci95.hi, 6) for e in ests],
-                "method": ests[0].ci95.method if ests else INTERVAL_METHOD}
+        return {"pH": [clean(x, 6) for x in b.pH], "log_d": [clean(x, 6) for x in b.value],
+                "lo": [clean(x, 6) for x in b.lo], "hi": [clean(x, 6) for x in b.hi],
+                "method": b.method}
 
     def run_rows(self) -> list[dict]:
         rows = []
@@ -195,7 +203,8 @@ class StudyReport:
             "runs": {"used": counts["used"], "excluded": counts["excluded"],
                      "not_usable": counts["not usable"], "total": len(self.outcomes)},
             "parameters": {},
-            "procedures": [p.to_dict() for p in self.predictions],
+            "procedures": [dict(p.to_dict(), **d.to_dict())
+                           for p, d in zip(self.predictions, self.designs)],
             "warnings": list(self.warnings),
             "problems": list(self.problems),
             "software": {"name": "extractval", "version": __version__},
@@ -217,6 +226,7 @@ class StudyReport:
                 "interval_method": INTERVAL_METHOD,
             }
             out["curve"] = self.curve
+            out["design_space"] = design_space(self.band, s.procedures, s.targets.recovery_pct)
         if self.candidates:
             out["model_selection"] = {
                 "criterion": "AICc",

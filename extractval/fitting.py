@@ -126,6 +126,7 @@ class FitResult:
     bounds: tuple[np.ndarray, np.ndarray]
     parameters: dict[str, Estimate] = field(default_factory=dict)
     warnings: list[str] = field(default_factory=list)
+    _log_d_memo: dict = field(default_factory=dict, repr=False)
 
     @property
     def n(self) -> int:
@@ -199,7 +200,16 @@ class FitResult:
         return self.model.log_d(pH, self.theta), se
 
     def log_d_interval(self, pH0: float) -> Estimate:
-        """log D at one pH with its 95 % interval (profile likelihood where the model allows)."""
+        """log D at one pH with its 95 % interval (profile likelihood where the model allows).
+
+        Memoised per pH: the plots' band, the design-space map and the procedures share it.
+        """
+        key = round(float(pH0), 9)
+        if key not in self._log_d_memo:
+            self._log_d_memo[key] = self._log_d_interval(key)
+        return self._log_d_memo[key]
+
+    def _log_d_interval(self, pH0: float) -> Estimate:
         value, se = (float(a[0]) for a in self.log_d_wald(pH0))
         wald = Interval(value - self.t95 * se, value + self.t95 * se, "Wald (delta method)")
         if self.model.h is None or self.rss <= _NOISE_FREE_RSS * self.n:
@@ -421,25 +431,41 @@ class _Profiler:
         t_crit = float(np.sqrt(stats.f.ppf(0.95, 1, self.fit.dof)))
         step0 = se * t_crit if np.isfinite(se) and se > 1e-8 else 0.5
         step0 = float(np.clip(step0, 1e-6, 2.0))
-        ends = []
-        for sign, limit in ((-1, lo_lim), (+1, hi_lim)):
-            self.u = self.u_hat.copy()
-            inside, step, end = v_hat, step0, None
-            for _ in range(60):
-                v = v_hat + sign * step
-                if sign * (v - limit) >= 0:
-                    v = limit
-                tau = self.tau(v)
-                if tau > t_crit:
-                    end = self._crossing(inside, v, t_crit, 1e-3 * step0)
-                    break
-                if v == limit:
-                    break
+        return (self._end(v_hat, -1, lo_lim, step0, t_crit),
+                self._end(v_hat, +1, hi_lim, step0, t_crit))
+
+    def _end(self, v_hat, sign, limit, step0, t_crit) -> float | None:
+        """One end: secant iteration on tau(v) = t_crit from the Wald end (tau is nearly
+        linear in v, so two or three profile fits usually suffice); bracketing as fallback."""
+        self.u = self.u_hat.copy()
+        v_prev, tau_prev = v_hat, 0.0
+        v = v_hat + sign * step0
+        inside, outside = v_hat, None
+        for _ in range(12):
+            if sign * (v - limit) >= 0:
+                v = limit
+            tau = self.tau(v)
+            if abs(tau - t_crit) <= 1e-3 * t_crit:
+                return v
+            if tau < t_crit:
                 inside = v
-                # tau is close to linear in v: aim just past the crossing, at most 4x further
-                step = step * float(np.clip(1.2 * t_crit / max(tau, 1e-9), 1.5, 4.0))
-            ends.append(end)
-        return ends[0], ends[1]
+                if v == limit:
+                    return None            # the data do not close this end
+            else:
+                outside = v
+            dist = abs(v - v_hat)
+            if tau > tau_prev + 1e-12:
+                v_new = v + (t_crit - tau) * (v - v_prev) / (tau - tau_prev)
+            else:
+                v_new = v_hat + sign * 2.0 * dist
+            # keep the step sane: stay on our side, within a factor of four of the last distance
+            d_new = float(np.clip(sign * (v_new - v_hat), 0.25 * dist, 4.0 * dist))
+            v_prev, tau_prev, v = v, tau, v_hat + sign * d_new
+            if outside is not None and sign * (v - outside) > 0:
+                v = 0.5 * (inside + outside)
+        if outside is None:
+            return None
+        return self._crossing(inside, outside, t_crit, 1e-3 * step0)
 
     def _crossing(self, inside: float, outside: float, t_crit: float, xtol: float) -> float:
         """Where tau crosses t_crit between a point inside and one outside the interval."""

@@ -146,3 +146,196 @@ def _single_run(fit: FitResult, est: Estimate, rec) -> ValueInterval:
     lo, hi = 100.0 * 10 ** (log_e - t * sd), 100.0 * 10 ** (log_e + t * sd)
     return ValueInterval(100.0 * e, Interval(lo, hi, "prediction interval of one run (t, "
                                                        "model and assay variance combined)"))
+
+
+# -- procedure design: band, worst case, steps needed, pH window, design space -------------------
+#: largest number of portions an SOP would reasonably prescribe; beyond it, "unreachable"
+MAX_PORTIONS = 10
+#: spacing of the pH grid on which the log D band is traced, pH units
+BAND_STEP = 0.5
+#: how far beyond the measured pH range the band (and so the pH window) is traced
+BAND_MARGIN = 2.0
+#: organic:aqueous ratios of the design-space map (per portion)
+MAP_RATIOS = tuple(float(f"{r:.3g}") for r in np.geomspace(0.05, 2.0, 13))
+MAP_PORTIONS = (1, 2, 3)
+
+
+@dataclass(frozen=True)
+class LogDBand:
+    """log D(pH) with its pointwise 95 % interval on a pH grid (NaN where an end is open)."""
+
+    pH: np.ndarray
+    value: np.ndarray
+    lo: np.ndarray
+    hi: np.ndarray
+    method: str
+
+    def lower_at(self, pH) -> np.ndarray:
+        return np.interp(pH, self.pH, self.lo)
+
+
+def log_d_band(fit: FitResult, step: float = BAND_STEP) -> LogDBand:
+    """Trace log D and its interval over the measured pH range widened by BAND_MARGIN."""
+    lo_ph = max(0.0, np.floor((fit.obs.pH.min() - BAND_MARGIN) / step) * step)
+    hi_ph = min(14.0, np.ceil((fit.obs.pH.max() + BAND_MARGIN) / step) * step)
+    grid = np.round(np.arange(lo_ph, hi_ph + step / 2, step), 6)
+    ests = [fit.log_d_interval(float(x)) for x in grid]
+
+    def arr(get):
+        return np.array([np.nan if get(e) is None else get(e) for e in ests], dtype=float)
+
+    return LogDBand(grid, arr(lambda e: e.value), arr(lambda e: e.ci95.lo),
+                    arr(lambda e: e.ci95.hi), ests[0].ci95.method)
+
+
+def _recovery_lower(log_d_lo: float | None, aqueous_mL: float, organic_mL) -> float | None:
+    if log_d_lo is None or not np.isfinite(log_d_lo):
+        return None
+    return float(recovery_pct_from_log_d(log_d_lo, aqueous_mL, organic_mL))
+
+
+@dataclass(frozen=True)
+class ProcedureDesign:
+    """Robustness and design figures for one procedure (all lower bounds are 95 % lower ends)."""
+
+    worst_case: dict
+    steps_needed: dict | None
+    steps_note: str | None
+    split: tuple[dict, ...]
+    split_limit_recovery_pct: float
+    pH_window: tuple[float, float] | None
+    pH_window_note: str | None
+
+    def to_dict(self) -> dict:
+        return {
+            "worst_case": self.worst_case,
+            "steps_needed": self.steps_needed,
+            "steps_needed_note": self.steps_note,
+            "best_split": list(self.split),
+            "split_limit_recovery_pct": clean(self.split_limit_recovery_pct),
+            "pH_window": None if self.pH_window is None else [clean(x, 6) for x in self.pH_window],
+            "pH_window_note": self.pH_window_note,
+        }
+
+
+def worst_case(fit: FitResult, band: LogDBand, p: Procedure) -> dict:
+    """Lowest lower-bound recovery with pH anywhere in pH +/- tolerance and volumes off by
+    their tolerance in the unfavourable direction (more water, less solvent)."""
+    f = p.volume_tolerance_pct / 100.0
+    aq = p.aqueous_mL * (1 + f)
+    org = tuple(v * (1 - f) for v in p.organic_mL)
+    lo_ph, hi_ph = max(0.0, p.pH - p.pH_tolerance), min(14.0, p.pH + p.pH_tolerance)
+    candidates = [lo_ph, p.pH, hi_ph]
+    inside = (band.pH > lo_ph) & (band.pH < hi_ph)
+    candidates += [float(x) for x in band.pH[inside]]
+    best = None
+    for x in candidates:
+        est = fit.log_d_interval(x)
+        rec_lo = _recovery_lower(est.ci95.lo, aq, org)
+        key = -np.inf if rec_lo is None else rec_lo
+        if best is None or key < best[0]:
+            best = (key, x, rec_lo, float(recovery_pct_from_log_d(est.value, aq, org)))
+    _, x, rec_lo, rec = best
+    return {"recovery_pct": clean(rec_lo), "predicted_recovery_pct": clean(rec),
+            "pH": clean(x, 6), "aqueous_mL": clean(aq), "organic_mL": [clean(v) for v in org]}
+
+
+def steps_needed(fit: FitResult, p: Procedure, target_pct: float) -> tuple[dict | None, str]:
+    """Fewest equal portions (of the procedure's mean portion volume) whose lower-bound
+    recovery meets the target: n = ceil(ln(1 - T) / ln q1) with q1 from the lower log D."""
+    v = p.total_organic_mL / len(p.organic_mL)
+    lo = fit.log_d_interval(p.pH).ci95.lo
+    if lo is None:
+        return None, "the lower end of log D at this pH is open: no number of portions is shown"
+    if target_pct >= 100.0:
+        return None, "a target of 100 % cannot be met by a finite number of portions"
+    q1 = float(p.aqueous_mL / (p.aqueous_mL + 10.0 ** lo * v))
+    need = np.log1p(-target_pct / 100.0) / np.log(q1) if q1 < 1.0 else np.inf
+    n = max(1, int(np.ceil(need - 1e-9))) if np.isfinite(need) else MAX_PORTIONS + 1
+    if n > MAX_PORTIONS:
+        return None, (f"more than {MAX_PORTIONS} portions of {v:g} mL would be needed: "
+                      "change pH, solvent or volumes")
+    return ({"portions": n, "organic_mL_total": clean(n * v), "per_portion_mL": clean(v)},
+            f"portions of {v:g} mL at pH {p.pH:g}, judged at the lower 95 % end")
+
+
+def best_split(fit: FitResult, p: Procedure, n_max: int = MAX_PORTIONS) -> tuple[tuple, float]:
+    """The procedure's total solvent split into 1..n_max equal portions, and the split limit."""
+    est = fit.log_d_interval(p.pH)
+    rows = []
+    for n in range(1, n_max + 1):
+        portions = [p.total_organic_mL / n] * n
+        rows.append({"portions": n, "per_portion_mL": clean(p.total_organic_mL / n),
+                     "recovery_pct": clean(float(recovery_pct_from_log_d(est.value, p.aqueous_mL,
+                                                                          portions))),
+                     "recovery_lo_pct": clean(_recovery_lower(est.ci95.lo, p.aqueous_mL,
+                                                              portions))})
+    limit = 100.0 * (1.0 - chem.split_limit_remaining(10.0 ** est.value, p.aqueous_mL,
+                                                       p.total_organic_mL))
+    return tuple(rows), limit
+
+
+def pH_window(band: LogDBand, p: Procedure, target_pct: float):
+    """pH range in which the procedure's volumes meet the target at the lower 95 % end."""
+    rec = np.array([_recovery_lower(x, p.aqueous_mL, p.organic_mL) if np.isfinite(x) else np.nan
+                    for x in band.lo], dtype=float)
+    ok = np.where(np.isfinite(rec), rec >= target_pct, False)
+    if not ok.any():
+        return None, "the target is not met at the lower 95 % end anywhere in the traced range"
+    idx = np.flatnonzero(ok)
+    i0, i1 = idx[0], idx[-1]
+
+    def edge(i_in, i_out):
+        if i_out < 0 or i_out >= len(rec) or not np.isfinite(rec[i_out]):
+            return float(band.pH[i_in])
+        a, b = rec[i_in], rec[i_out]
+        t = (a - target_pct) / (a - b) if a != b else 0.0
+        return float(band.pH[i_in] + t * (band.pH[i_out] - band.pH[i_in]))
+
+    lo, hi = edge(i0, i0 - 1), edge(i1, i1 + 1)
+    notes = []
+    if i0 == 0:
+        notes.append(f"extends below pH {band.pH[0]:g}, the edge of the traced range")
+    if i1 == len(rec) - 1:
+        notes.append(f"extends above pH {band.pH[-1]:g}, the edge of the traced range")
+    if len(idx) != i1 - i0 + 1:
+        notes.append("the target is not met everywhere inside this range")
+    return (lo, hi), ("; ".join(notes) or None)
+
+
+def design_procedure(fit: FitResult, band: LogDBand, p: Procedure,
+                     target_pct: float | None) -> ProcedureDesign:
+    split, limit = best_split(fit, p)
+    wc = worst_case(fit, band, p)
+    if target_pct is None:
+        note = "no recovery target in study.yaml"
+        return ProcedureDesign(wc, None, note, split, limit, None, note)
+    steps, steps_note = steps_needed(fit, p, target_pct)
+    window, window_note = pH_window(band, p, target_pct)
+    return ProcedureDesign(wc, steps, steps_note, split, limit, window, window_note)
+
+
+def design_space(band: LogDBand, procedures, target_pct: float | None,
+                 aqueous_mL: float = 10.0) -> dict:
+    """Lower-bound recovery over pH x organic:aqueous ratio per portion, for 1, 2, 3 portions."""
+    table = []
+    for n in MAP_PORTIONS:
+        grid = []
+        for lo in band.lo:
+            row = [clean(_recovery_lower(lo, aqueous_mL, [r * aqueous_mL] * n), 6)
+                   if np.isfinite(lo) else None for r in MAP_RATIOS]
+            grid.append(row)
+        table.append(grid)
+    return {
+        "pH": [clean(x, 6) for x in band.pH],
+        "volume_ratio": list(MAP_RATIOS),
+        "portions": list(MAP_PORTIONS),
+        "recovery_lo_pct": table,
+        "target_pct": target_pct,
+        "meaning": "lower end of the 95 % interval of recovery, equal portions each at the "
+                   "given organic:aqueous ratio",
+        "procedures": [{"id": p.id, "pH": clean(p.pH),
+                        "volume_ratio": clean(p.total_organic_mL / len(p.organic_mL)
+                                              / p.aqueous_mL),
+                        "portions": len(p.organic_mL)} for p in procedures],
+    }
