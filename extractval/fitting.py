@@ -222,7 +222,7 @@ class FitResult:
 
 
 #: below this weighted SS per run the data are noise-free (simulations): no profile to trace
-_NOISE_FREE_RSS = 1e-24
+_NOISE_FREE_RSS = 1e-16
 #: Search limits for log D when profiling a prediction.
 LOG_D_LIMITS = (-8.0, 14.0)
 

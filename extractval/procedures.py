@@ -10,7 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
+from scipy import optimize, stats
 
 from . import chemistry as chem
 from .fitting import FitResult
@@ -275,22 +275,29 @@ def best_split(fit: FitResult, p: Procedure, n_max: int = MAX_PORTIONS) -> tuple
     return tuple(rows), limit
 
 
-def pH_window(band: LogDBand, p: Procedure, target_pct: float):
-    """pH range in which the procedure's volumes meet the target at the lower 95 % end."""
-    rec = np.array([_recovery_lower(x, p.aqueous_mL, p.organic_mL) if np.isfinite(x) else np.nan
-                    for x in band.lo], dtype=float)
-    ok = np.where(np.isfinite(rec), rec >= target_pct, False)
+def pH_window(fit: FitResult, band: LogDBand, p: Procedure, target_pct: float):
+    """pH range in which the procedure's volumes meet the target at the lower 95 % end.
+
+    Found on the band's grid, then each edge is refined by root-finding on the exact lower
+    bound (profile likelihood) to 0.001 pH.
+    """
+    def rec_lo_at(x: float) -> float:
+        r = _recovery_lower(fit.log_d_interval(x).ci95.lo, p.aqueous_mL, p.organic_mL)
+        return -1.0 if r is None else r      # an open lower end meets no target
+
+    rec = np.array([rec_lo_at(float(x)) for x in band.pH])
+    ok = rec >= target_pct
     if not ok.any():
         return None, "the target is not met at the lower 95 % end anywhere in the traced range"
     idx = np.flatnonzero(ok)
     i0, i1 = idx[0], idx[-1]
 
     def edge(i_in, i_out):
-        if i_out < 0 or i_out >= len(rec) or not np.isfinite(rec[i_out]):
+        if i_out < 0 or i_out >= len(rec):
             return float(band.pH[i_in])
-        a, b = rec[i_in], rec[i_out]
-        t = (a - target_pct) / (a - b) if a != b else 0.0
-        return float(band.pH[i_in] + t * (band.pH[i_out] - band.pH[i_in]))
+        a, b = float(band.pH[i_in]), float(band.pH[i_out])
+        g = lambda x: rec_lo_at(x) - target_pct  # noqa: E731
+        return float(optimize.brentq(g, min(a, b), max(a, b), xtol=1e-3))
 
     lo, hi = edge(i0, i0 - 1), edge(i1, i1 + 1)
     notes = []
@@ -311,7 +318,7 @@ def design_procedure(fit: FitResult, band: LogDBand, p: Procedure,
         note = "no recovery target in study.yaml"
         return ProcedureDesign(wc, None, note, split, limit, None, note)
     steps, steps_note = steps_needed(fit, p, target_pct)
-    window, window_note = pH_window(band, p, target_pct)
+    window, window_note = pH_window(fit, band, p, target_pct)
     return ProcedureDesign(wc, steps, steps_note, split, limit, window, window_note)
 
 

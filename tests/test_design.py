@@ -1,0 +1,98 @@
+"""Procedure design on noise-free simulated studies equals its closed forms.
+
+Closed forms from the IUPAC Gold Book relations (F02503, D01817): after n equal portions of
+volume v, q = (V_aq / (V_aq + D v))^n; so n >= ln(1 - T) / ln q1, and the target is met where
+D >= D* = ((1 - T)^(-1/n) - 1) V_aq / v_total-per-portion.
+"""
+
+import math
+
+import numpy as np
+import pytest
+
+from extractval.analysis import fit_study
+from extractval.simulate import simulated_study
+from extractval.study import Procedure, Targets
+
+LOGK, PKA = 1.88, 4.21          # benzoic acid: CRC Handbook log P, J. Res. NBS 1967 71A 379
+PH = [2.5, 3.5, 4.2, 5.0, 6.0]
+
+
+def _report(procs, target=95.0, model="acid", theta=(LOGK, PKA), pH=PH):
+    study = simulated_study("DESIGN", model, theta, pH, procs, sigma=0.0, form="both",
+                            targets=Targets(recovery_pct=target))
+    return fit_study(study).to_dict()
+
+
+def _log_d_acid(pH):
+    return LOGK - math.log10(1 + 10 ** (pH - PKA))
+
+
+def test_steps_needed_closed_form():
+    proc = Procedure("P1", "x", 4.5, 50.0, (5.0,))
+    d = _report((proc,), target=99.0)["procedures"][0]
+    q1 = 50.0 / (50.0 + 10 ** _log_d_acid(4.5) * 5.0)
+    n = math.ceil(math.log(1 - 0.99) / math.log(q1))
+    assert d["steps_needed"] == {"portions": n, "organic_mL_total": 5.0 * n,
+                                 "per_portion_mL": 5.0}
+
+
+def test_steps_needed_unreachable_is_null():
+    proc = Procedure("P1", "x", 9.0, 50.0, (1.0,))          # fully ionised: D tiny
+    d = _report((proc,), target=99.0)["procedures"][0]
+    assert d["steps_needed"] is None
+    assert "more than" in d["steps_needed_note"]
+
+
+def test_worst_case_closed_form_for_an_acid():
+    # an acid extracts worse at higher pH, with more water and less solvent
+    proc = Procedure("P1", "x", 4.0, 20.0, (10.0, 10.0), pH_tolerance=0.3,
+                     volume_tolerance_pct=5.0)
+    wc = _report((proc,))["procedures"][0]["worst_case"]
+    assert wc["pH"] == pytest.approx(4.3)
+    assert wc["aqueous_mL"] == pytest.approx(21.0)
+    assert wc["organic_mL"] == pytest.approx([9.5, 9.5])
+    D = 10 ** _log_d_acid(4.3)
+    expected = 100 * (1 - (21.0 / (21.0 + D * 9.5)) ** 2)
+    assert wc["recovery_pct"] == pytest.approx(expected, rel=1e-6)
+
+
+def test_worst_case_for_a_base_is_on_the_acid_side():
+    proc = Procedure("P1", "x", 9.0, 20.0, (10.0,), pH_tolerance=0.2)
+    wc = _report((proc,), model="base", theta=(2.6, 8.3),
+                 pH=[6.5, 7.5, 8.3, 9.0, 10.0])["procedures"][0]["worst_case"]
+    assert wc["pH"] == pytest.approx(8.8)
+
+
+def test_pH_window_closed_form():
+    proc = Procedure("P1", "x", 3.0, 25.0, (10.0, 10.0))
+    d = _report((proc,), target=99.0)["procedures"][0]
+    d_star = ((1 - 0.99) ** (-1 / 2) - 1) * 25.0 / 10.0
+    # acid: D = K / (1 + 10^(pH - pKa)) >= D*  <=>  pH <= pKa + log10(K / D* - 1)
+    upper = PKA + math.log10(10 ** LOGK / d_star - 1)
+    lo, hi = d["pH_window"]
+    assert hi == pytest.approx(upper, abs=2e-3)
+    assert lo == pytest.approx(0.5)            # the traced range starts 2 units below the data
+    assert "extends below" in d["pH_window_note"]
+
+
+def test_best_split_never_beats_the_limit():
+    proc = Procedure("P1", "x", 4.5, 25.0, (30.0,))
+    d = _report((proc,))["procedures"][0]
+    rec = [row["recovery_pct"] for row in d["best_split"]]
+    assert all(b > a for a, b in zip(rec, rec[1:]))
+    assert rec[-1] < d["split_limit_recovery_pct"]
+
+
+def test_design_space_map_matches_closed_form():
+    proc = Procedure("P1", "x", 3.0, 25.0, (10.0,))
+    ds = _report((proc,))["design_space"]
+    i = ds["pH"].index(3.5)
+    j = 4
+    r = ds["volume_ratio"][j]
+    D = 10 ** _log_d_acid(3.5)
+    for k, n in enumerate(ds["portions"]):
+        expected = 100 * (1 - (1 / (1 + D * r)) ** n)
+        assert ds["recovery_lo_pct"][k][i][j] == pytest.approx(expected, rel=1e-5)
+    assert ds["procedures"][0]["volume_ratio"] == pytest.approx(0.4)
+    assert np.shape(ds["recovery_lo_pct"]) == (3, len(ds["pH"]), len(ds["volume_ratio"]))
