@@ -338,7 +338,28 @@ def fit_model(obs: Observations, model: LogDModel, simple_model: LogDModel | Non
         rss = 1e-300   # noise-free data: keep the statistics finite
     result = FitResult(model, obs, theta, rss, jac(theta), (lo, hi))
     _fill_parameters(result, intervals)
+    _correlation_warnings(result)
+    if model.ion_pair and intervals and result.parameters["logK_ion"].ci95.lo is None:
+        result.warnings.append(
+            "the runs cannot tell the ion-pair partition ratio K_I from zero (the lower end of "
+            "logK_ion is open): the simple model may serve as well")
     return result
+
+
+#: |r| above which two parameters are reported as strongly correlated
+STRONG_CORRELATION = 0.95
+
+
+def _correlation_warnings(fit: FitResult) -> None:
+    names = fit.model.params
+    c = fit.correlation
+    for i in range(len(names)):
+        for j in range(i + 1, len(names)):
+            if np.isfinite(c[i, j]) and abs(c[i, j]) > STRONG_CORRELATION:
+                fit.warnings.append(
+                    f"{names[i]} and {names[j]} are strongly correlated (r = {c[i, j]:+.3f}): "
+                    "the runs mostly determine a combination of the two; runs on both sides "
+                    "of the pKa separate them")
 
 
 def _fill_parameters(fit: FitResult, intervals: bool) -> None:

@@ -64,3 +64,44 @@ def simulated_study(study_id: str, model: str, theta, pH_values, procedures=(), 
                  ion_pair=kw.get("ion_pair", False),
                  system={"aqueous": "simulated buffer", "organic": "simulated solvent",
                          "temperature_C": 25})
+
+
+def write_study_folder(study: Study, folder, runs_name: str = "runs.csv") -> Path:
+    """Write a simulated Study as a study folder (study.yaml + CSV) for benchmarks and tests.
+
+    Only for simulated data: the tool itself never writes into a study folder.
+    """
+    import csv
+
+    import yaml
+
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    cols = ["run", "pH", "aqueous_mL", "organic_mL"]
+    fields = [("spiked", "spiked"), ("found_aqueous", "found_aqueous"),
+              ("found_organic", "found_organic"), ("recovery_pct", "recovery_pct")]
+    present = [c for c, a in fields if any(getattr(r, a) is not None for r in study.runs)]
+    cols += present + ["replicate", "excluded", "note"]
+    with open(folder / runs_name, "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh)
+        w.writerow(cols)
+        for r in study.runs:
+            vals = [r.run_id, repr(r.pH), repr(r.aqueous_mL), repr(r.organic_mL)]
+            vals += ["" if getattr(r, c) is None else repr(getattr(r, c)) for c in present]
+            vals += [r.replicate or "", r.excluded or "", r.note or ""]
+            w.writerow(vals)
+    doc = {
+        "title": study.title,
+        "analyte": {"name": study.analyte_name, "model": study.model},
+        "system": dict(study.system),
+        "runs": runs_name,
+        "targets": {k: (list(v) if isinstance(v, tuple) else v)
+                    for k, v in vars(study.targets).items() if v is not None},
+        "procedures": [{"id": p.id, "label": p.label, "pH": p.pH, "aqueous_mL": p.aqueous_mL,
+                        "organic_mL": list(p.organic_mL)} for p in study.procedures],
+    }
+    if not doc["targets"]:
+        del doc["targets"]
+    with open(folder / "study.yaml", "w", encoding="utf-8") as fh:
+        yaml.safe_dump(doc, fh, sort_keys=False)
+    return folder
