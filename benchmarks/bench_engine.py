@@ -70,8 +70,9 @@ def main() -> None:
           f"{one['fit_intervals_predictions_ms']:.0f} ms; with log D band, procedure design "
           f"and design-space map {one['with_band_design_map_ms']:.0f} ms (median)")
     many = time_cli()
-    print(f"`extractval fit --json` on {many['studies']} studies: {many['wall_s_including_startup']:.1f} s "
-          f"wall including start-up ({many['json_lines']} JSON lines, exit {many['exit']})")
+    print(f"`extractval fit --json` on {many['studies']} studies: "
+          f"{many['wall_s_including_startup']:.1f} s wall including start-up "
+          f"({many['json_lines']} JSON lines, exit {many['exit']})")
 
 
 if __name__ == "__main__":
