@@ -16,7 +16,8 @@ class Problem:
 
     ``severity`` is ``"error"`` (the study cannot be fitted) or ``"warning"`` (it can, but a
     person should look). ``line`` is a 1-based text line (CSV, YAML) and ``row`` a 1-based
-    sheet row (XLSX/ODS); at most one of them is set.
+    sheet row (XLSX/ODS); at most one of them is set. ``key`` is the dotted path of a
+    study.yaml key (``targets.recovery_pct``, ``procedures[2].pH``) when the problem is about one.
     """
 
     message: str
@@ -29,6 +30,7 @@ class Problem:
     found: str | None = None
     expected: str | None = None
     severity: str = "error"
+    key: str | None = None
 
     def where(self) -> str:
         """The place, e.g. ``studies/s1/runs.csv, line 5, run R3, column pH``."""
@@ -41,6 +43,8 @@ class Problem:
             parts.append(f"line {self.line}")
         if self.row is not None:
             parts.append(f"row {self.row}")
+        if self.key is not None:
+            parts.append(f"key {self.key!r}")
         if self.run is not None:
             parts.append(f"run {self.run!r}")
         if self.column is not None:
