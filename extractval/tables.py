@@ -1,0 +1,503 @@
+"""Read a runs table (CSV, XLSX or ODS) into rows that remember where they came from.
+
+The reader knows nothing of shake flasks: it finds the header, skips fully blank rows, turns
+number-looking cells into floats and keeps each cell's text as written, so that the study layer
+can say "line 7, column 'pH': found '7.2.5'". Problems are returned, never raised, and a file
+that cannot be read at all (binary, not UTF-8, a broken workbook) is one located problem.
+
+Rules for numbers
+-----------------
+* CSV: the separator is sniffed among ``,`` ``;`` and tab (an Excel ``sep=`` first line wins).
+  A file separated by ``;`` or tab whose cells hold numbers such as ``7,25`` uses the decimal
+  comma: there ``7,25`` reads 7.25, and a dotted ``7.25`` stays text (in such a file ``1.250``
+  may mean one thousand two hundred and fifty, so it is not guessed). In a ``,`` file, or a
+  ``;`` file without decimal commas, numbers use the decimal point.
+* Sheets: numeric cells are numbers; a cell formatted as a percentage is read as the percentage
+  it shows (0.95 shown as 95 % reads 95.0); text cells that spell a number with a decimal point
+  are numbers too; other text stays text. Booleans and dates stay text.
+* ``nan``, ``inf`` and thousands separators are never numbers.
+"""
+
+from __future__ import annotations
+
+import codecs
+import csv
+import hashlib
+import io
+import re
+from dataclasses import dataclass, field, replace
+from decimal import Decimal
+from pathlib import Path
+
+from .errors import Problem
+
+Cell = str | float | None
+
+#: CSV separators tried by the sniffer, in order of preference on a tie.
+SEPARATORS = (";", "\t", ",")
+#: File name endings the reader understands.
+EXTENSIONS = (".csv", ".xlsx", ".ods")
+
+_POINT_NUMBER = re.compile(r"^[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?$")
+_COMMA_NUMBER = re.compile(r"^[+-]?(?:\d+(?:,\d*)?|,\d+)(?:[eE][+-]?\d+)?$")
+_COMMA_DECIMAL = re.compile(r"^[+-]?\d*,\d+(?:[eE][+-]?\d+)?$")   # a comma is present
+_SEP_LINE = re.compile(r"^\s*sep=(.)\s*$", re.IGNORECASE)
+
+
+@dataclass(frozen=True)
+class Location:
+    """Where a record came from: a display path and a 1-based text line or sheet row."""
+
+    file: str
+    line: int | None = None
+    row: int | None = None
+    sheet: str | None = None
+
+    def where(self) -> dict:
+        return {k: v for k, v in
+                dict(file=self.file, line=self.line, row=self.row, sheet=self.sheet).items()
+                if v is not None}
+
+    def __str__(self) -> str:
+        return Problem("", **self.where()).where()
+
+
+@dataclass(frozen=True)
+class TableRow:
+    """One non-blank data row.
+
+    ``cells`` maps each normalised column name (see :func:`normalise_header`) to a float, a
+    text or None (empty); ``text`` maps it to the cell as written ("" when empty), for messages
+    and for text columns such as run ids (a sheet's 7 is "7", never "7.0").
+    """
+
+    cells: dict[str, Cell]
+    location: Location
+    text: dict[str, str] = field(default_factory=dict)
+
+    def raw(self, column: str) -> str:
+        return self.text.get(column, "")
+
+
+@dataclass(frozen=True)
+class Table:
+    """A runs table: normalised column names in file order, the header as written, the rows."""
+
+    file: str                          # display path
+    columns: tuple[str, ...]           # normalised names, in the order of the file
+    rows: tuple[TableRow, ...]
+    header_location: Location
+    headers: dict[str, str] = field(default_factory=dict)   # normalised -> as written
+    kind: str = "csv"                  # "csv" | "xlsx" | "ods"
+    separator: str | None = None       # CSV only
+    decimal_comma: bool = False        # CSV only
+    sheet: str | None = None           # sheets only
+    sha256: str | None = None          # of the file's bytes
+
+    def header(self, column: str) -> str:
+        """The header as the file spells it (``PH`` stays ``PH``), else the given name."""
+        return self.headers.get(column, column)
+
+
+def normalise_header(name: str) -> str:
+    """Header names match case-insensitively with surrounding spaces ignored.
+
+    >>> normalise_header("  pH "), normalise_header("Found_Organic")
+    ('ph', 'found_organic')
+    """
+    return name.strip().lower()
+
+
+def parse_number(text: str, decimal_comma: bool = False) -> float | None:
+    """The number a cell spells, or None when it spells none (text, nan, thousands marks).
+
+    >>> parse_number("7,25", decimal_comma=True), parse_number("7,25"), parse_number("-1e-3")
+    (7.25, None, -0.001)
+    >>> parse_number("7.25", decimal_comma=True), parse_number("nan")
+    (None, None)
+    """
+    s = text.strip()
+    if decimal_comma:
+        if not _COMMA_NUMBER.match(s):
+            return None
+        s = s.replace(",", ".")
+    elif not _POINT_NUMBER.match(s):
+        return None
+    return float(s)
+
+
+def format_number(value: float) -> str:
+    """A sheet's number as people read it: 7 not 7.0, 7.25 as 7.25.
+
+    >>> format_number(7.0), format_number(7.25), format_number(1e-05)
+    ('7', '7.25', '1e-05')
+    """
+    if value == int(value) and abs(value) < 1e15:
+        return str(int(value))
+    return repr(float(value))
+
+
+def read_table(path, display: str | None = None,
+               sheet: str | None = None) -> tuple[Table | None, list[Problem]]:
+    """Read ``path`` by its extension; return the table (None if unreadable) and the problems.
+
+    ``display`` is the path shown in messages (default: ``path`` as given); ``sheet`` picks a
+    sheet by name in a workbook (default: the first). Never raises for bad content.
+    """
+    path = Path(path)
+    shown = display if display is not None else str(path)
+    ext = path.suffix.lower()
+    if ext not in EXTENSIONS:
+        return None, [Problem("unsupported runs table type", file=shown, found=path.suffix or
+                              "(no extension)", expected=", ".join(EXTENSIONS))]
+    try:
+        data = path.read_bytes()
+    except OSError as exc:
+        return None, [Problem(f"cannot read the runs table: {exc.strerror or exc}", file=shown)]
+    digest = hashlib.sha256(data).hexdigest()
+    problems: list[Problem] = []
+    if ext == ".csv":
+        if sheet is not None:
+            problems.append(Problem("a sheet name was given but the runs table is a CSV file; "
+                                    "the sheet name is ignored", file=shown, found=sheet,
+                                    expected="no sheet for a CSV file", severity="warning"))
+        table, more = read_csv_bytes(data, shown)
+    elif ext == ".xlsx":
+        table, more = _read_xlsx(data, shown, sheet)
+    else:
+        table, more = _read_ods(data, shown, sheet)
+    problems.extend(more)
+    if table is not None:
+        table = replace(table, sha256=digest)
+    return table, problems
+
+
+# -- CSV ------------------------------------------------------------------------------------------
+
+def _not_text(shown: str, why: str, line: int | None = None) -> Problem:
+    return Problem(f"not a text table: {why}", file=shown, line=line,
+                   expected="a CSV text file in UTF-8 (e.g. 'CSV UTF-8' from a spreadsheet), "
+                            "or an .xlsx/.ods workbook")
+
+
+def decode_text(data: bytes, shown: str) -> tuple[str | None, list[Problem]]:
+    """UTF-8 text (a leading BOM dropped), or a located 'not a text table' problem."""
+    if data.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
+        return None, [_not_text(shown, "the file is UTF-16 encoded ('Unicode text')")]
+    if data.startswith(b"PK\x03\x04"):
+        return None, [_not_text(shown, "the file is a zip archive, probably a workbook saved "
+                                       "under a .csv name")]
+    nul = data.find(b"\x00")
+    if nul >= 0:
+        return None, [_not_text(shown, f"binary content (a NUL byte at byte {nul})",
+                                line=data.count(b"\n", 0, nul) + 1)]
+    try:
+        return data.decode("utf-8-sig"), []
+    except UnicodeDecodeError as exc:
+        line = data.count(b"\n", 0, exc.start) + 1
+        return None, [_not_text(shown, f"byte {exc.start} (0x{data[exc.start]:02x}) is not "
+                                       "valid UTF-8", line=line)]
+
+
+def _sniff_separator(lines: list[str]) -> str:
+    """The separator that splits the header into most fields, data rows agreeing on a tie."""
+    best, best_score = ",", (0, 0)
+    for sep in SEPARATORS:
+        rows = list(csv.reader(lines, delimiter=sep))
+        rows = [r for r in rows if any(c.strip() for c in r)]
+        if not rows:
+            continue
+        width = len(rows[0])
+        agree = sum(len(r) == width for r in rows[1:])
+        score = (width, agree)
+        if width > 1 and score > best_score:
+            best, best_score = sep, score
+    return best
+
+
+def read_csv_bytes(data: bytes, shown: str) -> tuple[Table | None, list[Problem]]:
+    """Parse CSV bytes; lines are 1-based physical lines (a BOM or ``sep=`` line counts)."""
+    text, problems = decode_text(data, shown)
+    if text is None:
+        return None, problems
+    lines = text.splitlines(keepends=True)
+    first_data = 0
+    separator = None
+    if lines:
+        m = _SEP_LINE.match(lines[0])
+        if m and m.group(1) in SEPARATORS:
+            separator, first_data = m.group(1), 1
+    body = lines[first_data:]
+    if separator is None:
+        separator = _sniff_separator(body[:50])
+
+    records: list[tuple[int, list[str]]] = []
+    # strict: a quote left open must not swallow the rest of the file into one cell
+    reader = csv.reader(io.StringIO("".join(body), newline=""), delimiter=separator,
+                        strict=True)
+    previous = 0
+    try:
+        for fields in reader:
+            records.append((first_data + previous + 1, [f.strip() for f in fields]))
+            previous = reader.line_num
+    except csv.Error as exc:
+        problems.append(Problem(f"the CSV cannot be parsed in the row starting here: {exc}",
+                                file=shown, line=first_data + previous + 1,
+                                expected="well-formed CSV: a quoted cell closes its quote, "
+                                         f"and is followed by {separator!r} or the line end"))
+        return None, problems
+
+    decimal_comma = separator != "," and any(
+        _COMMA_DECIMAL.match(c) for _, fields in records for c in fields)
+    hint = (": a decimal comma in a ','-separated file splits a number in two; separate "
+            "the cells with ';', or quote such numbers" if separator == "," else "")
+    table, more = _build(records, shown, kind="csv",
+                         convert=lambda s: _convert_text(s, decimal_comma),
+                         located=lambda n: Location(shown, line=n), surplus_hint=hint)
+    problems.extend(more)
+    if table is None:
+        return None, problems
+    return replace(table, separator=separator, decimal_comma=decimal_comma), problems
+
+
+def _convert_text(s: str, decimal_comma: bool) -> tuple[Cell, str]:
+    if s == "":
+        return None, ""
+    number = parse_number(s, decimal_comma)
+    return (s if number is None else number), s
+
+
+# -- shared: header, blank rows, cells beyond the header -----------------------------------------
+
+def _build(records, shown: str, *, kind: str, convert, located, sheet: str | None = None,
+           surplus_hint: str = "") -> tuple[Table | None, list[Problem]]:
+    """Turn (line-or-row number, raw cells) records into a Table.
+
+    ``convert`` maps one raw cell to (value, text); ``located`` maps a number to a Location;
+    ``surplus_hint`` is added to the message about data beyond the header's last column.
+    """
+    problems: list[Problem] = []
+    converted = []
+    for number, raw in records:
+        cells = [convert(c) for c in raw]
+        if any(v is not None for v, _ in cells):
+            converted.append((number, cells))
+    if not converted:
+        where = {k: v for k, v in located(1).where().items() if k in ("file", "sheet")}
+        problems.append(Problem("the runs table is empty: no header row", **where,
+                                expected="a header row naming the columns, then one row per run"))
+        return None, problems
+
+    header_no, header_cells = converted[0]
+    header_loc = located(header_no)
+    names: list[str | None] = []
+    headers: dict[str, str] = {}
+    for value, text in header_cells:
+        if value is None:
+            names.append(None)
+            continue
+        name = normalise_header(text)
+        if name in headers:
+            problems.append(Problem("the same column appears twice in the header",
+                                    **header_loc.where(), column=text,
+                                    found=f"{headers[name]!r} and {text!r}",
+                                    expected="each column once (names ignore case and spaces)"))
+            names.append(None)
+            continue
+        headers[name] = text
+        names.append(name)
+
+    rows: list[TableRow] = []
+    reported_unnamed: set[int] = set()
+    for number, cells in converted[1:]:
+        loc = located(number)
+        values: dict[str, Cell] = {n: None for n in headers}
+        texts: dict[str, str] = {n: "" for n in headers}
+        for i, (value, text) in enumerate(cells):
+            name = names[i] if i < len(names) else None
+            if name is None:
+                if value is not None and i not in reported_unnamed:
+                    reported_unnamed.add(i)
+                    beyond = i >= len(names)
+                    problems.append(Problem(
+                        ("the row has more cells than the header has names" + surplus_hint
+                         if beyond else "a cell holds data in a column without a header")
+                        + " (reported once per column)", **loc.where(),
+                        column=_column_label(kind, i), found=text,
+                        expected="a header name above every column that holds data"))
+                continue
+            values[name], texts[name] = value, text
+        rows.append(TableRow(values, loc, texts))
+    table = Table(shown, tuple(headers), tuple(rows), header_loc, headers, kind, sheet=sheet)
+    return table, problems
+
+
+def _column_label(kind: str, index: int) -> str:
+    """'field 5' for CSV, the spreadsheet letter ('E') for sheets."""
+    if kind == "csv":
+        return f"field {index + 1}"
+    letters, n = "", index + 1
+    while n:
+        n, rem = divmod(n - 1, 26)
+        letters = chr(65 + rem) + letters
+    return letters
+
+
+# -- XLSX -----------------------------------------------------------------------------------------
+
+def _sheet_cell(value, number_format: str | None) -> tuple[Cell, str]:
+    """(value, text) of a sheet cell; see the module docstring for the rules."""
+    if value is None:
+        return None, ""
+    if isinstance(value, bool):
+        return ("TRUE" if value else "FALSE"), ("TRUE" if value else "FALSE")
+    if isinstance(value, (int, float)):
+        v = float(value)
+        if v != v or v in (float("inf"), float("-inf")):
+            return str(value), str(value)
+        if number_format and "%" in number_format:
+            pct = float(Decimal(repr(v)) * 100)
+            return pct, f"{format_number(pct)} %"
+        return v, format_number(v)
+    if hasattr(value, "isoformat"):
+        text = value.isoformat()
+        return text, text
+    text = str(value).strip()
+    if text == "":
+        return None, ""
+    number = parse_number(text)
+    return (text if number is None else number), text
+
+
+def _pick_sheet(names: list[str], sheet: str | None,
+                shown: str) -> tuple[int | None, Problem | None]:
+    if not names:
+        return None, Problem("the workbook has no worksheet", file=shown,
+                             expected="a worksheet holding the runs table")
+    if sheet is None:
+        return 0, None
+    if sheet in names:
+        return names.index(sheet), None
+    folded = [n for n in names if n.casefold() == sheet.casefold()]
+    if len(folded) == 1:
+        return names.index(folded[0]), None
+    return None, Problem("no sheet of that name in the workbook", file=shown, found=sheet,
+                         expected="one of " + ", ".join(repr(n) for n in names))
+
+
+def _read_xlsx(data: bytes, shown: str, sheet: str | None) -> tuple[Table | None, list[Problem]]:
+    import openpyxl
+
+    try:
+        wb = openpyxl.load_workbook(io.BytesIO(data), read_only=True, data_only=True)
+    except Exception as exc:   # a corrupt workbook can fail anywhere inside the parser
+        return None, [Problem(f"not a readable XLSX workbook ({type(exc).__name__}: {exc})",
+                              file=shown, expected="an .xlsx workbook saved by a spreadsheet")]
+    try:
+        names = [ws.title for ws in wb.worksheets]
+        index, problem = _pick_sheet(names, sheet, shown)
+        if problem:
+            return None, [problem]
+        ws = wb.worksheets[index]
+        ws.reset_dimensions()   # some writers store wrong dimensions; read every row
+        records = []
+        try:
+            for number, cells in enumerate(ws.iter_rows(min_row=1), start=1):
+                row = [(c.value, getattr(c, "number_format", None)) for c in cells]
+                if row:
+                    number = next((c.row for c in cells if getattr(c, "row", None)), number)
+                    records.append((number, row))
+        except Exception as exc:   # broken sheet XML surfaces only while iterating
+            return None, [Problem(f"not a readable XLSX workbook ({type(exc).__name__}: {exc})",
+                                  file=shown, sheet=names[index],
+                                  expected="an .xlsx workbook saved by a spreadsheet")]
+    finally:
+        wb.close()
+    title = names[index]
+    return _build(records, shown, kind="xlsx", convert=lambda c: _sheet_cell(*c),
+                  located=lambda n: Location(shown, row=n, sheet=title), sheet=title)
+
+
+# -- ODS ------------------------------------------------------------------------------------------
+
+#: Repeated empty cells and rows are common at the end of a sheet (a million of them): empty
+#: rows only advance the row count, and cells are expanded up to this many columns.
+_MAX_COLUMNS = 1024
+
+
+def _ods_cell(cell) -> tuple[Cell, str]:
+    from odf import teletype
+    from odf.namespaces import OFFICENS, TEXTNS
+
+    vtype = cell.getAttrNS(OFFICENS, "value-type")
+    paragraphs = [n for n in cell.childNodes
+                  if getattr(n, "qname", None) == (TEXTNS, "p")]
+    text = "\n".join(teletype.extractText(p) for p in paragraphs).strip()
+    if vtype in ("float", "currency", "percentage"):
+        raw = cell.getAttrNS(OFFICENS, "value")
+        try:
+            v = float(raw)
+        except (TypeError, ValueError):
+            return (text or raw), (text or str(raw))
+        if vtype == "percentage":
+            return _sheet_cell(v, "0%")
+        return _sheet_cell(v, None)
+    if vtype == "boolean":
+        flag = cell.getAttrNS(OFFICENS, "boolean-value") == "true"
+        return _sheet_cell(flag, None)
+    if vtype in ("date", "time"):
+        raw = cell.getAttrNS(OFFICENS, f"{vtype}-value") or text
+        return (raw or None), raw
+    return _sheet_cell(text, None)
+
+
+def _ods_rows(node):
+    """Table rows in document order, through header-row and row-group wrappers."""
+    from odf.namespaces import TABLENS
+
+    for child in node.childNodes:
+        qname = getattr(child, "qname", None)
+        if qname == (TABLENS, "table-row"):
+            yield child
+        elif qname in ((TABLENS, "table-header-rows"), (TABLENS, "table-row-group"),
+                       (TABLENS, "table-rows")):
+            yield from _ods_rows(child)
+
+
+def _read_ods(data: bytes, shown: str, sheet: str | None) -> tuple[Table | None, list[Problem]]:
+    from odf.namespaces import TABLENS
+    from odf.opendocument import load
+
+    try:
+        doc = load(io.BytesIO(data))
+        tables = [t for t in doc.spreadsheet.childNodes
+                  if getattr(t, "qname", None) == (TABLENS, "table")]
+    except Exception as exc:   # odfpy raises zip, XML and attribute errors on broken files
+        return None, [Problem(f"not a readable ODS spreadsheet ({type(exc).__name__}: {exc})",
+                              file=shown, expected="an .ods spreadsheet saved by a spreadsheet")]
+    names = [t.getAttrNS(TABLENS, "name") or f"Sheet{i + 1}" for i, t in enumerate(tables)]
+    index, problem = _pick_sheet(names, sheet, shown)
+    if problem:
+        return None, [problem]
+    records = []
+    number = 0
+    for row in _ods_rows(tables[index]):
+        repeat = int(row.getAttrNS(TABLENS, "number-rows-repeated") or 1)
+        cells: list[tuple[Cell, str]] = []
+        for cell in row.childNodes:
+            if getattr(cell, "qname", None) not in ((TABLENS, "table-cell"),
+                                                    (TABLENS, "covered-table-cell")):
+                continue
+            value = _ods_cell(cell)
+            times = int(cell.getAttrNS(TABLENS, "number-columns-repeated") or 1)
+            times = min(times, max(0, _MAX_COLUMNS - len(cells)))
+            cells.extend([value] * times)
+        while cells and cells[-1][0] is None:
+            cells.pop()
+        if cells:
+            for k in range(repeat):
+                records.append((number + k + 1, cells))
+        number += repeat
+    title = names[index]
+    return _build(records, shown, kind="ods", convert=lambda c: c,
+                  located=lambda n: Location(shown, row=n, sheet=title), sheet=title)
