@@ -1,0 +1,1015 @@
+"""Study, Run, Procedure and Targets records, and :func:`load_study` that reads and validates them.
+
+Records hold what the files say, nothing derived beyond one-line definitions (e.g. a run's
+mass balance). Reading never writes into the study folder.
+
+Reading rules
+-------------
+* Every problem is reported, located (file, line or sheet row, YAML key, run, column) with what
+  was found and what is expected; :func:`check_study` returns them, :func:`load_study` raises
+  :class:`~extractval.errors.StudyError` when one of them is an error.
+* study.yaml is read with ``yaml.SafeLoader``. Unknown keys are errors (a misspelt key must
+  not drop data silently), so are keys given twice. Text values are kept exactly as written:
+  ``title: 2026`` is the text "2026".
+* Measurement forms, row by row: a row must hold exactly one complete form among
+  ``spiked`` + ``found_aqueous`` + ``found_organic`` (both phases), ``spiked`` + one found
+  amount (one phase; the other found cell empty), or ``recovery_pct`` alone. Cells of a form
+  are filled or empty as a whole: a spiked amount without any found amount, a found amount
+  without the spiked one, or recovery_pct beside amounts is an error naming the cells. A table
+  may mix forms between rows when it has the columns.
+* A run with a reason in ``excluded`` is kept (and reported) but not fitted: its filled cells
+  must still be numbers in range, but it needs no complete form and the plausibility limits
+  below do not apply to it (an implausible value is often why it was excluded).
+* Plausibility, in percent of the spiked amount: found amounts (or recovery_pct) above 150 %
+  are errors; with both phases measured a mass balance outside 90-110 % is a warning; one
+  phase (or recovery_pct) above 110 % is a warning.
+* Columns that the contract does not know are warnings (ignored), unless they look like a
+  misspelling of a known column, which is an error.
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import math
+import os
+import re
+from dataclasses import dataclass, field
+from pathlib import Path, PurePosixPath, PureWindowsPath
+
+import yaml
+
+from .errors import Problem, StudyError
+from .tables import EXTENSIONS, Location, Table, TableRow, decode_text, parse_number, read_table
+
+__all__ = ["MODELS", "InputFile", "Location", "Procedure", "Run", "Study", "Targets",
+           "check_study", "discover_studies", "display_path", "load_study"]
+
+MODELS = ("neutral", "acid", "base", "ampholyte", "auto")
+
+
+@dataclass(frozen=True)
+class Run:
+    """One shake-flask run as recorded in the runs table.
+
+    Measurement forms: ``both`` (spiked, found_aqueous, found_organic), ``organic`` or
+    ``aqueous`` (spiked and one found amount), ``recovery`` (recovery_pct in the organic phase);
+    ``none`` only for an excluded run that records no found amount.
+    """
+
+    run_id: str
+    pH: float
+    aqueous_mL: float
+    organic_mL: float
+    location: Location
+    spiked: float | None = None
+    found_aqueous: float | None = None
+    found_organic: float | None = None
+    recovery_pct: float | None = None
+    replicate: str | None = None
+    excluded: str | None = None      # the reason, when the run is excluded from the fit
+    note: str | None = None
+
+    @property
+    def measurement(self) -> str:
+        if self.recovery_pct is not None:
+            return "recovery"
+        if self.found_aqueous is None and self.found_organic is None:
+            return "none"
+        if self.found_aqueous is not None and self.found_organic is not None:
+            return "both"
+        return "organic" if self.found_organic is not None else "aqueous"
+
+    @property
+    def volume_ratio(self) -> float:
+        """Organic over aqueous volume, r = V_org / V_aq."""
+        return self.organic_mL / self.aqueous_mL
+
+    @property
+    def mass_balance_pct(self) -> float | None:
+        """Found over spiked, in percent, when both phases were measured; else None."""
+        if self.measurement != "both" or not self.spiked:
+            return None
+        return 100.0 * (self.found_aqueous + self.found_organic) / self.spiked
+
+
+@dataclass(frozen=True)
+class Procedure:
+    """A proposed extraction: one aqueous volume at one pH, then fresh organic portions in turn."""
+
+    id: str
+    label: str
+    pH: float
+    aqueous_mL: float
+    organic_mL: tuple[float, ...]
+    pH_tolerance: float = 0.2
+    volume_tolerance_pct: float = 2.0
+    line: int | None = None
+
+    @property
+    def total_organic_mL(self) -> float:
+        return float(sum(self.organic_mL))
+
+
+@dataclass(frozen=True)
+class Targets:
+    """Acceptance criteria from ``targets:``; None where the study names none."""
+
+    recovery_pct: float | None = None
+    max_rsd_pct: float | None = None
+    mass_balance_pct: tuple[float, float] | None = None
+    ratio_agreement_log: float | None = None
+    level: str | None = None          # analyte level, e.g. "10 ppm", for AOAC limits
+
+
+@dataclass(frozen=True)
+class InputFile:
+    """An input file with its SHA-256, for provenance."""
+
+    path: str        # display path, relative to the studies root where possible
+    sha256: str
+    role: str        # "study" or "runs"
+
+
+@dataclass(frozen=True)
+class Study:
+    """Everything one study folder says, validated."""
+
+    study_id: str
+    folder: Path
+    title: str
+    analyte_name: str
+    model: str
+    runs: tuple[Run, ...]
+    procedures: tuple[Procedure, ...] = ()
+    targets: Targets = field(default_factory=Targets)
+    ion_pair: bool = False
+    system: dict = field(default_factory=dict)   # aqueous, organic, temperature_C (text/number)
+    inputs: tuple[InputFile, ...] = ()
+    warnings: tuple[Problem, ...] = ()            # located warnings found while reading
+
+    @property
+    def used_runs(self) -> tuple[Run, ...]:
+        return tuple(r for r in self.runs if not r.excluded)
+
+    @property
+    def excluded_runs(self) -> tuple[Run, ...]:
+        return tuple(r for r in self.runs if r.excluded)
+
+
+
+# ================================================================================================
+# Reading a study folder
+# ================================================================================================
+
+#: A study id is its folder name: it goes into URLs and number identifiers.
+STUDY_ID = re.compile(r"^[A-Za-z0-9_-]+$")
+#: A procedure id becomes a segment of number identifiers (``<study-id>/<procedure>/...``).
+PROCEDURE_ID = re.compile(r"^[A-Za-z0-9._-]+$")
+STUDY_FILE = "study.yaml"
+
+#: Plausibility of found amounts, in percent of the spiked amount (module docstring).
+IMPLAUSIBLE_PCT = 150.0
+MASS_BALANCE_BAND_PCT = (90.0, 110.0)
+ONE_PHASE_HIGH_PCT = 110.0
+
+_KEYS = {
+    "": ("title", "analyte", "system", "runs", "sheet", "targets", "procedures"),
+    "analyte": ("name", "model", "ion_pair", "level"),
+    "system": ("aqueous", "organic", "temperature_C"),
+    "targets": ("recovery_pct", "max_rsd_pct", "mass_balance_pct", "ratio_agreement_log",
+                "level"),
+    "procedure": ("id", "label", "pH", "aqueous_mL", "organic_mL", "pH_tolerance",
+                  "volume_tolerance_pct"),
+}
+
+#: Runs-table columns: normalised name -> the spelling used in messages and in this contract.
+COLUMNS = {
+    "run": "run", "ph": "pH", "aqueous_ml": "aqueous_mL", "organic_ml": "organic_mL",
+    "spiked": "spiked", "found_aqueous": "found_aqueous", "found_organic": "found_organic",
+    "recovery_pct": "recovery_pct", "replicate": "replicate", "excluded": "excluded",
+    "note": "note",
+}
+REQUIRED_COLUMNS = ("run", "ph", "aqueous_ml", "organic_ml")
+AMOUNT_COLUMNS = ("spiked", "found_aqueous", "found_organic")
+#: An ``excluded`` cell holds a reason; these read like a "keep" flag and are refused.
+_KEEP_FLAGS = {"no", "n", "false", "0", "-", "keep", "included"}
+_BARE_FLAGS = {"yes", "y", "true", "1", "x"}
+
+
+def display_path(path) -> str:
+    """``path`` relative to the working directory when it lies below it, else as given.
+
+    >>> display_path(Path.cwd() / "studies" / "s1" / "runs.csv")
+    'studies/s1/runs.csv'
+    """
+    p = Path(path)
+    try:
+        return Path(os.path.abspath(p)).relative_to(Path.cwd()).as_posix()
+    except ValueError:
+        return str(p)
+
+
+def _sha256(data: bytes) -> str:
+    return hashlib.sha256(data).hexdigest()
+
+
+def _suggest(word: str, allowed) -> str:
+    close = difflib.get_close_matches(word, list(allowed), n=1, cutoff=0.6)
+    return f" (did you mean {close[0]!r}?)" if close else ""
+
+
+class _Yaml:
+    """Typed access to a composed study.yaml, reporting every problem with its line."""
+
+    def __init__(self, file: str, problems: list[Problem]):
+        self.file = file
+        self.problems = problems
+        self._loader = yaml.SafeLoader("")
+        self._key_line: dict[int, int] = {}   # id(value node) -> line of its key
+
+    @staticmethod
+    def line(node) -> int:
+        return node.start_mark.line + 1
+
+    def report(self, message: str, node, key: str | None, severity: str = "error",
+               **kw) -> None:
+        self.problems.append(Problem(message, file=self.file, line=self.line(node), key=key or None,
+                                     severity=severity, **kw))
+
+    def construct(self, node, key: str):
+        try:
+            return self._loader.construct_object(node, deep=True)
+        except yaml.YAMLError as exc:
+            self.report(f"this value cannot be read: {getattr(exc, 'problem', exc)}", node, key,
+                        found=getattr(node, "value", None) if isinstance(node, yaml.ScalarNode)
+                        else None, expected="a plain YAML value")
+            return _BAD
+
+    def mapping(self, node, key: str, allowed: tuple[str, ...],
+                what: str) -> dict[str, tuple] | None:
+        """{name: (key_node, value_node)}; unknown, duplicate and non-text keys reported."""
+        if not isinstance(node, yaml.MappingNode):
+            self.report(f"{what} must be a mapping of keys to values", node, key,
+                        found=_node_kind(node), expected="keys: " + ", ".join(allowed))
+            return None
+        entries: dict[str, tuple] = {}
+        for k_node, v_node in node.value:
+            name = k_node.value if isinstance(k_node, yaml.ScalarNode) else None
+            path = f"{key}.{name}" if key else str(name)
+            if name is None or k_node.tag != "tag:yaml.org,2002:str":
+                self.report(f"a key in {what} is not a name", k_node, key,
+                            found=name if name is not None else _node_kind(k_node),
+                            expected="one of " + ", ".join(allowed))
+                continue
+            if name not in allowed:
+                self.report(f"unknown key {name!r} in {what}{_suggest(name, allowed)}; a "
+                            "misspelt key would silently drop data, so it is refused", k_node,
+                            path, found=name, expected="one of " + ", ".join(allowed))
+                continue
+            if name in entries:
+                self.report(f"key {name!r} appears twice in {what} (YAML would keep only the "
+                            f"last; the first is on line {self.line(entries[name][0])})", k_node,
+                            path, found=name, expected="each key once")
+                continue
+            entries[name] = (k_node, v_node)
+            self._key_line[id(v_node)] = self.line(k_node)
+        return entries
+
+    def missing(self, node, key: str, name: str, expected: str) -> None:
+        """Reported on the line of the mapping's own key (``analyte:``), else where it starts."""
+        line = self._key_line.get(id(node), self.line(node))
+        self.problems.append(Problem(f"missing key {name!r}", file=self.file, line=line,
+                                     key=f"{key}.{name}" if key else name, expected=expected))
+
+    def text(self, entries, node, key: str, name: str, *, required: bool = True,
+             expected: str = "text") -> str | None:
+        """A text value exactly as written (``title: 2026`` is the text '2026')."""
+        path = f"{key}.{name}" if key else name
+        if name not in entries or _is_null(entries[name][1]):
+            if required:
+                self.missing(node if name not in entries else entries[name][1], key, name,
+                             expected)
+            return None
+        v_node = entries[name][1]
+        if not isinstance(v_node, yaml.ScalarNode):
+            self.report(f"{name!r} must be text", v_node, path, found=_node_kind(v_node),
+                        expected=expected)
+            return None
+        if v_node.value.strip() == "":
+            if required:
+                self.report(f"{name!r} is empty", v_node, path, found="", expected=expected)
+            return None
+        return v_node.value
+
+    def number(self, entries, node, key: str, name: str, *, required: bool = True,
+               check=None, expected: str = "a number") -> float | None:
+        """A finite number; ``check(value)`` returns None or the expectation it misses."""
+        path = f"{key}.{name}" if key else name
+        if name not in entries or _is_null(entries[name][1]):
+            if required:
+                self.missing(node if name not in entries else entries[name][1], key, name,
+                             expected)
+            return None
+        v_node = entries[name][1]
+        return self._number_node(v_node, path, name, check, expected)
+
+    def _number_node(self, v_node, path: str, name: str, check, expected: str) -> float | None:
+        value = self.construct(v_node, path) if isinstance(v_node, yaml.ScalarNode) else _BAD
+        if value is _BAD and not isinstance(v_node, yaml.ScalarNode):
+            self.report(f"{name!r} must be a number", v_node, path, found=_node_kind(v_node),
+                        expected=expected)
+            return None
+        if value is _BAD:
+            return None
+        if isinstance(value, str) and v_node.style is None:
+            value = parse_number(value) if parse_number(value) is not None else value
+        if isinstance(value, bool) or not isinstance(value, (int, float)) \
+                or not math.isfinite(value):
+            quoted = " (without quotes)" if v_node.style in ("'", '"') else ""
+            self.report(f"{name!r} must be a number", v_node, path, found=v_node.value,
+                        expected=expected + quoted)
+            return None
+        value = float(value)
+        if check is not None:
+            miss = check(value)
+            if miss:
+                self.report(f"{name!r} is out of range", v_node, path, found=v_node.value,
+                            expected=miss)
+                return None
+        return value
+
+    def boolean(self, entries, key: str, name: str, default: bool) -> bool:
+        path = f"{key}.{name}" if key else name
+        if name not in entries or _is_null(entries[name][1]):
+            return default
+        v_node = entries[name][1]
+        value = self.construct(v_node, path) if isinstance(v_node, yaml.ScalarNode) else _BAD
+        if not isinstance(value, bool):
+            self.report(f"{name!r} must be true or false", v_node, path,
+                        found=v_node.value if isinstance(v_node, yaml.ScalarNode)
+                        else _node_kind(v_node), expected="true or false")
+            return default
+        return value
+
+
+_BAD = object()
+
+
+def _is_null(node) -> bool:
+    return isinstance(node, yaml.ScalarNode) and node.tag == "tag:yaml.org,2002:null"
+
+
+def _node_kind(node) -> str:
+    if isinstance(node, yaml.MappingNode):
+        return "a mapping"
+    if isinstance(node, yaml.SequenceNode):
+        return "a list"
+    return repr(node.value) if isinstance(node, yaml.ScalarNode) else type(node).__name__
+
+
+def _positive(value: float) -> str | None:
+    return None if value > 0 else "a number greater than 0"
+
+
+def _ph(value: float) -> str | None:
+    return None if 0.0 <= value <= 14.0 else "a pH from 0 to 14"
+
+
+def _percent_target(value: float) -> str | None:
+    return None if 0.0 < value <= 100.0 else "a percentage above 0 and at most 100"
+
+
+def _non_negative(value: float) -> str | None:
+    return None if value >= 0 else "a number of at least 0"
+
+
+def _volume_tolerance(value: float) -> str | None:
+    return None if 0.0 <= value < 100.0 else "a percentage from 0 to below 100"
+
+
+def _compose(text: str, shown: str, problems: list[Problem]):
+    """The YAML node tree, or None with a located problem (the mark's line)."""
+    try:
+        return yaml.compose(text, Loader=yaml.SafeLoader)
+    except yaml.MarkedYAMLError as exc:
+        mark = exc.problem_mark or exc.context_mark
+        what = " ".join(x for x in (exc.context, exc.problem) if x)
+        if exc.context_mark is not None and mark is not None and mark.index >= len(text) - 1:
+            # an unclosed quote or bracket is noticed only at the end; point at its start
+            what += f" (at the end of the file, line {mark.line + 1})"
+            mark = exc.context_mark
+        line = mark.line + 1 if mark is not None else None
+        lines = text.splitlines()
+        found = lines[line - 1].strip() if line and line <= len(lines) else None
+        problems.append(Problem(f"invalid YAML: {what}", file=shown, line=line, found=found,
+                                expected="valid YAML: 'key: value' lines, spaces (not tabs) for "
+                                         "indentation, quotes closed"))
+    except yaml.YAMLError as exc:   # ReaderError: a character YAML does not allow
+        position = getattr(exc, "position", None)
+        line = text.count("\n", 0, position) + 1 if position is not None else None
+        problems.append(Problem(f"invalid YAML: {exc}", file=shown, line=line,
+                                expected="printable text"))
+    return None
+
+
+def _runs_path(doc: _Yaml, entries, root, folder: Path) -> Path | None:
+    """The runs table's path inside the study folder, refusing escapes and odd types."""
+    text = doc.text(entries, root, "", "runs",
+                    expected="the runs table's file name inside the study folder, e.g. runs.csv")
+    if text is None:
+        return None
+    node = entries["runs"][1]
+    expected = "a relative path inside the study folder, ending in " + ", ".join(EXTENSIONS)
+    posix = text.strip().replace("\\", "/")
+    if PurePosixPath(posix).is_absolute() or PureWindowsPath(text).drive or posix.startswith("~"):
+        doc.report("the runs path must be relative to the study folder", node, "runs",
+                   found=text, expected=expected)
+        return None
+    if ".." in PurePosixPath(posix).parts:
+        doc.report("the runs path must not leave the study folder ('..')", node, "runs",
+                   found=text, expected=expected)
+        return None
+    if PurePosixPath(posix).suffix.lower() not in EXTENSIONS:
+        doc.report("unsupported runs table type", node, "runs", found=text, expected=expected)
+        return None
+    path = folder / posix
+    inside = folder.resolve()
+    try:
+        resolved = path.resolve()
+    except (OSError, RuntimeError) as exc:   # a symlink loop
+        doc.report(f"the runs path cannot be resolved ({exc})", node, "runs", found=text,
+                   expected=expected)
+        return None
+    if resolved != inside and inside not in resolved.parents:
+        doc.report("the runs path leads outside the study folder (through a symbolic link)",
+                   node, "runs", found=text, expected=expected)
+        return None
+    if not path.exists():
+        doc.report("the runs table does not exist", node, "runs", found=display_path(path),
+                   expected=expected)
+        return None
+    if not path.is_file():
+        doc.report("the runs path is not a file", node, "runs", found=display_path(path),
+                   expected=expected)
+        return None
+    return path
+
+
+def _targets(doc: _Yaml, entries) -> tuple[Targets, str | None]:
+    if "targets" not in entries or _is_null(entries["targets"][1]):
+        return Targets(), None
+    node = entries["targets"][1]
+    t = doc.mapping(node, "targets", _KEYS["targets"], "targets")
+    if t is None:
+        return Targets(), None
+    band = None
+    if "mass_balance_pct" in t and not _is_null(t["mass_balance_pct"][1]):
+        band = _band(doc, t["mass_balance_pct"][1])
+    level = _level(doc, t, node, "targets")
+    targets = Targets(
+        recovery_pct=doc.number(t, node, "targets", "recovery_pct", required=False,
+                                check=_percent_target, expected="a recovery in %, e.g. 95"),
+        max_rsd_pct=doc.number(t, node, "targets", "max_rsd_pct", required=False,
+                               check=_positive, expected="a relative standard deviation in %"),
+        mass_balance_pct=band,
+        ratio_agreement_log=doc.number(t, node, "targets", "ratio_agreement_log",
+                                       required=False, check=_positive,
+                                       expected="a spread in log units, e.g. 0.3"),
+    )
+    return targets, level
+
+
+def _band(doc: _Yaml, node) -> tuple[float, float] | None:
+    key = "targets.mass_balance_pct"
+    expected = "two percentages [low, high] with low < high, e.g. [90, 110]"
+    if not isinstance(node, yaml.SequenceNode) or len(node.value) != 2:
+        doc.report("'mass_balance_pct' must be a pair of percentages", node, key,
+                   found=_node_kind(node) if not isinstance(node, yaml.SequenceNode)
+                   else f"a list of {len(node.value)}", expected=expected)
+        return None
+    lo, hi = (doc._number_node(n, key, "mass_balance_pct", _non_negative, expected)
+              for n in node.value)
+    if lo is None or hi is None:
+        return None
+    if not lo < hi:
+        doc.report("'mass_balance_pct' must go from low to high", node, key,
+                   found=f"[{lo:g}, {hi:g}]", expected=expected)
+        return None
+    return lo, hi
+
+
+def _level(doc: _Yaml, entries, node, key: str) -> str | None:
+    level = doc.text(entries, node, key, "level", required=False, expected=_LEVEL_EXPECTED)
+    if level is not None and not _LEVEL.match(level):
+        doc.report("the analyte level does not start with a number", entries["level"][1],
+                   f"{key}.level", found=level, expected=_LEVEL_EXPECTED)
+        return None
+    return level
+
+
+_LEVEL_EXPECTED = "an analyte level: a number and a unit, e.g. '10 ppm', '0.1 %', '20 ug/kg'"
+_LEVEL = re.compile(r"^\s*[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?\s*\S*")
+
+
+def _analyte(doc: _Yaml, entries, root):
+    """(name, model, ion_pair, level) from ``analyte:``; Nones where missing or wrong."""
+    if "analyte" not in entries or _is_null(entries["analyte"][1]):
+        doc.missing(root, "", "analyte", "a mapping with name and model")
+        return None, None, False, None
+    node = entries["analyte"][1]
+    a = doc.mapping(node, "analyte", _KEYS["analyte"], "analyte")
+    if a is None:
+        return None, None, False, None
+    name = doc.text(a, node, "analyte", "name", expected="the analyte's name or code")
+    model = doc.text(a, node, "analyte", "model", expected="one of " + ", ".join(MODELS))
+    if model is not None and model not in MODELS:
+        doc.report(f"unknown model{_suggest(model, MODELS)}", a["model"][1], "analyte.model",
+                   found=model, expected="one of " + ", ".join(MODELS))
+        model = None
+    ion_pair = doc.boolean(a, "analyte", "ion_pair", False)
+    if ion_pair and model is not None and model not in ("acid", "base"):
+        doc.report("an ion pair needs a charged form of one sign: model acid or base",
+                   a["ion_pair"][1], "analyte.ion_pair", found=f"ion_pair: true with {model}",
+                   expected="model acid or base, or ion_pair: false")
+    level = _level(doc, a, node, "analyte")
+    return name, model, ion_pair, level
+
+
+def _system(doc: _Yaml, entries, root) -> dict:
+    if "system" not in entries or _is_null(entries["system"][1]):
+        doc.missing(root, "", "system", "a mapping with aqueous, organic and temperature_C")
+        return {}
+    node = entries["system"][1]
+    s = doc.mapping(node, "system", _KEYS["system"], "system")
+    if s is None:
+        return {}
+    out: dict = {}
+    for name, expected in (("aqueous", "the aqueous phase, e.g. '0.1 M phosphate buffer'"),
+                           ("organic", "the organic solvent, e.g. 'n-heptane'")):
+        value = doc.text(s, node, "system", name, expected=expected)
+        if value is not None:
+            out[name] = value
+    t = doc.number(s, node, "system", "temperature_C", check=_temperature,
+                   expected="the temperature in degrees Celsius, e.g. 25")
+    if t is not None:
+        out["temperature_C"] = t
+    return out
+
+
+def _temperature(value: float) -> str | None:
+    return None if -20.0 <= value <= 150.0 else "a temperature from -20 to 150 degrees Celsius"
+
+
+def _procedures(doc: _Yaml, entries) -> list[Procedure]:
+    if "procedures" not in entries or _is_null(entries["procedures"][1]):
+        return []
+    node = entries["procedures"][1]
+    if not isinstance(node, yaml.SequenceNode):
+        doc.report("'procedures' must be a list of procedures", node, "procedures",
+                   found=_node_kind(node), expected="a list of '- id: ...' entries")
+        return []
+    out: list[Procedure] = []
+    seen: dict[str, int] = {}
+    for i, item in enumerate(node.value, start=1):
+        key = f"procedures[{i}]"
+        p = doc.mapping(item, key, _KEYS["procedure"], f"procedure {i}")
+        if p is None:
+            continue
+        before = len([x for x in doc.problems if x.severity == "error"])
+        pid = doc.text(p, item, key, "id", expected="a procedure id: letters, digits, '.', "
+                                                   "'-', '_'")
+        if pid is not None and not PROCEDURE_ID.match(pid):
+            doc.report("a procedure id may hold only letters, digits, '.', '-' and '_' (it "
+                       "becomes part of number identifiers)", p["id"][1], f"{key}.id", found=pid,
+                       expected="e.g. P1")
+        elif pid is not None and pid in seen:
+            doc.report(f"duplicate procedure id (also on line {seen[pid]})", p["id"][1],
+                       f"{key}.id", found=pid, expected="a unique id per procedure")
+        elif pid is not None:
+            seen[pid] = doc.line(p["id"][1])
+        label = doc.text(p, item, key, "label", expected="a short description")
+        pH = doc.number(p, item, key, "pH", check=_ph, expected="a pH from 0 to 14")
+        aq = doc.number(p, item, key, "aqueous_mL", check=_positive,
+                        expected="the aqueous volume in mL, greater than 0")
+        org = _portions(doc, p, item, key)
+        tol_pH = doc.number(p, item, key, "pH_tolerance", required=False, check=_non_negative,
+                            expected="pH units, at least 0")
+        tol_v = doc.number(p, item, key, "volume_tolerance_pct", required=False,
+                           check=_volume_tolerance, expected="a percentage from 0 to below 100")
+        after = len([x for x in doc.problems if x.severity == "error"])
+        if after == before:
+            out.append(Procedure(pid, label, pH, aq, org,
+                                 0.2 if tol_pH is None else tol_pH,
+                                 2.0 if tol_v is None else tol_v, line=doc.line(item)))
+    return out
+
+
+def _portions(doc: _Yaml, p, item, key: str) -> tuple[float, ...] | None:
+    """organic_mL: one volume per successive portion (a single number is one portion)."""
+    path = f"{key}.organic_mL"
+    expected = "one organic volume in mL per portion, each above 0, e.g. [10, 10, 10]"
+    if "organic_mL" not in p or _is_null(p["organic_mL"][1]):
+        doc.missing(item, key, "organic_mL", expected)
+        return None
+    node = p["organic_mL"][1]
+    if isinstance(node, yaml.ScalarNode):
+        v = doc._number_node(node, path, "organic_mL", _positive, expected)
+        return None if v is None else (v,)
+    if not isinstance(node, yaml.SequenceNode):
+        doc.report("'organic_mL' must be a list of volumes", node, path,
+                   found=_node_kind(node), expected=expected)
+        return None
+    if not node.value:
+        doc.report("the procedure has no organic portions", node, path, found="[]",
+                   expected=expected)
+        return None
+    volumes = [doc._number_node(n, path, "organic_mL", _positive, expected) for n in node.value]
+    return None if any(v is None for v in volumes) else tuple(volumes)
+
+
+# -- the runs table -------------------------------------------------------------------------------
+
+class _RowReader:
+    """Checks one table row at a time; every problem goes to ``problems`` with its place."""
+
+    def __init__(self, table: Table, problems: list[Problem]):
+        self.table = table
+        self.problems = problems
+        hint = (" with a decimal comma, as elsewhere in this file (e.g. 7,25)"
+                if table.decimal_comma else "")
+        if table.kind != "csv":
+            hint = " (a number cell, or text with a decimal point)"
+        self.number_hint = hint
+
+    def report(self, row: TableRow, run: str | None, column: str | None, message: str,
+               severity: str = "error", **kw) -> None:
+        col = self.table.header(column) if column in self.table.headers else (
+            COLUMNS.get(column, column) if column else None)
+        self.problems.append(Problem(message, **row.location.where(), run=run, column=col,
+                                     severity=severity, **kw))
+
+    def number(self, row: TableRow, run, column: str, *, required: bool,
+               what: str) -> float | None | object:
+        """The cell's number; None if empty (reported when required); _BAD if wrong."""
+        if column not in self.table.headers:
+            return None
+        value = row.cells.get(column)
+        if value is None:
+            if required:
+                self.report(row, run, column, "empty cell", found="",
+                            expected=f"{what}{self.number_hint}")
+                return _BAD
+            return None
+        if isinstance(value, str):
+            self.report(row, run, column, "not a number", found=row.raw(column),
+                        expected=f"{what}{self.number_hint}")
+            return _BAD
+        return value
+
+
+def _check_header(table: Table, problems: list[Problem]) -> bool:
+    """Missing and unknown columns; True when the table has a measurement form."""
+    where = table.header_location.where()
+    present = ", ".join(table.header(c) for c in table.columns)
+    for c in REQUIRED_COLUMNS:
+        if c not in table.headers:
+            problems.append(Problem("missing column", **where, column=COLUMNS[c],
+                                    found=present, expected="columns " + ", ".join(
+                                        COLUMNS[x] for x in REQUIRED_COLUMNS) + " and a "
+                                    "measurement form"))
+    has_amounts = "spiked" in table.headers and (
+        "found_aqueous" in table.headers or "found_organic" in table.headers)
+    has_recovery = "recovery_pct" in table.headers
+    if not (has_amounts or has_recovery):
+        missing = [c for c in AMOUNT_COLUMNS if c not in table.headers] or ["recovery_pct"]
+        problems.append(Problem("missing column: no complete measurement form", **where,
+                                column=", ".join(missing), found=present,
+                                expected="spiked with found_aqueous and/or found_organic, or "
+                                         "recovery_pct"))
+    for c in table.columns:
+        if c in COLUMNS:
+            continue
+        close = difflib.get_close_matches(c, list(COLUMNS), n=1, cutoff=0.8)
+        if close:
+            problems.append(Problem(f"unknown column, probably a misspelling of "
+                                    f"{COLUMNS[close[0]]!r}; refused so that no data are "
+                                    "silently dropped", **where, column=table.header(c),
+                                    found=table.header(c), expected=COLUMNS[close[0]]))
+        else:
+            problems.append(Problem("unknown column, ignored", **where, column=table.header(c),
+                                    found=table.header(c), severity="warning",
+                                    expected="known columns: " + ", ".join(COLUMNS.values())))
+    return has_amounts or has_recovery
+
+
+def _n_errors(problems: list[Problem]) -> int:
+    return sum(p.severity == "error" for p in problems)
+
+
+def _runs(table: Table, problems: list[Problem], check_forms: bool) -> list[Run]:
+    reader = _RowReader(table, problems)
+    runs: list[Run] = []
+    seen: dict[str, Location] = {}
+    for row in table.rows:
+        before = _n_errors(problems)
+        run = _run(reader, row, seen, check_forms)
+        if run is not None and _n_errors(problems) == before:
+            runs.append(run)
+    return runs
+
+
+def _run(reader: _RowReader, row: TableRow, seen: dict, check_forms: bool) -> Run | None:
+    headers = reader.table.headers
+    run_id = row.raw("run") if "run" in headers else ""
+    run = run_id or None
+    if "run" in headers:
+        if not run_id:
+            reader.report(row, None, "run", "empty run id", found="",
+                          expected="a run id, unique in the table")
+        elif run_id in seen:
+            reader.report(row, run, "run", f"duplicate run id (first at {_short(seen[run_id])})",
+                          found=run_id, expected="a unique run id per row")
+        else:
+            seen[run_id] = row.location
+
+    excluded = _excluded(reader, row, run)
+
+    pH = reader.number(row, run, "ph", required=True, what="a pH from 0 to 14")
+    if isinstance(pH, float) and not 0.0 <= pH <= 14.0:
+        reader.report(row, run, "ph", "pH out of range", found=row.raw("ph"),
+                      expected="a pH from 0 to 14")
+    volumes = {}
+    for col in ("aqueous_ml", "organic_ml"):
+        v = reader.number(row, run, col, required=True, what="a volume in mL, greater than 0")
+        if isinstance(v, float) and v <= 0:
+            reader.report(row, run, col, "volume must be greater than 0", found=row.raw(col),
+                          expected="a volume in mL, greater than 0")
+        volumes[col] = v
+
+    amounts = _measurement(reader, row, run, excluded, check_forms)
+    if amounts is None or not isinstance(pH, float) or any(
+            not isinstance(v, float) for v in volumes.values()) or run is None:
+        return None
+    return Run(run, pH, volumes["aqueous_ml"], volumes["organic_ml"], row.location,
+               **amounts, replicate=row.raw("replicate") or None, excluded=excluded,
+               note=row.raw("note") or None)
+
+
+def _short(loc: Location) -> str:
+    return f"line {loc.line}" if loc.line is not None else f"row {loc.row}"
+
+
+def _excluded(reader: _RowReader, row: TableRow, run) -> str | None:
+    reason = row.raw("excluded").strip() if "excluded" in reader.table.headers else ""
+    if not reason:
+        return None
+    if reason.casefold() in _KEEP_FLAGS:
+        reader.report(row, run, "excluded", "the excluded column holds the reason for leaving a "
+                      "run out; this reads like 'keep the run'", found=reason,
+                      expected="empty to keep the run, or the reason to exclude it")
+        return None
+    if reason.casefold() in _BARE_FLAGS:
+        reader.report(row, run, "excluded", "run excluded without a reason", found=reason,
+                      expected="the reason, e.g. 'emulsion did not separate'",
+                      severity="warning")
+    return reason
+
+
+def _measurement(reader: _RowReader, row: TableRow, run, excluded: str | None,
+                 check_forms: bool) -> dict | None:
+    """The row's amounts under the one-complete-form rule (module docstring), or None."""
+    headers = reader.table.headers
+    amount_what = "an amount of at least 0, in the unit of spiked"
+    spiked = reader.number(row, run, "spiked", required=False,
+                           what="the spiked amount, greater than 0")
+    aq = reader.number(row, run, "found_aqueous", required=False, what=amount_what)
+    org = reader.number(row, run, "found_organic", required=False, what=amount_what)
+    rec = reader.number(row, run, "recovery_pct", required=False,
+                        what="the recovery in the organic phase, in %")
+    ok = all(v is not _BAD for v in (spiked, aq, org, rec))
+    if isinstance(spiked, float) and spiked <= 0:
+        reader.report(row, run, "spiked", "negative spiked amount" if spiked < 0 else
+                      "spiked amount is 0", found=row.raw("spiked"),
+                      expected="the spiked amount, greater than 0")
+        ok = False
+    for col, v in (("found_aqueous", aq), ("found_organic", org)):
+        if isinstance(v, float) and v < 0:
+            reader.report(row, run, col, "negative amount", found=row.raw(col),
+                          expected=amount_what)
+            ok = False
+    if isinstance(rec, float) and rec < 0:
+        reader.report(row, run, "recovery_pct", "negative recovery", found=row.raw("recovery_pct"),
+                      expected="a recovery from 0 to 150 %")
+        ok = False
+    if not check_forms:
+        return None
+    if excluded:
+        # the run is kept for the record only: no form rule, no plausibility limit
+        if not ok:
+            return None
+        if rec is not None:
+            return {"recovery_pct": rec, "spiked": spiked, "found_aqueous": aq,
+                    "found_organic": org}
+        return {"spiked": spiked, "found_aqueous": aq, "found_organic": org}
+
+    filled = {c for c in ("spiked", "found_aqueous", "found_organic", "recovery_pct")
+              if c in headers and row.raw(c) != ""}
+    amount_cols = filled & set(AMOUNT_COLUMNS)
+    found_cols = [c for c in ("found_aqueous", "found_organic") if c in headers]
+    if "recovery_pct" in filled and amount_cols:
+        reader.report(row, run, "recovery_pct", "two measurement forms in one row",
+                      found="recovery_pct and " + ", ".join(sorted(amount_cols)),
+                      expected="either recovery_pct alone, or spiked with found_aqueous and/or "
+                               "found_organic (leave the other cells empty)")
+        return None
+    if not filled:
+        cols = [c for c in ("spiked", *found_cols, "recovery_pct") if c in headers]
+        reader.report(row, run, ", ".join(cols), "no measurement in this row", found="",
+                      expected="spiked with found_aqueous and/or found_organic, or "
+                               "recovery_pct")
+        return None
+    if amount_cols and "spiked" not in filled:
+        if "spiked" in headers:
+            reader.report(row, run, "spiked", "empty cell: found amounts need the spiked amount",
+                          found="", expected="the spiked amount, greater than 0")
+        else:
+            reader.report(row, run, ", ".join(found_cols), "found amounts without a spiked "
+                          "column", found=", ".join(sorted(amount_cols)),
+                          expected="a spiked column beside found_aqueous/found_organic")
+        return None
+    if amount_cols == {"spiked"}:
+        reader.report(row, run, ", ".join(found_cols) or "found_organic",
+                      "empty cell: a spiked amount needs at least one found amount", found="",
+                      expected="found_aqueous and/or found_organic")
+        return None
+    if not ok:
+        return None
+    if rec is not None:
+        _plausible(reader, row, run, "recovery_pct", rec, one_phase=True,
+                   found=row.raw("recovery_pct") + " %")
+        return {"recovery_pct": rec}
+    pct = 100.0 * ((aq or 0.0) + (org or 0.0)) / spiked
+    both = aq is not None and org is not None
+    col = "found_aqueous + found_organic" if both else (
+        "found_aqueous" if aq is not None else "found_organic")
+    _plausible(reader, row, run, col, pct, one_phase=not both, found=f"{pct:.1f} % of spiked")
+    return {"spiked": spiked, "found_aqueous": aq, "found_organic": org}
+
+
+def _plausible(reader: _RowReader, row: TableRow, run, column: str, pct: float, *,
+               one_phase: bool, found: str) -> None:
+    """Error above 150 % of spiked; warning outside 90-110 % (both phases) or above 110 %."""
+    if pct > IMPLAUSIBLE_PCT:
+        reader.report(row, run, column, "more analyte found than plausibly spiked", found=found,
+                      expected=f"at most {IMPLAUSIBLE_PCT:g} % of the spiked amount")
+        return
+    lo, hi = MASS_BALANCE_BAND_PCT
+    if one_phase and pct > ONE_PHASE_HIGH_PCT:
+        reader.report(row, run, column, "found in one phase exceeds the spiked amount",
+                      found=found, expected=f"at most {ONE_PHASE_HIGH_PCT:g} % of spiked",
+                      severity="warning")
+    elif not one_phase and not lo <= pct <= hi:
+        reader.report(row, run, column, "mass balance outside the usual band", found=found,
+                      expected=f"{lo:g} to {hi:g} % of spiked", severity="warning")
+
+
+# -- the study -------------------------------------------------------------------------------------
+
+def check_study(path) -> tuple[Study | None, list[Problem]]:
+    """Read and validate a study folder; never raises for bad input.
+
+    Returns the Study (None if there is any error) and every problem found, errors and
+    warnings, in file order: study.yaml first, then the runs table.
+    """
+    folder = Path(path)
+    problems: list[Problem] = []
+    shown_folder = display_path(folder)
+    if not folder.is_dir():
+        problems.append(Problem("no such study folder" if not folder.exists() else
+                                "not a folder", file=shown_folder,
+                                expected="a folder holding study.yaml and the runs table"))
+        return None, problems
+    study_id = Path(os.path.abspath(folder)).name
+    if not STUDY_ID.match(study_id):
+        problems.append(Problem("the study folder's name is not a valid study id",
+                                file=shown_folder, found=study_id,
+                                expected="ASCII letters, digits, '-' and '_' only, e.g. "
+                                         "HPA-2026-014"))
+    yaml_path = folder / STUDY_FILE
+    shown = display_path(yaml_path)
+    if not yaml_path.is_file():
+        problems.append(Problem("study.yaml is missing", file=shown,
+                                expected="a study.yaml file in the study folder"))
+        return None, problems
+    try:
+        data = yaml_path.read_bytes()
+    except OSError as exc:
+        problems.append(Problem(f"cannot read study.yaml: {exc.strerror or exc}", file=shown))
+        return None, problems
+    text, more = decode_text(data, shown)
+    if text is None:
+        problems.extend(Problem(p.message.replace("a text table", "a text file"), file=p.file,
+                                line=p.line, expected="study.yaml as UTF-8 text")
+                        for p in more)
+        return None, problems
+    root = _compose(text, shown, problems)
+    if root is None:
+        if not problems:
+            problems.append(Problem("study.yaml is empty", file=shown,
+                                    expected="a mapping with " + ", ".join(_KEYS[""])))
+        return None, problems
+    doc = _Yaml(shown, problems)
+    entries = doc.mapping(root, "", _KEYS[""], "study.yaml")
+    if entries is None:
+        return None, problems
+
+    title = doc.text(entries, root, "", "title", expected="the study's title")
+    name, model, ion_pair, level = _analyte(doc, entries, root)
+    system = _system(doc, entries, root)
+    targets, target_level = _targets(doc, entries)
+    if level is not None and target_level is not None and level != target_level:
+        doc.report("the analyte level is given twice, differently", entries["targets"][1],
+                   "targets.level", found=f"{level!r} and {target_level!r}",
+                   expected="one level, under analyte or under targets")
+    level = level or target_level
+    if level is not None:
+        targets = Targets(targets.recovery_pct, targets.max_rsd_pct, targets.mass_balance_pct,
+                          targets.ratio_agreement_log, level)
+    procedures = _procedures(doc, entries)
+    sheet = doc.text(entries, root, "", "sheet", required=False,
+                     expected="the name of the sheet holding the runs")
+    runs_path = _runs_path(doc, entries, root, folder)
+
+    runs: list[Run] = []
+    runs_digest = None
+    if runs_path is not None:
+        table, more = read_table(runs_path, display=display_path(runs_path), sheet=sheet)
+        problems.extend(more)
+        if table is not None:
+            runs_digest = table.sha256
+            if not table.rows:
+                problems.append(Problem("the runs table has a header but no runs",
+                                        **table.header_location.where(),
+                                        expected="one row per run below the header"))
+            forms = _check_header(table, problems)
+            runs = _runs(table, problems, forms)
+            if runs and not any(not r.excluded for r in runs) and not _n_errors(problems):
+                problems.append(Problem("every run is excluded: nothing is left to fit",
+                                        file=table.file, severity="warning",
+                                        expected="at least one run without an exclusion"))
+
+    problems = _in_file_order(problems)
+    if _n_errors(problems):
+        return None, problems
+    inputs = (InputFile(f"{study_id}/{STUDY_FILE}", _sha256(data), "study"),
+              InputFile(f"{study_id}/{runs_path.relative_to(folder).as_posix()}", runs_digest,
+                        "runs"))
+    warnings = tuple(p for p in problems if p.severity == "warning")
+    study = Study(study_id, folder, title, name, model, tuple(runs), tuple(procedures),
+                  targets, ion_pair, system, inputs, warnings)
+    return study, problems
+
+
+def _in_file_order(problems: list[Problem]) -> list[Problem]:
+    """Problems grouped by file (first appearance) and sorted by line or row within each."""
+    files: dict = {}
+    for p in problems:
+        files.setdefault(p.file, []).append(p)
+    return [p for group in files.values()
+            for p in sorted(group, key=lambda p: p.line or p.row or 0)]
+
+
+def load_study(path) -> Study:
+    """Read and validate ``path`` (a study folder); raise StudyError listing every problem.
+
+    Warnings do not raise; they are kept in ``Study.warnings``.
+    """
+    study, problems = check_study(path)
+    if study is None:
+        raise StudyError(problems, study=Path(os.path.abspath(path)).name)
+    return study
+
+
+def discover_studies(path) -> list[Path]:
+    """The study folders at ``path``: the folder itself if it holds study.yaml, else its
+    sub-folders that do, sorted by name. Raises StudyError (located) when there are none.
+    """
+    p = Path(path)
+    shown = display_path(p)
+    expected = "a study folder (holding study.yaml) or a folder of study folders"
+    if p.is_file() and p.name == STUDY_FILE:
+        return [p.parent]
+    if not p.exists():
+        raise StudyError([Problem("no such folder", file=shown, expected=expected)])
+    if not p.is_dir():
+        raise StudyError([Problem("not a folder", file=shown, expected=expected)])
+    if (p / STUDY_FILE).is_file():
+        return [p]
+    found = sorted((c for c in p.iterdir()
+                    if c.is_dir() and not c.name.startswith(".") and (c / STUDY_FILE).is_file()),
+                   key=lambda c: c.name)
+    if not found:
+        raise StudyError([Problem("no study here: neither study.yaml nor a sub-folder holding "
+                                  "one", file=shown, expected=expected)])
+    return found
