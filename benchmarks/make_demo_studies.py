@@ -1,0 +1,308 @@
+"""Write the demo study folders in ``studies/`` from a known model with realistic noise.
+
+The scenario is invented: a contract laboratory, "Halvorsen Process Analytics", validates the
+work-up of three invented intermediates (KRV-118, a base; KRV-204, an acid; KRV-311, a neutral
+compound). The numbers are simulated, for demonstration only; they are no measurement of any
+real substance.
+
+Design, OECD TG 107 style: three organic:aqueous volume ratios, each in duplicate, at buffered
+pH values spanning pKa +/- 2 (three pH values for the neutral compound, where pH should not
+matter). The ratios are 1:2, 1:1 and 2:1 where both phases or the organic phase are measured;
+the recovery-only acid study uses small organic volumes (1:10, 1:5, 1:2) so that recoveries on
+the neutral side stay below saturation and still carry information. Each measured amount
+carries an independent relative error of 4 % (normal), each recorded pH a 0.02 unit scatter
+around its nominal value.
+
+The distribution ratio follows the textbook neutral-form partition (Henderson-Hasselbalch):
+
+    base:    log D = log K - log10(1 + 10^(pKa - pH))
+    acid:    log D = log K - log10(1 + 10^(pH - pKa))
+    neutral: log D = log K
+
+and one equilibration of V_aq with V_org leaves q = 1 / (1 + D V_org / V_aq) in the water.
+
+Run ``python benchmarks/make_demo_studies.py`` from anywhere; it is seeded and writes the same
+bytes every time, and only below ``studies/``.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import re
+import zipfile
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[1]
+OUT = ROOT / "studies"
+
+REL_ERROR = 0.04            # relative error of each measured amount, [-]
+PH_SCATTER = 0.02           # scatter of the recorded pH around the nominal buffer pH, [pH]
+AQUEOUS_ML = 20.0
+ORGANIC_ML = (10.0, 20.0, 40.0)   # ratios 1:2, 1:1, 2:1
+REPLICATES = 2
+
+#: The generating truth of each demo study (what a perfect fit would return).
+TRUTH = {
+    "HPA-2026-014": {"model": "base", "logK": 2.6, "pKa": 8.3},
+    "HPA-2026-015": {"model": "acid", "logK": 2.1, "pKa": 4.6},
+    "HPA-2026-016": {"model": "neutral", "logK": 0.9},
+}
+SEEDS = {"HPA-2026-014": 14_2026, "HPA-2026-015": 15_2026, "HPA-2026-016": 16_2026}
+
+
+def log_d(model: str, pH: float, logK: float, pKa: float | None = None) -> float:
+    """log D of the neutral-form partition model at ``pH`` (module docstring)."""
+    if model == "base":
+        return logK - math.log10(1.0 + 10.0 ** (pKa - pH))
+    if model == "acid":
+        return logK - math.log10(1.0 + 10.0 ** (pH - pKa))
+    return logK
+
+
+def _inside_out(path: Path) -> Path:
+    """Refuse to write anywhere but below studies/."""
+    path = path.resolve()
+    if OUT.resolve() not in path.parents:
+        raise RuntimeError(f"refusing to write outside {OUT}: {path}")
+    return path
+
+
+def _write(path: Path, data: bytes) -> None:
+    path = _inside_out(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_bytes(data)
+
+
+def _sig(value: float, digits: int = 4) -> str:
+    """``value`` to ``digits`` significant figures, fixed-point (no exponent)."""
+    if value == 0:
+        return "0"
+    decimals = max(0, digits - 1 - int(math.floor(math.log10(abs(value)))))
+    return f"{value:.{decimals}f}"
+
+
+def simulate(study_id: str, pH_nominal, spiked: float, aqueous_mL: float = AQUEOUS_ML,
+             organic_mL=ORGANIC_ML):
+    """Rows of (run, pH, V_aq, V_org, spiked, found_aq, found_org, recovery_pct, group)."""
+    truth = TRUTH[study_id]
+    rng = np.random.default_rng(SEEDS[study_id])
+    rows = []
+    k = 0
+    for nominal in pH_nominal:
+        for v_org in organic_mL:
+            for _ in range(REPLICATES):
+                k += 1
+                pH = round(nominal + PH_SCATTER * rng.standard_normal(), 2)
+                d = 10.0 ** log_d(truth["model"], pH, truth["logK"], truth.get("pKa"))
+                q = 1.0 / (1.0 + d * v_org / aqueous_mL)
+                e_aq, e_org = 1.0 + REL_ERROR * rng.standard_normal(2)
+                rows.append({
+                    "n": k, "pH": pH, "aqueous_mL": aqueous_mL, "organic_mL": v_org,
+                    "spiked": spiked,
+                    "found_aqueous": spiked * q * e_aq,
+                    "found_organic": spiked * (1.0 - q) * e_org,
+                    "recovery_pct": 100.0 * (1.0 - q) * e_org,
+                    "replicate": f"pH{nominal:g}-{v_org / aqueous_mL:g}",
+                })
+    return rows
+
+
+# -- HPA-2026-014: base, both phases, European CSV ----------------------------------------------
+
+BASE_YAML = """\
+title: Work-up of amine intermediate KRV-118 into n-heptane/MTBE (demo data)
+analyte:
+  name: KRV-118
+  model: base
+  level: 100 ppm
+system:
+  aqueous: 0.05 M phosphate and borate buffers, ionic strength 0.1 M
+  organic: n-heptane/MTBE 4:1 (v/v), pre-saturated with buffer
+  temperature_C: 25
+runs: runs.csv
+targets:
+  recovery_pct: 95
+  max_rsd_pct: 5
+  mass_balance_pct: [90, 110]
+  ratio_agreement_log: 0.3
+procedures:
+  - id: P1
+    label: Three 10 mL portions at pH 11
+    pH: 11.0
+    aqueous_mL: 25
+    organic_mL: [10, 10, 10]
+  - id: P2
+    label: Two 5 mL portions at pH 7 (mild work-up)
+    pH: 7.0
+    aqueous_mL: 25
+    organic_mL: [5, 5]
+    pH_tolerance: 0.2
+    volume_tolerance_pct: 2
+"""
+
+
+def make_base() -> None:
+    sid = "HPA-2026-014"
+    rows = simulate(sid, (6.3, 7.3, 8.3, 9.3, 10.3), spiked=50.0)
+    excluded = {20: "emulsion did not break within 30 min; phases not cleanly separated"}
+    notes = {7: "aqueous phase re-injected (air bubble in the first injection)"}
+    lines = ["run;pH;aqueous_mL;organic_mL;spiked;found_aqueous;found_organic;replicate;"
+             "excluded;note"]
+    for r in rows:
+        found_org = r["found_organic"] * (0.8 if r["n"] in excluded else 1.0)
+        cells = [f"K118-{r['n']:02d}", f"{r['pH']:.2f}", _sig(r["aqueous_mL"], 3),
+                 _sig(r["organic_mL"], 3), f"{r['spiked']:.2f}", _sig(r["found_aqueous"]),
+                 _sig(found_org), r["replicate"], excluded.get(r["n"], ""),
+                 notes.get(r["n"], "")]
+        # a European-locale spreadsheet export: decimal commas, ';' between cells
+        lines.append(";".join(c.replace(".", ",") if _is_number(c) else c for c in cells))
+    text = "\r\n".join(lines) + "\r\n"
+    _write(OUT / sid / "runs.csv", text.encode("utf-8-sig"))
+    _write(OUT / sid / "study.yaml", BASE_YAML.encode("utf-8"))
+
+
+def _is_number(cell: str) -> bool:
+    return re.fullmatch(r"-?\d+(\.\d+)?", cell) is not None
+
+
+# -- HPA-2026-015: acid, recovery only, XLSX -----------------------------------------------------
+
+ACID_YAML = """\
+title: Extraction of carboxylic acid KRV-204 into ethyl acetate (demo data)
+analyte:
+  name: KRV-204
+  model: acid
+system:
+  aqueous: 0.05 M citrate and phosphate buffers, ionic strength 0.1 M
+  organic: ethyl acetate, pre-saturated with buffer
+  temperature_C: 22
+runs: runs.xlsx
+sheet: Runs
+targets:
+  recovery_pct: 95
+  max_rsd_pct: 5
+  level: 10 ppm
+procedures:
+  - id: P1
+    label: Two 25 mL portions at pH 2.0
+    pH: 2.0
+    aqueous_mL: 50
+    organic_mL: [25, 25]
+  - id: P2
+    label: One 10 mL portion at pH 4.0
+    pH: 4.0
+    aqueous_mL: 50
+    organic_mL: [10]
+    pH_tolerance: 0.2
+"""
+
+
+def make_acid() -> None:
+    import openpyxl
+
+    sid = "HPA-2026-015"
+    rows = simulate(sid, (2.6, 3.6, 4.6, 5.6, 6.6), spiked=40.0, aqueous_mL=40.0,
+                    organic_mL=(4.0, 8.0, 20.0))
+    wb = openpyxl.Workbook()
+    info = wb.active
+    info.title = "Info"
+    for line in ("Halvorsen Process Analytics - shake-flask study HPA-2026-015 (demo data)",
+                 "Analyte KRV-204; recovery in the organic phase, % of spiked",
+                 "Simulated numbers for demonstration only"):
+        info.append([line])
+    ws = wb.create_sheet("Runs")
+    ws.append(["run", "pH", "aqueous_mL", "organic_mL", "recovery_pct", "replicate", "note"])
+    previous = None
+    for r in rows:
+        group = r["replicate"].split("-")[0]
+        if previous is not None and group != previous:
+            ws.append([])   # a blank row between pH groups, as people leave them
+        previous = group
+        ws.append([f"A204-{r['n']:02d}", r["pH"], r["aqueous_mL"], r["organic_mL"],
+                   round(r["recovery_pct"], 1), r["replicate"], None])
+    buf = io.BytesIO()
+    wb.save(buf)
+    _write(OUT / sid / "runs.xlsx", _deterministic_zip(buf.getvalue()))
+    _write(OUT / sid / "study.yaml", ACID_YAML.encode("utf-8"))
+
+
+def _deterministic_zip(data: bytes) -> bytes:
+    """The same workbook with fixed timestamps, so that a rerun writes identical bytes."""
+    fixed = (2026, 1, 15, 9, 0, 0)
+    out = io.BytesIO()
+    with zipfile.ZipFile(io.BytesIO(data)) as src, \
+            zipfile.ZipFile(out, "w", zipfile.ZIP_DEFLATED) as dst:
+        for info in src.infolist():
+            body = src.read(info.filename)
+            if info.filename == "docProps/core.xml":
+                body = re.sub(rb"(<dcterms:(created|modified)[^>]*>)[^<]*(</dcterms:)",
+                              rb"\g<1>2026-01-15T09:00:00Z\g<3>", body)
+            zi = zipfile.ZipInfo(info.filename, date_time=fixed)
+            zi.compress_type = zipfile.ZIP_DEFLATED
+            dst.writestr(zi, body)
+    return out.getvalue()
+
+
+# -- HPA-2026-016: neutral, organic phase only, plain CSV ----------------------------------------
+
+NEUTRAL_YAML = """\
+title: Extraction of neutral intermediate KRV-311 into dichloromethane (demo data)
+analyte:
+  name: KRV-311
+  model: neutral
+system:
+  aqueous: 0.05 M phosphate buffers, ionic strength 0.1 M
+  organic: dichloromethane, pre-saturated with buffer
+  temperature_C: 20
+runs: runs.csv
+targets:
+  recovery_pct: 95
+procedures:
+  - id: P1
+    label: Three 30 mL portions of dichloromethane at pH 7
+    pH: 7.0
+    aqueous_mL: 100
+    organic_mL: [30, 30, 30]
+"""
+
+
+def make_neutral() -> None:
+    sid = "HPA-2026-016"
+    rows = simulate(sid, (5.0, 7.0, 9.0), spiked=40.0)
+    lines = ["run,pH,aqueous_mL,organic_mL,spiked,found_organic,replicate,note"]
+    for r in rows:
+        lines.append(",".join([f"N311-{r['n']:02d}", f"{r['pH']:.2f}", _sig(r["aqueous_mL"], 3),
+                               _sig(r["organic_mL"], 3), f"{r['spiked']:.2f}",
+                               _sig(r["found_organic"]), r["replicate"], ""]))
+    _write(OUT / sid / "runs.csv", ("\n".join(lines) + "\n").encode("utf-8"))
+    _write(OUT / sid / "study.yaml", NEUTRAL_YAML.encode("utf-8"))
+
+
+README = """\
+# Demo studies
+
+Invented scenario: the contract laboratory "Halvorsen Process Analytics" validates the work-up
+of three invented intermediates. The numbers are simulated from a known model by
+`benchmarks/make_demo_studies.py` (seeded); they are for demonstration only.
+
+| study | analyte | model | true log K | true pKa | runs table |
+|---|---|---|---|---|---|
+| HPA-2026-014 | KRV-118 | base | 2.6 | 8.3 | `runs.csv`, `;` and decimal commas, UTF-8 BOM |
+| HPA-2026-015 | KRV-204 | acid | 2.1 | 4.6 | `runs.xlsx`, sheet `Runs`, recovery only |
+| HPA-2026-016 | KRV-311 | neutral | 0.9 | - | `runs.csv`, organic phase only |
+"""
+
+
+def main() -> None:
+    make_base()
+    make_acid()
+    make_neutral()
+    _write(OUT / "README.md", README.encode("utf-8"))
+    print(f"demo studies written to {OUT}")
+
+
+if __name__ == "__main__":
+    main()
