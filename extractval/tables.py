@@ -24,6 +24,7 @@ import codecs
 import csv
 import hashlib
 import io
+import math
 import re
 from dataclasses import dataclass, field, replace
 from decimal import Decimal
@@ -113,8 +114,8 @@ def parse_number(text: str, decimal_comma: bool = False) -> float | None:
 
     >>> parse_number("7,25", decimal_comma=True), parse_number("7,25"), parse_number("-1e-3")
     (7.25, None, -0.001)
-    >>> parse_number("7.25", decimal_comma=True), parse_number("nan")
-    (None, None)
+    >>> parse_number("7.25", decimal_comma=True), parse_number("nan"), parse_number("1e400")
+    (None, None, None)
     """
     s = text.strip()
     if decimal_comma:
@@ -123,7 +124,8 @@ def parse_number(text: str, decimal_comma: bool = False) -> float | None:
         s = s.replace(",", ".")
     elif not _POINT_NUMBER.match(s):
         return None
-    return float(s)
+    value = float(s)
+    return value if math.isfinite(value) else None
 
 
 def format_number(value: float) -> str:

@@ -12,6 +12,8 @@ import os
 from pathlib import Path
 
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from extractval.errors import StudyError
 from extractval.study import check_study, discover_studies, load_study
@@ -134,6 +136,12 @@ def test_non_numeric_cell(tmp_path):
     assert (p.file, p.line, p.run, p.column, p.found) == (
         "ST-1/runs.csv", 3, "R2", "pH", "seven")
     assert "pH from 0 to 14" in p.expected
+
+
+def test_overflowing_number_is_not_a_number(tmp_path):
+    _, problems = check_csv(tmp_path, runs_with("R2,8.0,10,1e400,100,20,79"))
+    p = only(problems, "not a number")
+    assert (p.line, p.run, p.column, p.found) == (3, "R2", "organic_mL", "1e400")
 
 
 def test_empty_required_cell(tmp_path):
@@ -809,3 +817,39 @@ def test_demo_base_study_is_a_european_csv():
     table, problems = read_table(REPO / "studies" / "HPA-2026-014" / "runs.csv")
     assert data.startswith(b"\xef\xbb\xbf") and problems == []
     assert table.separator == ";" and table.decimal_comma
+
+
+# -- no traceback, whatever the bytes ------------------------------------------------------------
+
+_settings = settings(max_examples=150, deadline=None,
+                     suppress_health_check=[HealthCheck.function_scoped_fixture])
+
+
+@_settings
+@given(data=st.one_of(st.binary(max_size=300),
+                      st.lists(st.sampled_from(["run", "pH", "7,25", "7.5", "", "-1", '"',
+                                                "R1", "1e400", "nan", "\ufeff", "\r\n", "\n",
+                                                ",", ";", "\t", "spiked", "found_organic",
+                                                "recovery_pct", "excluded", "200"]),
+                               max_size=60).map(lambda parts: "".join(parts).encode())))
+def test_any_runs_bytes_give_problems_not_tracebacks(tmp_path, data):
+    folder = write_study(tmp_path, runs=data)
+    study, problems = check_study(folder)
+    assert (study is None) == any(p.severity == "error" for p in problems)
+    assert all(p.file for p in problems)
+
+
+@_settings
+@given(text=st.lists(st.sampled_from(["title: x\n", "analyte:\n", "  name: A\n",
+                                      "  model: acid\n", "  model: [1]\n", "runs: runs.csv\n",
+                                      "runs: ../x.csv\n", "system: 3\n", "targets:\n",
+                                      "  recovery_pct: 95\n", "  mass_balance_pct: [1]\n",
+                                      "procedures:\n", "  - id: P1\n", "    pH: x\n",
+                                      "    organic_mL: [1, -1]\n", "  - 5\n", "- a\n", "&a b\n",
+                                      "*a\n", "{\n", "'\n", "\t\n", ": :\n", "!!python/name:x\n",
+                                      "? [a]\n: b\n"]),
+                     max_size=14).map("".join))
+def test_any_study_yaml_gives_problems_not_tracebacks(tmp_path, text):
+    study, problems = check_study(write_study(tmp_path, yaml_text=text))
+    assert study is None and problems
+    assert all(p.file == "ST-1/study.yaml" or p.file == "ST-1/runs.csv" for p in problems)
