@@ -245,6 +245,9 @@ def fit_study(study: Study) -> StudyReport:
         if o.status == "not usable":
             warnings.append(f"{o.run.location}: run {o.run.run_id!r} not used in the fit: "
                             f"{o.reason}")
+        elif o.status == "excluded":
+            warnings.append(f"{o.run.location}: run {o.run.run_id!r} excluded from the fit by "
+                            f"the study: {o.reason}")
         elif o.reason:
             warnings.append(f"{o.run.location}: run {o.run.run_id!r}: {o.reason}")
     candidates: list[Candidate] = []

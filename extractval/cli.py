@@ -53,26 +53,22 @@ def cmd_check(args) -> int:
 
 
 def cmd_fit(args) -> int:
-    from .analysis import fit_study
+    from .batch import analyse_folder, map_ordered
     from .report.summary import render_summary
-    from .study import check_study
 
     folders, problems = _discover(args.paths)
     _print_problems(problems)
     status = 1 if problems else 0
-    for folder in folders:
-        study, found = check_study(folder)
-        if study is None:
+    for folder, (found, data) in zip(folders, map_ordered(analyse_folder, folders, args.jobs)):
+        if data is None:
             _print_problems(found)
             print(f"{folder.name}: not fitted, the input has errors (see above)", file=sys.stderr)
             status = 1
             continue
-        report = fit_study(study)
-        data = report.to_dict()
-        if report.fit is None:
+        if data["problems"]:
             status = 1
         if args.json:
-            sys.stdout.write(json.dumps(data, sort_keys=False, allow_nan=False) + "\n")
+            sys.stdout.write(json.dumps(data, allow_nan=False) + "\n")
         else:
             sys.stdout.write(render_summary(data) + "\n")
         sys.stdout.flush()
@@ -113,6 +109,8 @@ def make_parser() -> argparse.ArgumentParser:
     p.add_argument("paths", nargs="+", metavar="PATH",
                    help="a study folder or a folder holding study folders")
     p.add_argument("--json", action="store_true", help="print JSON Lines, one object per study")
+    p.add_argument("--jobs", type=int, default=0,
+                   help="worker processes (default: one per core)")
     p.set_defaults(func=cmd_fit)
 
     p = sub.add_parser("build", help="check, fit and build the dossier site")
@@ -120,11 +118,20 @@ def make_parser() -> argparse.ArgumentParser:
     p.add_argument("--site", default=None, help="output folder (default site/)")
     p.add_argument("--keep-going", action="store_true",
                    help="publish the good studies; a broken one gets a page listing its errors")
+    p.add_argument("--config", default=None,
+                   help="the site's mkdocs.yml (default: the one in the project folder)")
+    p.add_argument("--cache-dir", default=None,
+                   help="cache of fitted studies and plots (default .extractval-cache/ beside "
+                        "mkdocs.yml; safe to delete)")
+    p.add_argument("--jobs", type=int, default=0,
+                   help="worker processes for fitting (default: one per core)")
     p.set_defaults(func=cmd_build)
 
     p = sub.add_parser("serve", help="live preview of the dossier")
-    p.add_argument("--studies", default=None)
-    p.add_argument("--addr", default="127.0.0.1:8000")
+    p.add_argument("--studies", default=None, help="folder of study folders (default studies/)")
+    p.add_argument("--addr", default="127.0.0.1:8000", help="address to serve on")
+    p.add_argument("--config", default=None,
+                   help="the site's mkdocs.yml (default: the one in the project folder)")
     p.set_defaults(func=cmd_serve)
 
     p = sub.add_parser("new", help="scaffold a new study folder")

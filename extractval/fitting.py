@@ -199,17 +199,19 @@ class FitResult:
         se = np.sqrt(np.clip(np.einsum("ij,jk,ik->i", g, self.covariance, g), 0, None))
         return self.model.log_d(pH, self.theta), se
 
-    def log_d_interval(self, pH0: float) -> Estimate:
+    def log_d_interval(self, pH0: float, hint: tuple[float, float] | None = None) -> Estimate:
         """log D at one pH with its 95 % interval (profile likelihood where the model allows).
 
         Memoised per pH: the plots' band, the design-space map and the procedures share it.
+        ``hint`` (distances from the value to each end at a neighbouring pH) only speeds up
+        the search for the ends; it does not change them.
         """
         key = round(float(pH0), 9)
         if key not in self._log_d_memo:
-            self._log_d_memo[key] = self._log_d_interval(key)
+            self._log_d_memo[key] = self._log_d_interval(key, hint)
         return self._log_d_memo[key]
 
-    def _log_d_interval(self, pH0: float) -> Estimate:
+    def _log_d_interval(self, pH0: float, hint=None) -> Estimate:
         value, se = (float(a[0]) for a in self.log_d_wald(pH0))
         wald = Interval(value - self.t95 * se, value + self.t95 * se, "Wald (delta method)")
         if self.model.h is None or self.rss <= _NOISE_FREE_RSS * self.n:
@@ -217,7 +219,7 @@ class FitResult:
         lo_lim = LOG_D_LIMITS[0]
         hi_lim = LOG_D_LIMITS[1]
         prof = _Profiler(self, _logd_reparam(self.model, pH0))
-        lo, hi = prof.interval(value, se, lo_lim, hi_lim)
+        lo, hi = prof.interval(value, se, lo_lim, hi_lim, hint)
         return Estimate(value, se, Interval(lo, hi, INTERVAL_METHOD), wald)
 
 
@@ -448,12 +450,16 @@ class _Profiler:
         """Signed-root profile statistic in units of s: compare with the t quantile."""
         return float(np.sqrt(max(self(v) - self.fit.rss, 0.0) / (self.fit.rss / self.fit.dof)))
 
-    def interval(self, v_hat, se, lo_lim, hi_lim) -> tuple[float | None, float | None]:
+    def interval(self, v_hat, se, lo_lim, hi_lim, hint=None) -> tuple[float | None, float | None]:
         t_crit = float(np.sqrt(stats.f.ppf(0.95, 1, self.fit.dof)))
         step0 = se * t_crit if np.isfinite(se) and se > 1e-8 else 0.5
         step0 = float(np.clip(step0, 1e-6, 2.0))
-        return (self._end(v_hat, -1, lo_lim, step0, t_crit),
-                self._end(v_hat, +1, hi_lim, step0, t_crit))
+        steps = [step0, step0]
+        if hint is not None:
+            steps = [float(np.clip(h, 1e-6, 4.0)) if h is not None and np.isfinite(h) else step0
+                     for h in hint]
+        return (self._end(v_hat, -1, lo_lim, steps[0], t_crit),
+                self._end(v_hat, +1, hi_lim, steps[1], t_crit))
 
     def _end(self, v_hat, sign, limit, step0, t_crit) -> float | None:
         """One end: secant iteration on tau(v) = t_crit from the Wald end (tau is nearly

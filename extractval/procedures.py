@@ -179,7 +179,12 @@ def log_d_band(fit: FitResult, step: float = BAND_STEP) -> LogDBand:
     lo_ph = max(0.0, np.floor((fit.obs.pH.min() - BAND_MARGIN) / step) * step)
     hi_ph = min(14.0, np.ceil((fit.obs.pH.max() + BAND_MARGIN) / step) * step)
     grid = np.round(np.arange(lo_ph, hi_ph + step / 2, step), 6)
-    ests = [fit.log_d_interval(float(x)) for x in grid]
+    ests, hint = [], None
+    for x in grid:          # warm-start each point's end search from its neighbour's ends
+        e = fit.log_d_interval(float(x), hint)
+        ests.append(e)
+        hint = (None if e.ci95.lo is None else e.value - e.ci95.lo,
+                None if e.ci95.hi is None else e.ci95.hi - e.value)
 
     def arr(get):
         return np.array([np.nan if get(e) is None else get(e) for e in ests], dtype=float)

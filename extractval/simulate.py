@@ -86,8 +86,8 @@ def write_study_folder(study: Study, folder, runs_name: str = "runs.csv") -> Pat
         w = csv.writer(fh)
         w.writerow(cols)
         for r in study.runs:
-            vals = [r.run_id, repr(r.pH), repr(r.aqueous_mL), repr(r.organic_mL)]
-            vals += ["" if getattr(r, c) is None else repr(getattr(r, c)) for c in present]
+            vals = [r.run_id] + [repr(float(x)) for x in (r.pH, r.aqueous_mL, r.organic_mL)]
+            vals += ["" if getattr(r, c) is None else repr(float(getattr(r, c))) for c in present]
             vals += [r.replicate or "", r.excluded or "", r.note or ""]
             w.writerow(vals)
     doc = {
