@@ -34,7 +34,7 @@ from decimal import Decimal, InvalidOperation
 import numpy as np
 from scipy import stats
 
-from extractval.results import clean
+from extractval.results import clean, fmt_pct
 
 STATUSES = ("pass", "fail", "not assessed")
 
@@ -602,7 +602,7 @@ def aoac_recovery_verdict(
         return verdict("not assessed", criterion, None, (lo, hi), "no mean recovery available")
     ok = _at_least(recovery_pct, lo) and _at_most(recovery_pct, hi)
     detail = (
-        f"mean recovery {recovery_pct:.4g} % {'inside' if ok else 'outside'} {lo:g}-{hi:g} % "
+        f"mean recovery {fmt_pct(recovery_pct)} % {'inside' if ok else 'outside'} {lo:g}-{hi:g} % "
         f"(AOAC Appendix F Table A5, row {label})"
     )
     return verdict("pass" if ok else "fail", criterion, recovery_pct, (lo, hi), detail)

@@ -18,8 +18,12 @@ from .models import MODELS, get_model
 from .procedures import (LogDBand, ProcedureDesign, ProcedurePrediction, design_procedure,
                          design_space, log_d_band, predict_procedure)
 from .results import clean
+from .screening import STUDENTIZED_LIMIT, refit_without, screen
 from .study import Run, Study
+from .verdicts import overall_status, procedure_verdicts, study_verdicts
 
+#: AICc difference within which the simpler model is preferred by ``model: auto``
+PARSIMONY_DELTA = 2.0
 #: pH span (units) below which ``model: auto`` does not try the ampholyte (two pKa need room).
 AMPHOLYTE_MIN_SPAN = 4.0
 
@@ -104,7 +108,8 @@ def _candidates(study: Study, obs: Observations) -> list[str]:
 
 
 def choose_model(study: Study, obs: Observations) -> tuple[FitResult, list[Candidate]]:
-    """Fit every candidate model and keep the one with the lowest AICc (Akaike weights given)."""
+    """Fit every candidate model and choose by AICc (Akaike weights given), preferring the
+    simplest model within PARSIMONY_DELTA of the lowest."""
     fits, notes = {}, {}
     for name in _candidates(study, obs):
         try:
@@ -115,6 +120,11 @@ def choose_model(study: Study, obs: Observations) -> tuple[FitResult, list[Candi
         raise FitImpossible("; ".join(notes.values()))
     aicc = {k: f.aicc for k, f in fits.items()}
     best = min(aicc, key=aicc.get)
+    # parsimony: models within 2 AICc units of the best have substantial support (Burnham &
+    # Anderson, Model Selection and Multimodel Inference, 2nd ed. 2002, sec. 2.6); take the one
+    # with the fewest parameters among them, the best AICc breaking ties
+    close = [k for k in aicc if aicc[k] - aicc[best] < PARSIMONY_DELTA]
+    best = min(close, key=lambda k: (fits[k].p, aicc[k]))
     finite = {k: v for k, v in aicc.items() if np.isfinite(v)}
     rel = {k: np.exp(-0.5 * (v - aicc[best])) for k, v in finite.items()}
     total = sum(rel.values())
@@ -149,6 +159,41 @@ class StudyReport:
         target = self.study.targets.recovery_pct
         return tuple(design_procedure(self.fit, self.band, p.procedure, target)
                      for p in self.predictions)
+
+    @cached_property
+    def assessment(self) -> dict:
+        """Verdicts against the study's targets, per procedure and for the study."""
+        if self.fit is None:
+            return {"study": [], "procedures": [], "details": {}, "status": "not assessed"}
+        targets = self.study.targets
+        study_v, details = study_verdicts(self.fit, self.outcomes, targets)
+        proc_v = [procedure_verdicts(p, d, targets)
+                  for p, d in zip(self.predictions, self.designs)]
+        status = overall_status(study_v + [v for vs in proc_v for v in vs])
+        return {"study": study_v, "procedures": proc_v, "details": details, "status": status}
+
+    @cached_property
+    def outlier_screen(self) -> dict | None:
+        """Flagged runs and, when any, the fit without them beside the fit with them."""
+        if self.fit is None:
+            return None
+        flags = screen(self.fit)
+        out = {"studentized_limit": STUDENTIZED_LIMIT, "flags": [f.to_dict() for f in flags],
+               "without_flagged": None}
+        if flags:
+            other, left_out, problem = refit_without(self.fit, flags,
+                                                     MODELS.get(self.fit.model.name.split("+")[0]))
+            side = {"runs_left_out": left_out, "problem": problem, "parameters": {},
+                    "procedures": []}
+            if other is not None:
+                side["parameters"] = {k: e.to_dict() for k, e in other.parameters.items()}
+                side["residual_sd"] = clean(other.residual_sd)
+                side["procedures"] = [
+                    {"id": p.procedure.id,
+                     "recovery_pct": predict_procedure(other, p.procedure).recovery_pct.to_dict()}
+                    for p in self.predictions]
+            out["without_flagged"] = side
+        return out
 
     @property
     def curve(self) -> dict | None:
@@ -203,8 +248,12 @@ class StudyReport:
             "runs": {"used": counts["used"], "excluded": counts["excluded"],
                      "not_usable": counts["not usable"], "total": len(self.outcomes)},
             "parameters": {},
-            "procedures": [dict(p.to_dict(), **d.to_dict())
-                           for p, d in zip(self.predictions, self.designs)],
+            "procedures": [dict(p.to_dict(), **d.to_dict(),
+                                verdicts=[v.to_dict() for v in vs])
+                           for p, d, vs in zip(self.predictions, self.designs,
+                                               self.assessment["procedures"])],
+            "status": self.assessment["status"],
+            "verdicts": [v.to_dict() for v in self.assessment["study"]],
             "warnings": list(self.warnings),
             "problems": list(self.problems),
             "software": {"name": "extractval", "version": __version__},
@@ -227,6 +276,8 @@ class StudyReport:
             }
             out["curve"] = self.curve
             out["design_space"] = design_space(self.band, s.procedures, s.targets.recovery_pct)
+            out.update(self.assessment["details"])
+            out["outlier_screen"] = self.outlier_screen
         if self.candidates:
             out["model_selection"] = {
                 "criterion": "AICc",

@@ -2,25 +2,14 @@
 
 from __future__ import annotations
 
+from ..results import fmt_pct
+
 
 def fmt(x, digits: int = 3) -> str:
     """A number for people: fixed decimals, 'open' for an open interval end."""
     if x is None:
         return "open"
     return f"{x:.{digits}f}"
-
-
-def fmt_pct(x) -> str:
-    """A recovery in percent with enough decimals to show what is left (99.97, not 100.0)."""
-    if x is None:
-        return "open"
-    if x >= 99.9 and x < 100.0:
-        rest = 100.0 - x
-        digits = 1
-        while digits < 6 and round(rest, digits) == 0:
-            digits += 1
-        return f"{x:.{digits + 1}f}"
-    return f"{x:.1f}"
 
 
 def render_summary(d: dict) -> str:
