@@ -138,11 +138,12 @@ def procedure_verdicts(prediction, design, targets) -> list[Verdict]:
                            "the target cannot be demonstrated"))
     else:
         ok = wc["recovery_pct"] >= t
+        solvent = ", ".join(f"{v:g}" for v in wc["organic_mL"])
+        detail = (f"lower 95 % end {fmt_pct(wc['recovery_pct'])} % at the worst case inside "
+                  f"the tolerances (pH {wc['pH']:g}, {wc['aqueous_mL']:g} mL water, solvent "
+                  f"{solvent} mL) {'meets' if ok else 'misses'} the {t:g} % target")
         out.append(verdict("pass" if ok else "fail", "recovery_pct", wc["recovery_pct"], t,
-                           f"lower 95 % end {fmt_pct(wc['recovery_pct'])} % at the worst case inside "
-                           f"the tolerances (pH {wc['pH']:g}, {wc['aqueous_mL']:g} mL water, "
-                           f"solvent {', '.join(f'{v:g}' for v in wc['organic_mL'])} mL) "
-                           f"{'meets' if ok else 'misses'} the {t:g} % target"))
+                           detail))
     if targets.level:
         out.append(acc.aoac_recovery_verdict(prediction.recovery_pct.value, targets.level))
     return out
