@@ -122,3 +122,14 @@ def test_prediction_interval_contains_value_and_orders_ends():
     qlo, qhi = pr["remaining_fraction"]["ci95"]
     assert qlo == pytest.approx(1 - hi / 100, rel=1e-9)
     assert qhi == pytest.approx(1 - lo / 100, rel=1e-9)
+
+
+def test_ion_pair_warns_when_k_ion_cannot_be_told_from_zero():
+    # simple acid data (no ion-pair partitioning) fitted with the ion-pair model
+    study = simulated_study("IP", "acid", (1.88, 4.21), [2.5, 3.5, 4.2, 5.0, 6.0], sigma=0.03,
+                            rng=3, form="both")
+    study = dataclasses.replace(study, ion_pair=True)
+    d = fit_study(study).to_dict()
+    assert d["model"] == "acid+ion_pair"
+    assert d["parameters"]["logK_ion"]["ci95"][0] is None
+    assert any("K_I from zero" in w for w in d["warnings"])
