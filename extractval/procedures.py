@@ -10,7 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import optimize
 
 from . import chemistry as chem
 from .fitting import FitResult
@@ -141,7 +141,7 @@ def _single_run(fit: FitResult, est: Estimate, rec) -> ValueInterval:
     e = float(rec(est.value)) / 100.0
     slope = 1.0 - e                        # d log10 E / d log10 D
     sd = np.hypot(slope * est.se, fit.residual_sd / chem.LN10)
-    t = float(stats.t.ppf(0.975, fit.dof))
+    t = fit.t95
     log_e = np.log10(max(e, 1e-300))
     lo, hi = 100.0 * 10 ** (log_e - t * sd), 100.0 * 10 ** (log_e + t * sd)
     return ValueInterval(100.0 * e, Interval(lo, hi, "prediction interval of one run (t, "
