@@ -1,0 +1,133 @@
+"""The only module that imports MkDocs: a plugin that adds the dossier's generated files.
+
+Everything else (reading studies, fitting, pages, plots, the register) lives in
+:mod:`extractval.site` and :mod:`extractval.report` and knows nothing of MkDocs, so the dossier
+can move to another site generator by replacing this module alone.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+import re
+from pathlib import Path
+
+os.environ.setdefault("NO_MKDOCS_2_WARNING", "1")   # our users did not choose the theme
+
+from mkdocs.commands.build import build as _mkdocs_build  # noqa: E402
+from mkdocs.config import config_options as c  # noqa: E402
+from mkdocs.config.base import Config  # noqa: E402
+from mkdocs.config.base import load_config as _load_config  # noqa: E402
+from mkdocs.exceptions import MkDocsException, PluginError  # noqa: E402
+from mkdocs.plugins import BasePlugin  # noqa: E402
+from mkdocs.structure.files import File  # noqa: E402
+
+from . import site  # noqa: E402
+
+log = logging.getLogger("mkdocs.plugins.extractval")
+PLUGIN = "extractval"
+#: `extractval serve` passes its options to the plugin through these
+ENV_STUDIES, ENV_KEEP_GOING = "EXTRACTVAL_STUDIES", "EXTRACTVAL_KEEP_GOING"
+
+
+class DossierConfig(Config):
+    studies = c.Type(str, default="studies")      # relative to the folder of mkdocs.yml
+    keep_going = c.Type(bool, default=False)
+
+
+class DossierPlugin(BasePlugin[DossierConfig]):
+    """Asks :mod:`extractval.site` for the generated files and hands them to MkDocs."""
+
+    def __init__(self):
+        super().__init__()
+        self.prepared: site.Prepared | None = None     # set by `extractval build`
+
+    def _studies(self, config) -> Path:
+        root = Path(config.config_file_path or ".").resolve().parent
+        return (root / os.environ.get(ENV_STUDIES, self.config.studies)).resolve()
+
+    def on_config(self, config):
+        if self.prepared is None:          # plain `mkdocs build` / `mkdocs serve`
+            keep_going = self.config.keep_going or os.environ.get(ENV_KEEP_GOING) == "1"
+            try:
+                self.prepared = site.prepare(
+                    self._studies(config), Path(config.docs_dir),
+                    Path(config.config_file_path), keep_going=keep_going, progress=log.info)
+            except site.SiteBuildError as exc:
+                raise PluginError(str(exc)) from None
+        config.nav = self.prepared.nav
+        config.copyright = self.prepared.footer
+        return config
+
+    def on_files(self, files, *, config):
+        for path, content in sorted(self.prepared.files.items()):
+            old = files.get_file_from_path(path)
+            if old is not None:
+                files.remove(old)
+            files.append(File.generated(config, path, content=content))
+        return files
+
+    def on_serve(self, server, *, config, builder):
+        server.watch(str(self._studies(config)))
+        return server
+
+
+def docs_dir(config_file: Path) -> Path:
+    """The folder MkDocs reads (the templates and CSS), from mkdocs.yml."""
+    try:
+        cfg = _load_config(config_file=str(config_file))
+    except MkDocsException as exc:
+        raise site.SiteBuildError(f"{config_file}: {exc}") from None
+    return Path(cfg.docs_dir)
+
+
+class _Collect(logging.Handler):
+    """Keeps the generator's warnings, to report them with the failure they cause."""
+
+    def __init__(self):
+        super().__init__(logging.WARNING)
+        self.lines: list[str] = []
+
+    def emit(self, record):
+        self.lines.append(_ANSI.sub("", record.getMessage()).strip())
+
+
+_ANSI = re.compile(r"\x1b\[[0-9;]*m")
+
+
+def build_site(config_file: Path, site_dir: Path, prepared: site.Prepared) -> None:
+    """Build the site from ``prepared`` into ``site_dir`` with MkDocs in strict mode."""
+    logger = logging.getLogger("mkdocs")
+    collect = _Collect()
+    logger.addHandler(collect)
+    try:
+        cfg = _load_config(config_file=str(config_file), site_dir=str(site_dir), strict=True)
+        plugin = cfg.plugins.get(PLUGIN)
+        if plugin is None:
+            raise site.SiteBuildError(f"{config_file}: the '{PLUGIN}' plugin is not listed "
+                                      "under plugins:; the dossier pages come from it")
+        plugin.prepared = prepared
+        _mkdocs_build(cfg)
+    except MkDocsException as exc:
+        found = "".join(f"\n  warning: {line}" for line in collect.lines)
+        raise site.SiteBuildError(f"the site generator stopped: {exc}{found}") from None
+    finally:
+        logger.removeHandler(collect)
+
+
+def serve(config_file: Path, studies: Path, addr: str) -> None:
+    """Live preview: rebuild whenever a study file, template or the CSS changes."""
+    from mkdocs.commands.serve import serve as _serve
+
+    os.environ[ENV_STUDIES] = str(studies)
+    os.environ[ENV_KEEP_GOING] = "1"      # a broken study shows its errors page while editing
+    logging.getLogger("mkdocs").setLevel(logging.INFO)
+    if not logging.getLogger("mkdocs").handlers:
+        handler = logging.StreamHandler()
+        handler.setFormatter(logging.Formatter("%(levelname)-7s -  %(message)s"))
+        logging.getLogger("mkdocs").addHandler(handler)
+    try:
+        _serve(config_file=str(config_file), dev_addr=addr, livereload=True,
+               watch=[str(studies)])
+    except MkDocsException as exc:
+        raise site.SiteBuildError(f"the preview server stopped: {exc}") from None

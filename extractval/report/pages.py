@@ -1,0 +1,346 @@
+"""Markdown pages of the dossier from study dicts, through the Jinja2 templates in site_templates/.
+
+Pure rendering: the input is what ``StudyReport.to_dict()`` returns (one dict per study) and
+the output is a mapping of site paths to bytes (Markdown, SVG, JSON, CSV, CSS). No page knows
+which static-site generator will publish it.
+
+Every number goes through :meth:`StudyView.num`, which writes the value found at a JSON pointer
+in the study dict, formatted, inside ``<span class="xv-num" data-src=... data-value=...>``; a
+test reads those spans back and compares them with the dict. Every text from a study goes
+through :func:`~extractval.report.text.md_text` (the template environment's ``finalize``), so
+nothing a study file says becomes markup.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import jinja2
+from markupsafe import Markup
+
+from .plots import plot_name
+from .register import (Dossier, Quantity, fmt_number, pointer, register_rows, resolve,
+                       results_csv, results_json, safe_name, study_register)
+from .text import html_attr, md_text
+
+#: the dossier's Markdown files besides the study pages
+INDEX, REGISTER, ABOUT = "index.md", "register.md", "about.md"
+CSS_SOURCE, CSS_PATH = "extra.css", "assets/extractval.css"
+
+
+def study_page_path(study_id: str) -> str:
+    return f"studies/{safe_name(study_id)}/index.md"
+
+
+def study_url(study_id: str) -> str:
+    """The page's URL relative to the site root (directory URLs)."""
+    return f"studies/{safe_name(study_id)}/"
+
+
+def _finalize(value):
+    """Every ``{{ }}`` in a template: trusted Markup as is, anything else as inert text."""
+    if isinstance(value, Markup):
+        return value
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, float):
+        raise TypeError(f"a number reached a template without num(): {value!r}")
+    if value is None:
+        return ""
+    return md_text(value)
+
+
+class _Undefined(jinja2.StrictUndefined):
+    """A missing key tests false and iterates as empty, but printing one is an error."""
+
+    def __bool__(self) -> bool:
+        return False
+
+    def __iter__(self):
+        return iter(())
+
+    def __len__(self) -> int:
+        return 0
+
+
+def environment(templates_dir: Path) -> jinja2.Environment:
+    env = jinja2.Environment(
+        loader=jinja2.FileSystemLoader(str(templates_dir)), autoescape=False,
+        finalize=_finalize, undefined=_Undefined, keep_trailing_newline=True,
+        trim_blocks=True, lstrip_blocks=True)
+    env.filters["text"] = md_text
+    env.filters["attr"] = html_attr
+    return env
+
+
+# -- safety notes -------------------------------------------------------------------------------
+_PEROXIDE = re.compile(
+    r"\b(diethyl\s*ether|ethyl\s*ether|ether|tetrahydrofuran|thf|2-?methyl\s*-?thf|2-?methf|"
+    r"2-methyltetrahydrofuran|di-?isopropyl\s*ether|isopropyl\s*ether|dioxane|"
+    r"dimethoxyethane|glyme|mtbe|methyl\s*tert-?butyl\s*ether|tert-?butyl\s*methyl\s*ether|"
+    r"cpme|cyclopentyl\s*methyl\s*ether|dibutyl\s*ether)\b", re.IGNORECASE)
+_CHLORINATED = re.compile(
+    r"\b(dichloromethane|methylene\s*chloride|dcm|chloroform|trichloromethane|"
+    r"carbon\s*tetrachloride|tetrachloromethane|1,2-dichloroethane|dichloroethane|"
+    r"trichloroethylene|tetrachloroethylene|perchloroethylene|chlorobenzene)\b", re.IGNORECASE)
+
+
+def solvent_hazards(organic) -> dict[str, bool]:
+    """Which solvent-specific cautions apply to the organic phase named in ``system``.
+
+    >>> solvent_hazards("MTBE"), solvent_hazards("dichloromethane (DCM)")["chlorinated"]
+    ({'peroxide': True, 'chlorinated': False}, True)
+    """
+    text = "" if organic is None else str(organic)
+    return {"peroxide": bool(_PEROXIDE.search(text)),
+            "chlorinated": bool(_CHLORINATED.search(text))}
+
+
+# -- one study ----------------------------------------------------------------------------------
+def _data_value(value) -> str:
+    if value is None:
+        return ""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    return repr(value) if isinstance(value, float) else str(value)
+
+
+@dataclass
+class StudyView:
+    """A study dict as the templates see it: text as is (escaped on output), numbers by pointer.
+
+    ``num("/parameters/logK/value", "log")`` writes the value at that pointer. The register's
+    quantities are reachable by identifier tail: ``q("logK")``, ``cell("logK", "ci95_lo")``.
+    """
+
+    d: dict
+    dossier: Dossier
+    quantities: list[Quantity] = field(default_factory=list)
+
+    def __post_init__(self):
+        self.by_name = {q.name: q for q in self.quantities}
+
+    @property
+    def id(self) -> str:
+        return self.d["study"]
+
+    def num(self, ptr: str, style: str, unit: str = "") -> Markup:
+        value = resolve(self.d, ptr)
+        return self._span(ptr, value, style, unit)
+
+    def num_at(self, style: str, *parts, unit: str = "") -> Markup:
+        return self.num(pointer(*parts), style, unit)
+
+    def opt_at(self, style: str, *parts, unit: str = "") -> Markup:
+        """Like :meth:`num_at`, but empty where the dict has no value (an optional column)."""
+        ptr = pointer(*parts)
+        return self.num(ptr, style, unit) if self.has(ptr) else Markup("")
+
+    def _span(self, ptr, value, style, unit="", anchor: str | None = None) -> Markup:
+        shown = fmt_number(value, style)
+        if unit and value is not None:
+            shown += f" {unit}"
+        ident = f' id="{html_attr(anchor)}"' if anchor else ""
+        return Markup(f'<span class="xv-num"{ident} data-study="{html_attr(self.id)}" '
+                      f'data-src="{html_attr(ptr)}" data-value="{html_attr(_data_value(value))}">'
+                      f"{md_text(shown)}</span>")
+
+    def has(self, ptr: str) -> bool:
+        try:
+            return resolve(self.d, ptr) is not None
+        except (KeyError, IndexError, TypeError):
+            return False
+
+    def q(self, name: str) -> Quantity | None:
+        return self.by_name.get(safe_name(name) if "/" not in name else name)
+
+    def cell(self, name: str, statistic: str = "value") -> Markup:
+        """A register number (by quantity name and statistic) as a span; empty if absent."""
+        q = self.q(name)
+        n = q.get(statistic) if q else None
+        if n is None:
+            return Markup("")
+        return self._span(n.source, n.value, n.style)
+
+    def interval(self, name: str, lo: str = "ci95_lo", hi: str = "ci95_hi") -> Markup:
+        q = self.q(name)
+        if q is None or q.get(lo) is None:
+            return Markup("")
+        return Markup(f'<span class="xv-iv">{self.cell(name, lo)} to {self.cell(name, hi)}</span>')
+
+    def link(self, name: str, statistic: str = "value") -> Markup:
+        """A link to a number's register row on this page."""
+        q = self.q(name)
+        n = q.get(statistic) if q else None
+        if n is None:
+            return Markup("")
+        return Markup(f'<a class="xv-ref" href="#{html_attr(n.anchor)}" '
+                      f'title="{html_attr(n.identifier)}">#</a>')
+
+    def register(self) -> list[dict]:
+        """Rows of the study's register section: identifier, number, citation."""
+        rows = []
+        for q in self.quantities:
+            for n in q.numbers:
+                rows.append({
+                    "identifier": n.identifier,
+                    "anchor": Markup(f'<a class="xv-id" id="{html_attr(n.anchor)}" '
+                                     f'href="#{html_attr(n.anchor)}">{md_text(n.identifier)}</a>'),
+                    "number": self._span(n.source, n.value, n.style,
+                                         "%" if q.unit == "%" else ""),
+                    "unit": q.unit,
+                    "description": q.description,
+                    "statistic": n.statistic,
+                    "citation": q.citation(n, self.dossier.version, self.dossier.software),
+                })
+        return rows
+
+    def parameters(self) -> list[tuple[str, dict]]:
+        return list(self.d.get("parameters", {}).items())
+
+    def runs(self, status: str | None = None) -> list[tuple[int, dict]]:
+        return [(i, r) for i, r in enumerate(self.d.get("run_table", []))
+                if status is None or r["status"] == status]
+
+    def procedures(self) -> list[tuple[int, dict]]:
+        return list(enumerate(self.d.get("procedures", [])))
+
+    def plot(self, kind: str, procedure_id: str | None = None) -> str:
+        return plot_name(kind, procedure_id)
+
+    def hazards(self) -> dict[str, bool]:
+        return solvent_hazards(self.d.get("system", {}).get("organic"))
+
+    def status(self) -> tuple[str, str]:
+        return study_status(self.d)
+
+
+def all_verdicts(d: dict) -> list[dict]:
+    """The study's verdicts and those of every procedure, in page order."""
+    out = list(d.get("verdicts") or [])
+    for pr in d.get("procedures", []):
+        out.extend(pr.get("verdicts") or [])
+    return out
+
+
+def study_status(d: dict) -> tuple[str, str]:
+    """(css class, words) for a study's state, from the engine's status and verdicts."""
+    if d.get("problems"):
+        return "bad", "not fitted"
+    verdicts = all_verdicts(d)
+    failed = [v for v in verdicts if v.get("status") == "fail"]
+    open_ = [v for v in verdicts if v.get("status") == "not assessed"]
+    if d.get("status") == "fail" or failed:
+        return "bad", f"{len(failed)} of {len(verdicts)} acceptance criteria not met"
+    if d.get("status") == "pass":
+        extra = f", {len(open_)} not assessed" if open_ else ""
+        return "good", f"acceptance criteria met ({len(verdicts) - len(open_)}{extra})"
+    if verdicts or d.get("status") == "not assessed":
+        return "warn", "fitted; acceptance criteria not assessed"
+    warn = len(d.get("warnings", []))
+    if warn:
+        return "warn", f"fitted, {warn} warning{'s' if warn != 1 else ''} to read"
+    return "good", "fitted"
+
+
+CRITERION_LABELS = {
+    "recovery_pct": "Recovery at the worst case inside the tolerances (%)",
+    "max_rsd_pct": "Repeatability, pooled RSD (%)",
+    "mass_balance_pct": "Mass balance of every run (%)",
+    "ratio_agreement_log": "Agreement of log D between volume ratios",
+    "lack_of_fit": "Lack of fit (p value)",
+    "aoac_recovery_pct": "AOAC recovery range for the analyte level (%)",
+    "horrat": "HorRat",
+}
+
+
+SYSTEM_LABELS = {"aqueous": "Aqueous phase", "organic": "Organic phase (solvent)",
+                 "temperature_C": "Temperature"}
+TARGET_LABELS = {"recovery_pct": "Target recovery (%)", "max_rsd_pct": "Largest RSD (%)",
+                 "mass_balance_pct": "Mass balance band (%)",
+                 "ratio_agreement_log": "Agreement of log D between volume ratios (log units)",
+                 "level": "Analyte level"}
+PARAMETER_LABELS = {"logK": "log K", "pKa": "pKa", "pKa1": "pKa1", "pKa2": "pKa2",
+                    "logK_ion": "log K (ion pair)"}
+
+
+@dataclass(frozen=True)
+class StudyInput:
+    """One study as the site layer hands it to the pages: a dict, or the errors instead."""
+
+    study_id: str
+    data: dict | None                    # StudyReport.to_dict(), JSON round-tripped
+    errors: tuple[str, ...] = ()         # located errors when the study could not be read
+    plots: tuple[str, ...] = ()          # plot file names present for this study
+    key: str = ""                        # content key of the study's inputs
+
+
+class Pages:
+    """Renders the dossier's pages from study inputs with the templates of one folder."""
+
+    def __init__(self, templates_dir: Path):
+        self.templates_dir = Path(templates_dir)
+        self.env = environment(self.templates_dir)
+
+    def _render(self, name: str, **ctx) -> str:
+        return self.env.get_template(name).render(**ctx)
+
+    def study_page(self, s: StudyInput, dossier: Dossier) -> str:
+        if s.data is None:
+            return self._render("failed.md.j2", study_id=s.study_id, errors=s.errors,
+                                dossier=dossier, key=s.key)
+        view = StudyView(s.data, dossier, study_register(s.data))
+        return self._render("study.md.j2", s=view, d=s.data, dossier=dossier,
+                            plots=set(s.plots), key=s.key, labels=SYSTEM_LABELS,
+                            target_labels=TARGET_LABELS, names=PARAMETER_LABELS,
+                            criteria=CRITERION_LABELS)
+
+    def index_page(self, studies: list[StudyInput], dossier: Dossier, counts: dict) -> str:
+        views = [(s, StudyView(s.data, dossier, study_register(s.data)) if s.data else None)
+                 for s in studies]
+        return self._render("index.md.j2", studies=views, dossier=dossier, counts=counts,
+                            url=study_url, names=PARAMETER_LABELS)
+
+    def register_page(self, studies: list[StudyInput], dossier: Dossier) -> str:
+        views = [StudyView(s.data, dossier, study_register(s.data))
+                 for s in studies if s.data is not None]
+        return self._render("register.md.j2", views=views, dossier=dossier, url=study_url)
+
+    def about_page(self, dossier: Dossier) -> str:
+        return self._render("about.md.j2", dossier=dossier)
+
+    def css(self) -> bytes:
+        return (self.templates_dir / CSS_SOURCE).read_bytes()
+
+    def dossier_files(self, studies: list[StudyInput], dossier: Dossier,
+                      counts: dict) -> dict[str, bytes]:
+        """Every generated file of the site except the plots, by site path."""
+        studies = sorted(studies, key=lambda s: s.study_id)
+        files = {INDEX: self.index_page(studies, dossier, counts).encode(),
+                 REGISTER: self.register_page(studies, dossier).encode(),
+                 ABOUT: self.about_page(dossier).encode(),
+                 CSS_PATH: self.css()}
+        rows, listing = [], []
+        for s in studies:
+            files[study_page_path(s.study_id)] = self.study_page(s, dossier).encode()
+            status = ("not published: input errors" if s.data is None
+                      else study_status(s.data)[1])
+            listing.append({"study": s.study_id, "page": study_url(s.study_id),
+                            "status": status, "inputs_key": s.key})
+            if s.data is not None:
+                rows.extend(register_rows(study_register(s.data), dossier,
+                                          study_url(s.study_id)))
+        files["results.json"] = results_json(rows, dossier, listing)
+        files["results.csv"] = results_csv(rows)
+        return files
+
+
+def nav(studies: list[StudyInput]) -> list:
+    """The site's navigation, in the plain structure MkDocs' ``nav`` setting takes."""
+    return [{"Overview": INDEX},
+            {"Studies": [{safe_name(s.study_id): study_page_path(s.study_id)}
+                         for s in sorted(studies, key=lambda s: s.study_id)]},
+            {"Number register": REGISTER},
+            {"About this dossier": ABOUT}]

@@ -1,0 +1,227 @@
+"""SVG plots of a study dict: log D against pH, residuals against pH, portions per procedure.
+
+Every plotted value is read from ``StudyReport.to_dict()`` (the ``curve``, ``run_table`` and
+``procedures`` entries); the only arithmetic here is placing things on the axes. The output is
+byte-stable: a fixed ``svg.hashsalt``, no date in the metadata, text drawn as paths, and the
+object-oriented matplotlib API (no pyplot state shared between figures).
+"""
+
+from __future__ import annotations
+
+import io
+import math
+
+import matplotlib
+from matplotlib.backends.backend_svg import FigureCanvasSVG
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.ticker import NullLocator
+
+#: The dossier's own palette; hues told apart by lightness as well as colour, and every series
+#: also has its own marker shape, so no reading depends on colour alone.
+INK = "#22313f"
+GRID = "#d9dee4"
+CURVE = "#143d66"
+BAND = "#7fa7cf"
+SERIES = ("#c8541c", "#2274b5", "#d9a21b", "#5b3f8c", "#2f9784", "#8c8c8c")
+MARKERS = ("o", "s", "^", "D", "v", "P")
+LIMIT = "#a3322b"
+
+STYLE = {
+    "svg.hashsalt": "extractval-dossier",
+    "svg.fonttype": "path",
+    "font.family": "DejaVu Sans",
+    "font.size": 9.5,
+    "axes.titlesize": 10.5,
+    "axes.labelsize": 9.5,
+    "axes.edgecolor": INK,
+    "axes.labelcolor": INK,
+    "axes.linewidth": 0.8,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "xtick.color": INK,
+    "ytick.color": INK,
+    "legend.frameon": False,
+    "legend.fontsize": 8.5,
+    "lines.linewidth": 1.6,
+    "path.simplify": True,
+}
+WIDTH_IN, HEIGHT_IN = 6.3, 3.4
+
+
+def _svg(fig: Figure) -> bytes:
+    buf = io.BytesIO()
+    FigureCanvasSVG(fig).print_svg(buf, metadata={"Date": None, "Creator": "extractval"})
+    return buf.getvalue()
+
+
+def _figure(legend_rows: int = 1) -> tuple[Figure, object]:
+    fig = Figure(figsize=(WIDTH_IN, HEIGHT_IN + 0.2 * legend_rows))
+    # fixed margins (the legend sits above the axes): a layout engine would triple the time
+    # per plot for no visible gain
+    top = 1.0 - (0.12 + 0.2 * legend_rows) / (HEIGHT_IN + 0.2 * legend_rows)
+    fig.subplots_adjust(left=0.11, right=0.97, bottom=0.14, top=top)
+    ax = fig.add_subplot()
+    ax.grid(True, color=GRID, linewidth=0.6)
+    ax.set_axisbelow(True)
+    return fig, ax
+
+
+def _plain(text) -> str:
+    """Study text for a plot label: a "$" is shown as typed, not as mathematics."""
+    return str(text).replace("$", r"\$")
+
+
+def _legend(ax, handles=None, labels=None, ncols: int = 3) -> None:
+    """The legend above the axes, where it never hides a point."""
+    if handles is None:
+        handles, labels = ax.get_legend_handles_labels()
+    ax.legend(handles, labels, loc="lower left", bbox_to_anchor=(0.0, 1.01), ncols=ncols,
+              borderaxespad=0.2, handletextpad=0.4, columnspacing=1.4)
+
+
+def _rows(n_items: int, ncols: int) -> int:
+    return max(1, -(-n_items // ncols))
+
+
+def _nan(values) -> list[float]:
+    return [math.nan if v is None else v for v in values]
+
+
+def _ratio_styles(rows) -> dict:
+    """One colour and marker per organic:aqueous volume ratio, in ratio order."""
+    ratios = sorted({r["volume_ratio"] for r in rows if r.get("volume_ratio") is not None})
+    return {r: (SERIES[i % len(SERIES)], MARKERS[i % len(MARKERS)]) for i, r in enumerate(ratios)}
+
+
+def log_d_plot(d: dict) -> bytes | None:
+    """log D against pH: the fitted curve, its 95 % band, the runs by volume ratio."""
+    curve = d.get("curve")
+    if not curve:
+        return None
+    rows = d.get("run_table", [])
+    styles = _ratio_styles(rows)
+    hollow = any(r["status"] != "used" and r.get("log_d_observed") is not None for r in rows)
+    n_legend = 2 + len(styles) + hollow
+    with matplotlib.rc_context(STYLE):
+        fig, ax = _figure(_rows(n_legend, 3))
+        band = ax.fill_between(curve["pH"], _nan(curve["lo"]), _nan(curve["hi"]), color=BAND,
+                               alpha=0.35, linewidth=0, label="95 % band of the fit")
+        band.set_gid("fit-band")
+        ax.plot(curve["pH"], _nan(curve["log_d"]), color=CURVE,
+                label=f"fitted ({_plain(d['model'])})", gid="fit-curve")
+        for ratio, (colour, marker) in styles.items():
+            used = [r for r in rows if r["volume_ratio"] == ratio and r["status"] == "used"
+                    and r.get("log_d_observed") is not None]
+            other = [r for r in rows if r["volume_ratio"] == ratio and r["status"] != "used"
+                     and r.get("log_d_observed") is not None]
+            if used:
+                ax.plot([r["pH"] for r in used], [r["log_d_observed"] for r in used],
+                        linestyle="none", marker=marker, markersize=5.5, color=colour,
+                        markeredgecolor="white", markeredgewidth=0.5, gid=f"runs-ratio-{ratio:g}")
+            if other:
+                ax.plot([r["pH"] for r in other], [r["log_d_observed"] for r in other],
+                        linestyle="none", marker=marker, markersize=6, markerfacecolor="none",
+                        markeredgecolor=colour, markeredgewidth=1.2,
+                        gid=f"excluded-ratio-{ratio:g}")
+        ax.set_xlabel("pH")
+        ax.set_ylabel("log D")
+        handles, labels = ax.get_legend_handles_labels()
+        for ratio, (colour, marker) in styles.items():
+            handles.append(Line2D([], [], linestyle="none", marker=marker, color=colour,
+                                  markeredgecolor="white", markersize=5.5))
+            labels.append(f"runs, org:aq {ratio:g}")
+        if hollow:
+            handles.append(Line2D([], [], linestyle="none", marker="o", markerfacecolor="none",
+                                  markeredgecolor=INK, markersize=6))
+            labels.append("excluded (hollow)")
+        _legend(ax, handles, labels)
+        return _svg(fig)
+
+
+def residual_plot(d: dict) -> bytes | None:
+    """Studentized residuals of the used runs against pH, by volume ratio."""
+    rows = [r for r in d.get("run_table", []) if r.get("studentized_residual") is not None]
+    if not rows:
+        return None
+    styles = _ratio_styles(rows)
+    with matplotlib.rc_context(STYLE):
+        fig, ax = _figure(_rows(len(styles), 4))
+        ax.axhline(0.0, color=INK, linewidth=0.8)
+        for y in (-2.0, 2.0):     # |studentized residual| > 2 is worth a look (common practice)
+            ax.axhline(y, color=LIMIT, linewidth=0.8, linestyle=(0, (4, 3)))
+        for ratio, (colour, marker) in styles.items():
+            sel = [r for r in rows if r["volume_ratio"] == ratio]
+            ax.plot([r["pH"] for r in sel], [r["studentized_residual"] for r in sel],
+                    linestyle="none", marker=marker, markersize=5.5, color=colour,
+                    markeredgecolor="white", markeredgewidth=0.5, label=f"org:aq {ratio:g}",
+                    gid=f"residuals-ratio-{ratio:g}")
+        ax.set_xlabel("pH")
+        ax.set_ylabel("studentized residual")
+        top = max(3.0, max(abs(r["studentized_residual"]) for r in rows) * 1.1)
+        ax.set_ylim(-top, top)
+        _legend(ax, ncols=4)
+        return _svg(fig)
+
+
+def portions_plot(pr: dict) -> bytes | None:
+    """Remaining fraction after each portion of a procedure, beside the split limit."""
+    after = pr.get("after_portions") or []
+    if not after:
+        return None
+    n = [a["portions"] for a in after]
+    val = [a["value"] for a in after]
+    lo = [a["ci95"][0] for a in after]
+    hi = [a["ci95"][1] for a in after]
+    with matplotlib.rc_context(STYLE):
+        fig, ax = _figure(2)
+        ax.set_yscale("log")
+        ax.yaxis.set_minor_locator(NullLocator())
+        err_lo = [v - lo_ if (lo_ is not None and v > 0) else 0.0 for v, lo_ in zip(val, lo)]
+        err_hi = [hi_ - v if hi_ is not None else 0.0 for v, hi_ in zip(val, hi)]
+        ax.errorbar(n, val, yerr=[err_lo, err_hi], color=SERIES[1], marker="o", markersize=6,
+                    capsize=3, linewidth=1.4, gid="after-portions",
+                    label=f"{_plain(pr['id'])}: left in the water after each portion (95 % "
+                          "interval)")
+        positive = [v for v in val + lo + hi if v is not None and v > 0]
+        bottom = min(positive) / 10 if positive else 1e-6
+        ax.set_ylim(bottom, 1.5)
+        limit = pr.get("split_limit_remaining_fraction", {}).get("value")
+        if limit is not None and limit >= bottom:
+            ax.axhline(limit, color=LIMIT, linestyle=(0, (5, 3)), gid="split-limit",
+                       label="limit: the same total solvent in ever more portions")
+        elif limit is not None:
+            ax.annotate(f"limit of ever more portions: {limit:.2g} (below the axis)",
+                        xy=(0.99, 0.02), xycoords="axes fraction", ha="right", va="bottom",
+                        color=LIMIT, fontsize=8.5, gid="split-limit-below")
+        ax.set_xticks(n)
+        ax.set_xlim(0.5, max(n) + 0.5)
+        ax.set_xlabel("number of solvent portions")
+        ax.set_ylabel("fraction left in the water")
+        _legend(ax, ncols=1)
+        return _svg(fig)
+
+
+def plot_name(kind: str, procedure_id: str | None = None) -> str:
+    """File name of a plot inside the study's folder of the site."""
+    from .register import safe_name
+
+    if kind == "portions":
+        return f"portions-{safe_name(procedure_id)}.svg"
+    return {"log_d": "log-d-vs-ph.svg", "residuals": "residuals-vs-ph.svg"}[kind]
+
+
+def study_plots(d: dict) -> dict[str, bytes]:
+    """Every plot of one study dict, by file name."""
+    out = {}
+    svg = log_d_plot(d)
+    if svg:
+        out[plot_name("log_d")] = svg
+    svg = residual_plot(d)
+    if svg:
+        out[plot_name("residuals")] = svg
+    for pr in d.get("procedures", []):
+        svg = portions_plot(pr)
+        if svg:
+            out[plot_name("portions", pr["id"])] = svg
+    return out

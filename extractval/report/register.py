@@ -1,0 +1,448 @@
+"""The number register: a stable identifier, anchor and citation line for every reported number.
+
+An identifier is ``<study-id>/<quantity>[/<statistic>]``, e.g. ``HPA-2026-014/logK``,
+``HPA-2026-014/logK/ci95_lo`` or ``HPA-2026-014/P1/recovery_pct/ci95_hi``. It is built from
+names only (the study id, the parameter or procedure id, the quantity), never from a position,
+so it does not change when the dossier is rebuilt or other studies are added.
+
+Each number points into the study's ``StudyReport.to_dict()`` with a JSON pointer
+(:func:`resolve`); the register copies the value found there and computes nothing.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import re
+from dataclasses import dataclass, field
+
+def fmt_pct(x: float) -> str:
+    """A percentage with enough decimals to show what is left near 100 (99.99975, not 100.0).
+
+    >>> fmt_pct(98.76), fmt_pct(99.95), fmt_pct(99.99997542), fmt_pct(100.0)
+    ('98.8', '99.950', '99.999975', '100.0')
+    """
+    if 99.9 <= x < 100.0:
+        rest = 100.0 - x
+        decimals = min(8, max(2, 1 - math.floor(math.log10(rest))))
+        text = f"{x:.{decimals}f}"
+        return "100.0" if float(text) >= 100.0 else text
+    return f"{x:.1f}"
+
+#: characters kept in identifiers and anchors; anything else becomes "_"
+_SAFE = re.compile(r"[^A-Za-z0-9._-]")
+
+
+def safe_name(text: str) -> str:
+    """A name fit for an identifier segment and an HTML id (study and procedure ids)."""
+    return _SAFE.sub("_", str(text)) or "_"
+
+
+def resolve(d: dict, pointer: str):
+    """The value at a JSON pointer (RFC 6901) in a study dict.
+
+    >>> resolve({"parameters": {"logK": {"ci95": [1.5, 2.5]}}}, "/parameters/logK/ci95/1")
+    2.5
+    """
+    node = d
+    for part in pointer.lstrip("/").split("/") if pointer not in ("", "/") else []:
+        part = part.replace("~1", "/").replace("~0", "~")
+        node = node[int(part)] if isinstance(node, list) else node[part]
+    return node
+
+
+def pointer(*parts) -> str:
+    """A JSON pointer from path parts (keys or list indices)."""
+    return "".join("/" + str(p).replace("~", "~0").replace("/", "~1") for p in parts)
+
+
+# -- how numbers are written --------------------------------------------------------------------
+def fmt_number(value, style: str) -> str:
+    """A reported number as people read it; the style fixes the digits, nothing is computed.
+
+    >>> fmt_number(2.599229, "log"), fmt_number(0.0076763, "se"), fmt_number(None, "log")
+    ('2.599', '0.0077', 'open')
+    >>> fmt_number(0.04956, "rel"), fmt_number(2.4578e-07, "frac"), fmt_number(99.9999754, "pct")
+    ('4.96 %', '2.46e-07', '99.999975')
+    """
+    if value is None:
+        return "open"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if style == "int":
+        return f"{int(value)}"
+    if style == "log":
+        return f"{value:.3f}"
+    if style == "pH":
+        return f"{value:.2f}"
+    if style == "r":
+        return f"{value:.3f}"
+    if style == "se":
+        return f"{value:.2g}"
+    if style == "frac":
+        return f"{value:.3g}"
+    if style == "pct":                      # a percentage; the unit is written beside it
+        return fmt_pct(value)
+    if style == "f2":
+        return f"{value:.2f}"
+    if style == "rel":                      # a relative SD held as a fraction, shown in percent
+        return format(value, ".2%").replace("%", " %")
+    if style == "mL":
+        return f"{value:g}"
+    if style == "g":
+        return f"{value:.4g}"
+    raise ValueError(f"unknown number style {style!r}")
+
+
+# -- what each quantity is ----------------------------------------------------------------------
+_PARAMETER_TEXT = {
+    "logK": "log K, partition coefficient of the neutral form (log10)",
+    "pKa": "pKa",
+    "pKa1": "pKa1 (first acid dissociation constant)",
+    "pKa2": "pKa2 (second acid dissociation constant)",
+    "logK_ion": "log K of the ion pair (log10)",
+}
+_STAT_TEXT = {
+    "value": "", "se": "standard error of", "ci95_lo": "lower end of the 95 % interval of",
+    "ci95_hi": "upper end of the 95 % interval of",
+    "pi95_lo": "lower end of the 95 % range of one future run of",
+    "pi95_hi": "upper end of the 95 % range of one future run of",
+}
+
+
+def parameter_text(name: str) -> str:
+    return _PARAMETER_TEXT.get(name, name)
+
+
+def _style_of_parameter(name: str) -> str:
+    return "log"
+
+
+@dataclass(frozen=True)
+class Number:
+    """One reported number with its identifier and where in the study dict it sits."""
+
+    study: str
+    quantity: str            # e.g. "logK", "P1/recovery_pct", "P1/remaining_after/2"
+    statistic: str           # "value", "se", "ci95_lo", "ci95_hi", "pi95_lo", "pi95_hi"
+    value: float | int | None
+    style: str
+    source: str              # JSON pointer into the study dict
+    unit: str = ""
+
+    @property
+    def identifier(self) -> str:
+        tail = "" if self.statistic == "value" else "/" + self.statistic
+        return f"{safe_name(self.study)}/{self.quantity}{tail}"
+
+    @property
+    def anchor(self) -> str:
+        return self.identifier
+
+    @property
+    def display(self) -> str:
+        """The number as the page shows it, with "%" where the quantity is a percentage."""
+        text = fmt_number(self.value, self.style)
+        return f"{text} %" if self.unit == "%" and self.value is not None else text
+
+
+@dataclass(frozen=True)
+class Quantity:
+    """A reported quantity: its value and, where there are, SE and interval ends."""
+
+    study: str
+    name: str                # identifier tail, e.g. "P1/recovery_pct"
+    description: str
+    unit: str
+    method: str | None
+    numbers: tuple[Number, ...] = field(default_factory=tuple)
+
+    @property
+    def identifier(self) -> str:
+        return f"{safe_name(self.study)}/{self.name}"
+
+    def get(self, statistic: str) -> Number | None:
+        for n in self.numbers:
+            if n.statistic == statistic:
+                return n
+        return None
+
+    def interval_text(self) -> str:
+        lo, hi = self.get("ci95_lo") or self.get("pi95_lo"), self.get("ci95_hi") or self.get(
+            "pi95_hi")
+        if lo is None or hi is None:
+            return ""
+        kind = "95 % interval" if lo.statistic.startswith("ci") else "95 % range of one run"
+        return f"{kind} {lo.display} to {hi.display}"
+
+    def citation(self, number: Number, dossier_version: str, software: str) -> str:
+        """A copy-ready line: identifier, value, interval, unit, study, dossier version."""
+        head = f"{number.identifier} = {number.display}"
+        if number.statistic == "value":
+            extra = []
+            se = self.get("se")
+            if se is not None:
+                extra.append(f"SE {se.display}")
+            iv = self.interval_text()
+            if iv:
+                extra.append(iv + (f", {self.method}" if self.method else ""))
+            what = self.description + (f" [{self.unit}]" if self.unit not in ("", "%") else "")
+            body = f"{what}" + (f"; {'; '.join(extra)}" if extra else "")
+        else:
+            body = f"{_STAT_TEXT[number.statistic]} {self.description}".strip()
+            if self.unit not in ("", "%"):
+                body += f" [{self.unit}]"
+        return (f"{head} ({body}). Study {self.study}, extraction validation dossier "
+                f"{dossier_version}, {software}.")
+
+
+def _q(study, name, description, unit, method, base, stats, style, d) -> Quantity | None:
+    """A quantity from ``base`` (pointer parts to an entry with value/se/ci95)."""
+    entry = _get(d, base)
+    if entry is None:
+        return None
+    nums = []
+    for stat in stats:
+        if stat == "value":
+            parts = base + ["value"] if isinstance(entry, dict) else base
+        elif stat == "se":
+            parts = base + ["se"]
+        elif stat in ("ci95_lo", "pi95_lo"):
+            parts = base + ["ci95", 0]
+        else:
+            parts = base + ["ci95", 1]
+        p = pointer(*parts)
+        try:
+            value = resolve(d, p)
+        except (KeyError, IndexError, TypeError):
+            continue
+        nums.append(Number(study, name, stat, value, "se" if stat == "se" else style, p, unit))
+    if not nums:
+        return None
+    return Quantity(study, name, description, unit, method, tuple(nums))
+
+
+def _get(d, parts):
+    try:
+        return resolve(d, pointer(*parts))
+    except (KeyError, IndexError, TypeError):
+        return None
+
+
+VALUE_CI = ("value", "ci95_lo", "ci95_hi")
+
+
+def study_register(d: dict) -> list[Quantity]:
+    """Every reported number of one study dict, grouped by quantity, in page order."""
+    sid = d["study"]
+    out: list[Quantity | None] = []
+    for name, p in d.get("parameters", {}).items():
+        out.append(_q(sid, safe_name(name), parameter_text(name), "", p.get("ci95_method"),
+                      ["parameters", name], ("value", "se", "ci95_lo", "ci95_hi"),
+                      _style_of_parameter(name), d))
+    st = d.get("statistics")
+    if st:
+        out.append(_q(sid, "residual_sd", "residual SD, relative SD of one measured amount",
+                      "", None, ["statistics", "residual_sd"], ("value",), "rel", d))
+        out.append(_q(sid, "dof", "degrees of freedom of the fit", "", None,
+                      ["statistics", "dof"], ("value",), "int", d))
+        out.append(_q(sid, "n_fitted", "number of runs in the fit", "", None,
+                      ["statistics", "n_fitted"], ("value",), "int", d))
+    corr = d.get("correlation")
+    if corr:
+        names = corr["parameters"]
+        for i in range(len(names)):
+            for j in range(i + 1, len(names)):
+                out.append(_q(sid, f"correlation/{safe_name(names[i])}/{safe_name(names[j])}",
+                              f"correlation of {names[i]} and {names[j]}", "", None,
+                              ["correlation", "matrix", i, j], ("value",), "r", d))
+    rep = d.get("repeatability") or {}
+    if rep.get("rsd_pct") is not None:
+        out.append(_q(sid, "repeatability/rsd_pct", "pooled RSD of replicate runs", "%", None,
+                      ["repeatability", "rsd_pct"], ("value",), "g", d))
+    lof = d.get("lack_of_fit") or {}
+    if lof.get("F") is not None:
+        out.append(_q(sid, "lack_of_fit/F", "lack-of-fit F statistic (pure error from the "
+                      "replicates)", "", None, ["lack_of_fit", "F"], ("value",), "g", d))
+        out.append(_q(sid, "lack_of_fit/p_value", "p value of the lack-of-fit test", "", None,
+                      ["lack_of_fit", "p_value"], ("value",), "g", d))
+    out.extend(_verdict_register(sid, "criteria", d.get("verdicts") or [], ["verdicts"], d))
+    for k, pr in enumerate(d.get("procedures", [])):
+        out.extend(_procedure_register(sid, k, pr, d))
+    side = (d.get("outlier_screen") or {}).get("without_flagged") or {}
+    for name, p in (side.get("parameters") or {}).items():
+        out.append(_q(sid, f"without_flagged/{safe_name(name)}",
+                      f"{parameter_text(name)}, fitted without the flagged runs", "",
+                      p.get("ci95_method"),
+                      ["outlier_screen", "without_flagged", "parameters", name],
+                      ("value", "se", "ci95_lo", "ci95_hi"), "log", d))
+    for k, pr in enumerate(side.get("procedures") or []):
+        out.append(_q(sid, f"without_flagged/{safe_name(pr['id'])}/recovery_pct",
+                      f"predicted recovery of procedure {pr['id']}, fitted without the flagged "
+                      "runs", "%", pr["recovery_pct"].get("ci95_method"),
+                      ["outlier_screen", "without_flagged", "procedures", k, "recovery_pct"],
+                      VALUE_CI, "pct", d))
+    return [q for q in out if q is not None]
+
+
+def _verdict_register(sid: str, prefix: str, verdicts: list, base: list, d: dict) -> list:
+    """The number behind each acceptance verdict, named by its criterion."""
+    out, seen = [], {}
+    for i, v in enumerate(verdicts):
+        if v.get("value") is None:
+            continue
+        name = safe_name(v["criterion"])
+        seen[name] = seen.get(name, 0) + 1
+        if seen[name] > 1:
+            name = f"{name}-{seen[name]}"
+        out.append(_q(sid, f"{prefix}/{name}", f"value judged by the criterion "
+                      f"{v['criterion']} ({v['status']})", "", v.get("detail"),
+                      base + [i, "value"], ("value",), "g", d))
+    return out
+
+
+def _procedure_register(sid: str, k: int, pr: dict, d: dict) -> list[Quantity | None]:
+    pid = safe_name(pr["id"])
+    base = ["procedures", k]
+    at = f"at pH {pr['pH']:g}"
+    out = [
+        _q(sid, f"{pid}/recovery_pct", f"predicted recovery of procedure {pr['id']}", "%",
+           pr["recovery_pct"].get("ci95_method"), base + ["recovery_pct"], VALUE_CI, "pct", d),
+        _q(sid, f"{pid}/remaining_fraction",
+           f"fraction left in the aqueous phase after procedure {pr['id']}", "fraction",
+           pr["remaining_fraction"].get("ci95_method"), base + ["remaining_fraction"],
+           VALUE_CI, "frac", d),
+        _q(sid, f"{pid}/single_run_recovery_pct",
+           f"recovery of one future run of procedure {pr['id']}", "%",
+           pr["single_run_recovery_pct"].get("ci95_method"),
+           base + ["single_run_recovery_pct"], ("value", "pi95_lo", "pi95_hi"), "pct", d),
+        _q(sid, f"{pid}/log_d", f"log D {at} (procedure {pr['id']})", "",
+           pr["log_d"].get("ci95_method"), base + ["log_d"],
+           ("value", "se", "ci95_lo", "ci95_hi"), "log", d),
+    ]
+    for i, ap in enumerate(pr.get("after_portions", [])):
+        n = ap["portions"]
+        out.append(_q(sid, f"{pid}/remaining_after/{n}",
+                      f"fraction left after portion {n} of procedure {pr['id']}", "fraction",
+                      ap.get("ci95_method"), base + ["after_portions", i], VALUE_CI, "frac", d))
+    out.append(_q(sid, f"{pid}/split_limit_remaining_fraction",
+                  f"fraction left when the total solvent of procedure {pr['id']} is split "
+                  "into ever more portions (the limit)", "fraction",
+                  pr["split_limit_remaining_fraction"].get("ci95_method"),
+                  base + ["split_limit_remaining_fraction"], VALUE_CI, "frac", d))
+    out.append(_q(sid, f"{pid}/split_limit_recovery_pct",
+                  f"recovery in the limit of ever more portions (procedure {pr['id']})", "%",
+                  None, base + ["split_limit_recovery_pct"], ("value",), "pct", d))
+    wc = pr.get("worst_case") or {}
+    if wc:
+        out.append(_q(sid, f"{pid}/worst_case/recovery_lo_pct",
+                      f"lower 95 % end of recovery in the worst corner of the tolerances of "
+                      f"procedure {pr['id']}", "%", None, base + ["worst_case", "recovery_pct"],
+                      ("value",), "pct", d))
+        out.append(_q(sid, f"{pid}/worst_case/predicted_recovery_pct",
+                      f"predicted recovery in the worst corner of the tolerances of procedure "
+                      f"{pr['id']}", "%", None, base + ["worst_case", "predicted_recovery_pct"],
+                      ("value",), "pct", d))
+        out.append(_q(sid, f"{pid}/worst_case/pH",
+                      f"pH of the worst corner of the tolerances of procedure {pr['id']}", "",
+                      None, base + ["worst_case", "pH"], ("value",), "pH", d))
+    if pr.get("steps_needed"):
+        out.append(_q(sid, f"{pid}/steps_needed",
+                      f"fewest portions meeting the target at the lower 95 % end "
+                      f"(procedure {pr['id']})", "portions", pr.get("steps_needed_note"),
+                      base + ["steps_needed", "portions"], ("value",), "int", d))
+    if pr.get("pH_window"):
+        for i, end in enumerate(("lo", "hi")):
+            out.append(_q(sid, f"{pid}/pH_window/{end}",
+                          f"{'lower' if i == 0 else 'upper'} edge of the pH window meeting the "
+                          f"target (procedure {pr['id']})", "", pr.get("pH_window_note"),
+                          base + ["pH_window", i], ("value",), "pH", d))
+    out.extend(_verdict_register(sid, f"{pid}/criteria", pr.get("verdicts") or [],
+                                 base + ["verdicts"], d))
+    for i, row in enumerate(pr.get("best_split", [])):
+        n = row["portions"]
+        out.append(_q(sid, f"{pid}/equal_split/{n}/recovery_pct",
+                      f"predicted recovery with the total solvent of procedure {pr['id']} in "
+                      f"{n} equal portion{'s' if n != 1 else ''}", "%", None,
+                      base + ["best_split", i, "recovery_pct"], ("value",), "pct", d))
+        out.append(_q(sid, f"{pid}/equal_split/{n}/recovery_lo_pct",
+                      f"lower 95 % end of recovery with the total solvent of procedure "
+                      f"{pr['id']} in {n} equal portion{'s' if n != 1 else ''}", "%", None,
+                      base + ["best_split", i, "recovery_lo_pct"], ("value",), "pct", d))
+    return out
+
+
+# -- exports ------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Dossier:
+    """What every page and export shows about the dossier as a whole."""
+
+    version: str             # dossier version id, e.g. "dv-3f2a9c1e0b7d"
+    software: str            # e.g. "extractval 0.1.0"
+    build_date: str          # ISO 8601, UTC
+
+
+def register_rows(quantities: list[Quantity], dossier: Dossier, page: str) -> list[dict]:
+    """One row per identifier, for results.json and results.csv."""
+    rows = []
+    for q in quantities:
+        for n in q.numbers:
+            rows.append({
+                "id": n.identifier,
+                "study": q.study,
+                "quantity": q.name,
+                "statistic": n.statistic,
+                "value": n.value,
+                "unit": q.unit,
+                "display": n.display,
+                "description": q.description,
+                "method": q.method,
+                "citation": q.citation(n, dossier.version, dossier.software),
+                "url": f"{page}#{n.anchor}",
+            })
+    return rows
+
+
+def results_json(rows: list[dict], dossier: Dossier, studies: list[dict]) -> bytes:
+    doc = {
+        "dossier_version": dossier.version,
+        "software": dossier.software,
+        "build_date": dossier.build_date,
+        "studies": studies,
+        "numbers": rows,
+    }
+    return (json.dumps(doc, indent=1, ensure_ascii=True, allow_nan=False) + "\n").encode()
+
+
+CSV_COLUMNS = ("id", "study", "quantity", "statistic", "value", "unit", "display",
+               "description", "method", "citation", "url")
+_NUMBER_TEXT = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?( ?%)?")
+
+
+def csv_cell(value) -> str | float | int:
+    """A cell a spreadsheet will not run: text starting with = + - @ (or tab, CR) is prefixed
+    with a single quote, unless it is just a number such as "-1.200" (OWASP CSV injection
+    advice, from memory). Numbers stay numbers.
+
+    >>> csv_cell("=HYPERLINK(1)"), csv_cell("-1.200"), csv_cell(-1.2), csv_cell("@x")
+    ("'=HYPERLINK(1)", '-1.200', -1.2, "'@x")
+    """
+    if value is None:
+        return ""
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return value
+    text = str(value)
+    if text[:1] in ("=", "+", "-", "@", "\t", "\r") and not _NUMBER_TEXT.fullmatch(text):
+        return "'" + text
+    return text
+
+
+def results_csv(rows: list[dict]) -> bytes:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\r\n")
+    w.writerow(CSV_COLUMNS)
+    for row in rows:
+        w.writerow([csv_cell(row[c]) for c in CSV_COLUMNS])   # a float is written as repr
+    return buf.getvalue().encode("utf-8")

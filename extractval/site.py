@@ -1,0 +1,564 @@
+"""Build orchestration of the dossier: read, fit (cached), render, build the site, publish.
+
+The steps, each of which leaves the published site alone until the last:
+
+1. find the study folders and read each one (located errors, never a traceback);
+2. fit each study and draw its plots, reusing the cache entry whose key (a hash of the study's
+   content and of the software) matches, in parallel on the machine's cores;
+3. render every page and export (:mod:`extractval.report`);
+4. build the site with the generator (:mod:`extractval.mkdocs_plugin`, strict) into a
+   temporary folder beside the target;
+5. replace the published site by the new one only when everything succeeded.
+
+A study with errors stops the build before step 4 (the old site stays); with ``keep_going``
+the others are published and the broken one gets a page listing its errors.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import dataclasses
+import hashlib
+import json
+import multiprocessing
+import os
+import shutil
+import sys
+import tempfile
+import threading
+import time
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Callable
+
+from . import __version__
+from .report.pages import Pages, StudyInput, nav, study_page_path
+from .report.plots import study_plots
+from .report.register import Dossier
+
+SOFTWARE = f"extractval {__version__}"
+CACHE_DIR = ".extractval-cache"
+CACHE_FORMAT = "v1"
+#: written into every site this tool publishes; a folder without it is never replaced
+MARKER = ".extractval-dossier"
+CONFIG = "mkdocs.yml"
+
+
+class SiteBuildError(Exception):
+    """The dossier could not be built; the message lists every located problem."""
+
+
+# -- software and content fingerprints ------------------------------------------------------------
+def _sha(*parts: bytes | str) -> str:
+    h = hashlib.sha256()
+    for p in parts:
+        b = p.encode("utf-8") if isinstance(p, str) else p
+        h.update(len(b).to_bytes(8, "big"))
+        h.update(b)
+    return h.hexdigest()
+
+
+_SOFTWARE_FP: str | None = None
+
+
+def software_fingerprint() -> str:
+    """The version and the source of the package and matplotlib's version: what the numbers
+    and plots depend on besides the inputs (a code change invalidates the cache)."""
+    global _SOFTWARE_FP
+    if _SOFTWARE_FP is None:
+        import matplotlib
+
+        pkg = Path(__file__).resolve().parent
+        parts: list[bytes | str] = [__version__, matplotlib.__version__]
+        for f in sorted(pkg.rglob("*.py")):
+            parts += [f.relative_to(pkg).as_posix(), f.read_bytes()]
+        _SOFTWARE_FP = _sha(*parts)
+    return _SOFTWARE_FP
+
+
+def _record(study) -> str:
+    """A stable text of everything a Study says (its folder's place on disk left out)."""
+    return repr(dataclasses.replace(study, folder=Path(study.study_id)))
+
+
+def inputs_key(study) -> str:
+    """The study's own inputs: the SHA-256 of each file read, or the record for a study
+    made in memory. Shown on the study page; changes only when the study's files change."""
+    if study.inputs:
+        text = "\n".join(f"{f.path}\t{f.sha256}" for f in sorted(study.inputs,
+                                                                   key=lambda f: f.path))
+    else:
+        text = _record(study)
+    return "sv-" + _sha(text)[:12]
+
+
+def _folder_key(folder: Path | None, errors) -> str:
+    """For a study that could not be read: its files' bytes (and what went wrong)."""
+    parts: list[bytes | str] = list(errors)
+    if folder is not None and folder.is_dir():
+        for f in sorted(p for p in folder.rglob("*") if p.is_file()):
+            parts += [f.relative_to(folder).as_posix(), f.read_bytes()]
+    return "sv-" + _sha(*parts)[:12]
+
+
+# -- sources of studies ---------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Source:
+    """Where one study comes from: a folder, or (tests, benchmarks) a Study in memory."""
+
+    study_id: str
+    folder: Path | None = None
+    study: object | None = None
+
+    def load(self) -> tuple[object | None, list[str]]:
+        """(Study or None, located error lines). Warnings stay inside the Study."""
+        if self.study is not None:
+            return self.study, []
+        from .study import check_study
+
+        study, problems = check_study(self.folder)
+        errors = [str(p) for p in problems if p.severity == "error"]
+        return (study if not errors else None), errors
+
+
+def discover(studies_dir: Path) -> list[Source]:
+    """Every study folder under ``studies_dir``, sorted by id (the folder name)."""
+    from .errors import StudyError
+    from .study import discover_studies
+
+    try:
+        folders = discover_studies(studies_dir)
+    except StudyError as exc:
+        raise SiteBuildError("\n".join(str(p) for p in exc.problems)) from None
+    return [Source(f.name, folder=f) for f in folders]
+
+
+# -- fitting and plotting, with a cache -----------------------------------------------------------
+def compute(study) -> tuple[str, dict[str, bytes]]:
+    """Fit one study: its dict as JSON text, and its plots. Runs in a worker process."""
+    from .analysis import fit_study
+
+    text = json.dumps(fit_study(study).to_dict(), allow_nan=False)
+    return text, study_plots(json.loads(text))
+
+
+class Cache:
+    """Per study, the fitted dict and the plots, under a key of study content and software.
+
+    Layout: ``<root>/v1/<study-id>/<key>/report.json`` and ``plots/*.svg``. The folder is
+    safe to delete at any time; only the newest entry of each study is kept.
+    """
+
+    def __init__(self, root: Path | None):
+        self.root = None if root is None else Path(root) / CACHE_FORMAT
+
+    def key(self, study) -> str:
+        return _sha(software_fingerprint(), _record(study))[:24]
+
+    def get(self, study_id: str, key: str) -> tuple[str, dict[str, bytes]] | None:
+        if self.root is None:
+            return None
+        entry = self.root / study_id / key
+        try:
+            text = (entry / "report.json").read_text(encoding="utf-8")
+            plots = {p.name: p.read_bytes() for p in sorted((entry / "plots").glob("*.svg"))}
+        except OSError:
+            return None
+        return text, plots
+
+    def put(self, study_id: str, key: str, text: str, plots: dict[str, bytes]) -> None:
+        if self.root is None:
+            return
+        base = self.root / study_id
+        try:
+            base.mkdir(parents=True, exist_ok=True)
+            tmp = Path(tempfile.mkdtemp(prefix=".tmp-", dir=base))
+            (tmp / "plots").mkdir()
+            for name, data in plots.items():
+                (tmp / "plots" / name).write_bytes(data)
+            (tmp / "report.json").write_text(text, encoding="utf-8")
+            final = base / key
+            if final.exists():
+                shutil.rmtree(final, ignore_errors=True)
+            os.replace(tmp, final)
+            for old in base.iterdir():
+                if old.name != key:
+                    shutil.rmtree(old, ignore_errors=True)
+        except OSError:
+            pass        # a cache that cannot be written only costs time
+
+
+# -- preparing the dossier ------------------------------------------------------------------------
+@dataclass
+class Outcome:
+    """One study after reading and fitting."""
+
+    study_id: str
+    data: dict | None
+    plots: dict[str, bytes]
+    errors: list[str]
+    key: str
+    runs: int = 0
+    cached: bool = False
+    seconds: float = 0.0
+
+
+@dataclass
+class Prepared:
+    """Everything the site generator needs: files by site path, the navigation, the footer."""
+
+    files: dict[str, bytes]
+    nav: list
+    footer: str
+    dossier: Dossier
+    outcomes: list[Outcome] = field(default_factory=list)
+
+    @property
+    def failed(self) -> list[Outcome]:
+        return [o for o in self.outcomes if o.data is None]
+
+
+def build_date() -> tuple[str, int]:
+    """The build's date as shown (UTC) and its epoch: SOURCE_DATE_EPOCH when set, else now."""
+    raw = os.environ.get("SOURCE_DATE_EPOCH")
+    if raw is not None and raw.strip():
+        try:
+            epoch = int(raw.strip())
+        except ValueError:
+            raise SiteBuildError(f"SOURCE_DATE_EPOCH: found {raw!r}; expected whole seconds "
+                                 "since 1970-01-01 UTC, e.g. 1767225600") from None
+    else:
+        epoch = int(time.time())
+    stamp = datetime.fromtimestamp(epoch, timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+    return stamp, epoch
+
+
+def _progress_line(i: int, n: int, o: Outcome) -> str:
+    width = len(str(n))
+    bar = ""
+    if n >= 10:
+        filled = round(20 * i / n)
+        bar = "[" + "#" * filled + "." * (20 - filled) + "] "
+    if o.data is None:
+        state = f"ERROR ({len(o.errors)} problem{'s' if len(o.errors) != 1 else ''})"
+    elif o.data.get("problems"):
+        state = "not fitted"
+    else:
+        state = "fitted"
+    how = "cached" if o.cached else f"{o.seconds:.1f} s"
+    return f"{bar}{i:>{width}}/{n} {o.study_id:<20} {state:<14} {o.runs:>3} runs  {how}"
+
+
+def _pool(n_jobs: int) -> ProcessPoolExecutor:
+    # fork is quick and safe while this is the only thread; otherwise (the preview server
+    # runs threads) start clean workers
+    method = "fork" if threading.active_count() == 1 and sys.platform != "win32" else "spawn"
+    return ProcessPoolExecutor(n_jobs, mp_context=multiprocessing.get_context(method))
+
+
+@contextlib.contextmanager
+def _working_folder(folder: Path | None):
+    """Run the readers from ``folder``: the file names in their messages (and so on the
+    pages) are then relative to it, whatever folder the command was started in."""
+    if folder is None:
+        yield
+        return
+    here = os.getcwd()
+    os.chdir(folder)
+    try:
+        yield
+    finally:
+        os.chdir(here)
+
+
+def collect(sources: list[Source], cache: Cache, jobs: int = 0,
+            progress: Callable[[str], None] | None = None,
+            display_root: Path | None = None) -> list[Outcome]:
+    """Read every study, then fit the ones the cache does not hold (in parallel).
+
+    File names in messages are given relative to ``display_root`` (the studies folder's
+    parent), so that a page does not depend on where the build was started.
+    """
+    outcomes: dict[str, Outcome] = {}
+    todo: list[tuple[Source, object, str]] = []
+    n, done = len(sources), 0
+
+    def report(o: Outcome) -> None:
+        nonlocal done
+        done += 1
+        outcomes[o.study_id] = o
+        if progress:
+            progress(_progress_line(done, n, o))
+
+    for src in sources:
+        t0 = time.perf_counter()
+        try:
+            with _working_folder(display_root):
+                study, errors = src.load()
+        except Exception as exc:       # a reader bug must not hide the other studies
+            study, errors = None, [f"{src.study_id}: the study could not be read "
+                                   f"({type(exc).__name__}: {exc}); this is a fault in "
+                                   "extractval, please report it"]
+        if study is None:
+            report(Outcome(src.study_id, None, {}, errors, _folder_key(src.folder, errors),
+                           seconds=time.perf_counter() - t0))
+            continue
+        key = cache.key(study)
+        hit = cache.get(src.study_id, key)
+        if hit is not None:
+            text, plots = hit
+            report(Outcome(src.study_id, json.loads(text), plots, [], inputs_key(study),
+                           len(study.runs), cached=True))
+        else:
+            todo.append((src, study, key))
+
+    def finish(src, study, key, text, plots, seconds):
+        cache.put(src.study_id, key, text, plots)
+        report(Outcome(src.study_id, json.loads(text), plots, [], inputs_key(study),
+                       len(study.runs), seconds=seconds))
+
+    def failed(src, study, exc):
+        report(Outcome(src.study_id, None, {}, [
+            f"{src.study_id}: the fit stopped ({type(exc).__name__}: {exc}); this is a fault "
+            "in extractval, please report it"], inputs_key(study), len(study.runs)))
+
+    jobs = jobs or (os.cpu_count() or 1)
+    if len(todo) >= 3 and jobs > 1:
+        with _pool(min(jobs, len(todo))) as pool:
+            started = {pool.submit(compute, study): (src, study, key, time.perf_counter())
+                       for src, study, key in todo}
+            for fut in as_completed(started):
+                src, study, key, t0 = started[fut]
+                try:
+                    text, plots = fut.result()
+                except Exception as exc:
+                    failed(src, study, exc)
+                    continue
+                finish(src, study, key, text, plots, time.perf_counter() - t0)
+    else:
+        for src, study, key in todo:
+            t0 = time.perf_counter()
+            try:
+                text, plots = compute(study)
+            except Exception as exc:
+                failed(src, study, exc)
+                continue
+            finish(src, study, key, text, plots, time.perf_counter() - t0)
+    return [outcomes[s.study_id] for s in sources]
+
+
+def dossier_version(outcomes: list[Outcome], templates_dir: Path, config_file: Path | None) -> str:
+    """A short id of the content of every input, the templates, the config and the software."""
+    parts: list[bytes | str] = [software_fingerprint()]
+    for f in sorted(p for p in Path(templates_dir).rglob("*") if p.is_file()):
+        parts += [f.relative_to(templates_dir).as_posix(), f.read_bytes()]
+    if config_file is not None and Path(config_file).is_file():
+        parts.append(Path(config_file).read_bytes())
+    for o in sorted(outcomes, key=lambda o: o.study_id):
+        parts += [o.study_id, o.key, "ok" if o.data is not None else "failed"]
+    return "dv-" + _sha(*parts)[:12]
+
+
+def render(outcomes: list[Outcome], templates_dir: Path, config_file: Path | None,
+           date: str) -> Prepared:
+    """All files of the site from the outcomes (pages, plots, exports, CSS)."""
+    dossier = Dossier(dossier_version(outcomes, templates_dir, config_file), SOFTWARE, date)
+    inputs = [StudyInput(o.study_id, o.data, tuple(o.errors), tuple(sorted(o.plots)), o.key)
+              for o in outcomes]
+    ok = [o for o in outcomes if o.data is not None]
+    runs = {k: sum(o.data["runs"][k] for o in ok) for k in ("total", "used", "excluded")}
+    n_failed = len(outcomes) - len(ok)
+    counts = {
+        "studies_text": f"{len(outcomes)}" + (f" ({n_failed} not published: input errors)"
+                                              if n_failed else ""),
+        "runs_text": f"{runs['total']} ({runs['used']} used, {runs['excluded']} excluded)",
+    }
+    files = Pages(templates_dir).dossier_files(inputs, dossier, counts)
+    for o in outcomes:
+        folder = study_page_path(o.study_id).rsplit("/", 1)[0]
+        for name, data in sorted(o.plots.items()):
+            files[f"{folder}/{name}"] = data
+    footer = f"Dossier {dossier.version} · {dossier.software} · built {dossier.build_date}"
+    return Prepared(files, nav(inputs), footer, dossier, outcomes)
+
+
+def _failure_text(failed: list[Outcome]) -> str:
+    lines = []
+    for o in failed:
+        lines.append(f"study {o.study_id}: {len(o.errors)} error(s)")
+        lines.extend(f"  {e}" for e in o.errors)
+    return "\n".join(lines)
+
+
+def prepare(studies_dir: Path | None, templates_dir: Path, config_file: Path | None, *,
+            keep_going: bool = False, cache_dir: Path | None = None, jobs: int = 0,
+            progress: Callable[[str], None] | None = None,
+            sources: list[Source] | None = None) -> Prepared:
+    """Read, fit and render every study: the site's files, ready for the generator.
+
+    Raises :class:`SiteBuildError` (with every located error) when a study cannot be read,
+    unless ``keep_going``.
+    """
+    display_root = None
+    if sources is None:
+        studies_dir = Path(studies_dir).resolve()
+        sources = discover(studies_dir)
+        display_root = studies_dir.parent
+    if cache_dir is None and config_file is not None:
+        cache_dir = Path(config_file).resolve().parent / CACHE_DIR
+    outcomes = collect(sources, Cache(cache_dir), jobs, progress, display_root)
+    failed = [o for o in outcomes if o.data is None]
+    if failed and not keep_going:
+        raise SiteBuildError(_failure_text(failed) + "\nthe site was not built; correct the "
+                             "files above, or use --keep-going to publish the other studies")
+    date, _ = build_date()
+    return render(outcomes, Path(templates_dir), config_file, date)
+
+
+# -- publishing -----------------------------------------------------------------------------------
+def _check_target(site_dir: Path, protected: list[Path]) -> None:
+    site_dir = site_dir.resolve()
+    for p in protected:
+        p = p.resolve()
+        if site_dir == p or p.is_relative_to(site_dir):
+            raise SiteBuildError(f"{site_dir}: the site folder would replace {p}; choose "
+                                 "another --site")
+    if site_dir.exists():
+        if not site_dir.is_dir():
+            raise SiteBuildError(f"{site_dir}: exists and is not a folder; choose another "
+                                 "--site")
+        if any(site_dir.iterdir()) and not (site_dir / MARKER).is_file():
+            raise SiteBuildError(f"{site_dir}: the folder holds files that extractval did not "
+                                 "publish, so it is not replaced; choose another --site or "
+                                 "empty it")
+
+
+def publish(built: Path, site_dir: Path) -> None:
+    """Put the finished site in place of the old one (two renames on the same disk)."""
+    if site_dir.exists():
+        old = Path(tempfile.mkdtemp(prefix=f".{site_dir.name}.old-", dir=site_dir.parent))
+        os.rmdir(old)
+        os.replace(site_dir, old)
+        try:
+            os.replace(built, site_dir)
+        except OSError:
+            os.replace(old, site_dir)
+            raise
+        shutil.rmtree(old, ignore_errors=True)
+    else:
+        os.replace(built, site_dir)
+
+
+@dataclass
+class BuildResult:
+    site_dir: Path
+    prepared: Prepared
+    seconds: float
+
+
+def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
+          keep_going: bool = False, cache_dir: Path | None = None, jobs: int = 0,
+          progress: Callable[[str], None] | None = None,
+          sources: list[Source] | None = None) -> BuildResult:
+    """The whole build; on any failure the published ``site_dir`` is left as it was."""
+    from . import mkdocs_plugin
+
+    t0 = time.perf_counter()
+    config_file = Path(config_file).resolve()
+    if not config_file.is_file():
+        raise SiteBuildError(f"{config_file}: no such file; expected the site's mkdocs.yml")
+    site_dir = Path(site_dir).resolve()
+    templates_dir = mkdocs_plugin.docs_dir(config_file)
+    protected = [config_file.parent, templates_dir]
+    if studies_dir is not None:
+        protected.append(Path(studies_dir))
+    _check_target(site_dir, protected)
+    prepared = prepare(studies_dir, templates_dir, config_file, keep_going=keep_going,
+                       cache_dir=cache_dir, jobs=jobs, progress=progress, sources=sources)
+    site_dir.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{site_dir.name}.building-", dir=site_dir.parent))
+    try:
+        _, epoch = build_date()
+        saved = os.environ.get("SOURCE_DATE_EPOCH")
+        os.environ["SOURCE_DATE_EPOCH"] = str(epoch)   # the generator's dates match ours
+        try:
+            mkdocs_plugin.build_site(config_file, tmp, prepared)
+        finally:
+            if saved is None:
+                os.environ.pop("SOURCE_DATE_EPOCH", None)
+            else:
+                os.environ["SOURCE_DATE_EPOCH"] = saved
+        (tmp / MARKER).write_text(f"{prepared.dossier.version}\n", encoding="utf-8")
+        os.chmod(tmp, 0o755)        # mkdtemp makes it private; a web server must read it
+        publish(tmp, site_dir)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    return BuildResult(site_dir, prepared, time.perf_counter() - t0)
+
+
+# -- the commands ---------------------------------------------------------------------------------
+def project_root(start: Path | None = None) -> Path:
+    """The nearest folder at or above ``start`` (default: the working folder) holding
+    mkdocs.yml; else the working folder."""
+    here = Path(start or Path.cwd()).resolve()
+    for p in (here, *here.parents):
+        if (p / CONFIG).is_file():
+            return p
+    return here
+
+
+def _paths(args) -> tuple[Path, Path, Path]:
+    root = project_root()
+    config = Path(getattr(args, "config", None) or root / CONFIG)
+    if not config.is_file():
+        raise SiteBuildError(f"{config}: no such file; run the command in the project folder "
+                             "(the one holding mkdocs.yml) or pass --config")
+    base = config.resolve().parent
+    studies = Path(args.studies) if getattr(args, "studies", None) else base / "studies"
+    site_dir = Path(args.site) if getattr(args, "site", None) else base / "site"
+    return config, studies, site_dir
+
+
+def build_command(args) -> int:
+    """``extractval build``: exit 0 when the site was published, 1 otherwise."""
+    def say(line: str) -> None:
+        print(line, flush=True)
+
+    try:
+        config, studies, site_dir = _paths(args)
+        result = build(studies, site_dir, config, keep_going=getattr(args, "keep_going", False),
+                       cache_dir=getattr(args, "cache_dir", None),
+                       jobs=getattr(args, "jobs", 0) or 0, progress=say)
+    except SiteBuildError as exc:
+        print(str(exc), file=sys.stderr)
+        print("build failed: the published site was left as it was", file=sys.stderr)
+        return 1
+    p = result.prepared
+    failed = p.failed
+    for o in failed:
+        for e in o.errors:
+            print(e, file=sys.stderr)
+    n_cached = sum(o.cached for o in p.outcomes)
+    summary = (f"built {len(p.outcomes)} stud{'y' if len(p.outcomes) == 1 else 'ies'} "
+               f"({n_cached} from cache) into {result.site_dir} in {result.seconds:.1f} s, "
+               f"dossier {p.dossier.version}")
+    if failed:
+        summary += f"; {len(failed)} with input errors published as error pages"
+    print(summary, flush=True)
+    return 1 if failed else 0
+
+
+def serve_command(args) -> int:
+    """``extractval serve``: live preview; a study edit rebuilds its pages."""
+    from . import mkdocs_plugin
+
+    try:
+        config, studies, _ = _paths(args)
+        mkdocs_plugin.serve(config, studies.resolve(), getattr(args, "addr", "127.0.0.1:8000"))
+    except SiteBuildError as exc:
+        print(str(exc), file=sys.stderr)
+        return 1
+    return 0

@@ -1,0 +1,168 @@
+"""The demo dossier in a real browser: Debian's Chromium driven by Playwright, on 127.0.0.1.
+
+Locally these tests skip, saying why, when no Chromium is installed; in CI (``CI=true``) a
+missing browser is a failure. Playwright's own browser downloads are never used: the system
+Chromium is launched through ``executable_path``. Screenshots go to test-artifacts/.
+"""
+
+from __future__ import annotations
+
+import functools
+import http.server
+import os
+import threading
+from pathlib import Path
+from urllib.parse import urlsplit
+
+import pytest
+
+from extractval import site
+from extractval.study import load_study
+
+ROOT = Path(__file__).resolve().parent.parent
+ARTIFACTS = ROOT / "test-artifacts"
+CANDIDATES = (os.environ.get("EXTRACTVAL_CHROMIUM"), "/usr/bin/chromium",
+              "/usr/bin/chromium-browser")
+LAUNCH_ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking",
+               "--disable-component-update", "--disable-sync", "--no-first-run"]
+IN_CI = os.environ.get("CI", "").lower() == "true"
+#: the site is served from a sub-folder, as on an intranet server that hosts many things
+PREFIX = "/qa/dossiers/extraction/"
+
+
+def _unavailable(reason: str):
+    if IN_CI:
+        pytest.fail(f"CI=true and {reason}: the browser tests must run in CI", pytrace=False)
+    pytest.skip(f"{reason}; install Debian's chromium (apt-get install chromium) to run the "
+                "browser tests")
+
+
+@pytest.fixture(scope="module")
+def chromium_path() -> str:
+    for c in CANDIDATES:
+        if c and Path(c).is_file() and os.access(c, os.X_OK):
+            return c
+    _unavailable("no Chromium found at " + ", ".join(c for c in CANDIDATES if c))
+
+
+@pytest.fixture(scope="module")
+def demo_ids() -> list[str]:
+    return [s.study_id for s in site.discover(ROOT / "studies")]
+
+
+@pytest.fixture(scope="module")
+def served(demo_ids, tmp_path_factory):
+    """The demo dossier, built and served on 127.0.0.1 under PREFIX."""
+    root = tmp_path_factory.mktemp("www")
+    target = root / PREFIX.strip("/")
+    site.build(ROOT / "studies", target, ROOT / "mkdocs.yml",
+               cache_dir=tmp_path_factory.mktemp("cache"))
+    handler = functools.partial(_QuietHandler, directory=str(root))
+    server = http.server.ThreadingHTTPServer(("127.0.0.1", 0), handler)
+    thread = threading.Thread(target=server.serve_forever, daemon=True)
+    thread.start()
+    yield f"http://127.0.0.1:{server.server_address[1]}{PREFIX}"
+    server.shutdown()
+    server.server_close()
+
+
+class _QuietHandler(http.server.SimpleHTTPRequestHandler):
+    def log_message(self, *args):
+        pass
+
+
+@pytest.fixture(scope="module")
+def browser_context(chromium_path):
+    try:
+        from playwright.sync_api import sync_playwright
+    except ImportError:
+        _unavailable("the playwright package is not installed")
+    requests: list[str] = []
+    with sync_playwright() as p:
+        browser = p.chromium.launch(executable_path=chromium_path, headless=True,
+                                    args=LAUNCH_ARGS)
+        context = browser.new_context(viewport={"width": 1400, "height": 1000})
+
+        def guard(route):
+            requests.append(route.request.url)
+            if urlsplit(route.request.url).hostname == "127.0.0.1":
+                route.continue_()
+            else:
+                route.abort()           # record it, and never let it leave the machine
+
+        context.route("**/*", guard)
+        context.requests = requests
+        yield context
+        context.close()
+        browser.close()
+
+
+def shot(page, name: str) -> None:
+    ARTIFACTS.mkdir(exist_ok=True)
+    page.screenshot(path=str(ARTIFACTS / f"{name}.png"), full_page=False)
+
+
+def test_home_page_lists_every_demo_study(served, browser_context, demo_ids):
+    assert demo_ids, "the demo studies are missing from studies/"
+    page = browser_context.new_page()
+    dialogs = []
+    page.on("dialog", lambda d: (dialogs.append(d.message), d.dismiss()))
+    page.goto(served)
+    table = page.locator("article table").first
+    for study_id in demo_ids:
+        link = table.get_by_role("link", name=study_id, exact=True)
+        assert link.count() == 1, study_id
+        assert link.get_attribute("href").startswith("studies/")
+    assert page.locator("article").get_by_text("Dossier version").count() >= 1
+    shot(page, "home")
+    assert not dialogs
+    page.close()
+
+
+def test_a_study_page_shows_its_plots(served, browser_context, demo_ids):
+    page = browser_context.new_page()
+    page.goto(f"{served}studies/{demo_ids[0]}/")
+    images = page.locator(".xv-plot img")
+    assert images.count() >= 3           # log D, residuals, one per procedure
+    for i in range(images.count()):
+        img = images.nth(i)
+        img.scroll_into_view_if_needed()
+        loaded = img.evaluate("el => el.complete && el.naturalWidth > 0")
+        assert loaded, img.get_attribute("src")
+        assert img.bounding_box()["width"] > 300
+    page.locator(".xv-plot img").first.scroll_into_view_if_needed()
+    shot(page, f"study-{demo_ids[0]}-plots")
+    page.goto(f"{served}studies/{demo_ids[0]}/")
+    shot(page, f"study-{demo_ids[0]}")
+    page.close()
+
+
+def test_search_finds_a_study_by_its_analyte(served, browser_context, demo_ids):
+    study_id = demo_ids[-1]
+    analyte = load_study(ROOT / "studies" / study_id).analyte_name
+    page = browser_context.new_page()
+    page.goto(served)
+    page.locator(".md-search__input").click()
+    # the index loads in a worker; typing before it is ready is not searched
+    page.locator(".md-search-result__meta").filter(has_text="Type to start").wait_for()
+    page.locator(".md-search__input").press_sequentially(analyte, delay=30)
+    hit = page.locator(f'.md-search-result__item a[href*="studies/{study_id}/"]').first
+    hit.wait_for(state="visible", timeout=20000)
+    shot(page, "search")
+    hit.click()
+    page.wait_for_url(f"**/studies/{study_id}/**")
+    assert study_id in page.locator("h1").first.inner_text()
+    page.close()
+
+
+def test_no_request_left_127_0_0_1(served, browser_context):
+    """Runs last in this module: every request the pages made, fonts and scripts included."""
+    page = browser_context.new_page()
+    page.goto(f"{served}register/")
+    page.goto(f"{served}about/")
+    page.close()
+    requests = browser_context.requests
+    assert len(requests) > 10
+    outside = [u for u in requests if urlsplit(u).hostname != "127.0.0.1"]
+    assert not outside, outside
+

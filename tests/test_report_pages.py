@@ -1,0 +1,263 @@
+"""Report layer without a site: golden Markdown, numbers equal to the dict, escaping, register.
+
+The golden files are rendered from a stored study dict (tests/golden/SYN-GOLD.report.json, the
+engine's output for a small synthetic study), so they test the pages, not the fit. Regenerate
+both after a deliberate change with ``EXTRACTVAL_UPDATE_GOLDEN=1 python -m pytest
+tests/test_report_pages.py`` and read the diff before committing it.
+"""
+
+from __future__ import annotations
+
+import csv
+import html
+import io
+import json
+import os
+import re
+from pathlib import Path
+
+import pytest
+
+from extractval.analysis import fit_study
+from extractval.report.pages import Pages, StudyInput, nav, study_page_path
+from extractval.report.plots import study_plots
+from extractval.report.register import (Dossier, csv_cell, resolve, results_csv,
+                                        study_register)
+from extractval.report.text import md_text
+from extractval.study import Procedure
+from site_factory import synthetic_study
+
+ROOT = Path(__file__).resolve().parent.parent
+TEMPLATES = ROOT / "site_templates"
+GOLDEN = Path(__file__).resolve().parent / "golden"
+UPDATE = os.environ.get("EXTRACTVAL_UPDATE_GOLDEN") == "1"
+DOSSIER = Dossier("dv-000000000000", "extractval 0.0-test", "2026-01-01 00:00 UTC")
+SPAN = re.compile(r'<span class="xv-num"(?: id="[^"]*")? data-study="([^"]*)" '
+                  r'data-src="([^"]*)" data-value="([^"]*)">([^<]*)</span>')
+
+
+GOLD_PROCEDURES = (
+    Procedure("P1", "Three 10 mL portions at pH 10", 10.0, 25.0, (10.0, 10.0, 10.0)),
+    Procedure("P2", "One 10 mL portion at pH 5.5", 5.5, 25.0, (10.0,)),
+)
+
+
+def gold_study():
+    return synthetic_study("SYN-GOLD", title="Golden synthetic study", pH=(6.0, 7.0, 8.0, 9.0),
+                           ratios=(1.0, 2.0), replicates=1, seed=7,
+                           excluded={"R02": "emulsion"}, procedures=GOLD_PROCEDURES)
+
+
+def as_json(d: dict) -> dict:
+    """The dict as the site layer sees it (JSON round trip, as from the cache)."""
+    return json.loads(json.dumps(d, allow_nan=False))
+
+
+@pytest.fixture(scope="module")
+def gold_dict() -> dict:
+    path = GOLDEN / "SYN-GOLD.report.json"
+    if UPDATE or not path.exists():
+        d = as_json(fit_study(gold_study()).to_dict())
+        GOLDEN.mkdir(exist_ok=True)
+        path.write_text(json.dumps(d, indent=1, sort_keys=False) + "\n", encoding="utf-8")
+    return json.loads(path.read_text(encoding="utf-8"))
+
+
+@pytest.fixture(scope="module")
+def live() -> dict:
+    """A fresh fit of a study with markup in its text, for the checks that need no golden."""
+    study = synthetic_study("SYN-LIVE", title="<script>alert(1)</script> *bold* | [x](y)",
+                            analyte="SYN-<b>B</b>", organic="dichloromethane",
+                            scale={"R01": 2.5})    # an outlier, so the screens have a flag
+    return as_json(fit_study(study).to_dict())
+
+
+def gold_files(d: dict) -> dict[str, bytes]:
+    s = StudyInput("SYN-GOLD", d, plots=tuple(sorted(study_plots(d))), key="sv-000000000000")
+    broken = StudyInput("SYN-BROKEN", None, errors=(
+        "error: SYN-BROKEN/runs.csv, line 3, run 'R1', column 'pH': not a number; "
+        "found 'seven'; expected a pH between 0 and 14",))
+    counts = {"studies_text": "2 (1 not published: input errors)", "runs_text": "8"}
+    return Pages(TEMPLATES).dossier_files([s, broken], DOSSIER, counts)
+
+
+@pytest.mark.parametrize("page", ["studies/SYN-GOLD/index.md", "studies/SYN-BROKEN/index.md",
+                                  "index.md", "register.md"])
+def test_golden_markdown(gold_dict, page):
+    files = gold_files(gold_dict)
+    golden = GOLDEN / "pages" / page
+    text = files[page].decode("utf-8")
+    if UPDATE or not golden.exists():
+        golden.parent.mkdir(parents=True, exist_ok=True)
+        golden.write_text(text, encoding="utf-8")
+    assert text == golden.read_text(encoding="utf-8"), f"{page} differs from {golden.name}"
+
+
+def test_stored_dict_still_matches_the_engine(gold_dict):
+    """Every key the golden dict has (and so the templates may use) is still produced."""
+    fresh = as_json(fit_study(gold_study()).to_dict())
+
+    def keys(d, prefix=""):
+        out = set()
+        if isinstance(d, dict):
+            for k, v in d.items():
+                out.add(prefix + "/" + k)
+                out |= keys(v, prefix + "/" + k)
+        elif isinstance(d, list) and d and isinstance(d[0], dict):
+            out |= keys(d[0], prefix + "/0")
+        return out
+
+    missing = keys(gold_dict) - keys(fresh)
+    assert not missing, f"the engine no longer gives {sorted(missing)}; update the templates"
+    Pages(TEMPLATES).study_page(StudyInput("SYN-GOLD", fresh), DOSSIER)   # renders
+
+
+def _strings(d) -> list[str]:
+    if isinstance(d, str):
+        return [d]
+    if isinstance(d, dict):
+        return [s for v in d.values() for s in _strings(v)] + [str(k) for k in d]
+    if isinstance(d, list):
+        return [s for v in d for s in _strings(v)]
+    return []
+
+
+def test_every_number_on_the_page_is_the_dicts(live):
+    """Each number span holds the dict's value at its pointer and shows it as formatted;
+    outside the spans no decimal number appears except inside text the dict itself holds."""
+    page = Pages(TEMPLATES).study_page(StudyInput("SYN-LIVE", live, key="sv-x"), DOSSIER)
+    spans = SPAN.findall(page)
+    assert len(spans) > 100
+    quantities = {n.source: n for q in study_register(live) for n in q.numbers}
+    for study, src, value, shown in spans:
+        assert study == "SYN-LIVE"
+        expected = resolve(live, html.unescape(src))
+        if expected is None:
+            assert value == "" and shown in ("open", "")
+        elif isinstance(expected, float):
+            assert float(value) == expected, src        # exact: the value is copied
+        else:
+            assert value == str(expected), src
+        n = quantities.get(html.unescape(src))
+        if n is not None:
+            assert html.unescape(shown).startswith(n.display.removesuffix(" %")), src
+    # every register number is on the page
+    assert set(quantities) <= {html.unescape(s[1]) for s in spans}
+    # citation lines are the register's text: the same numbers, written by the same formatter
+    citations = {str(md_text(q.citation(n, DOSSIER.version, DOSSIER.software)))
+                 for q in study_register(live) for n in q.numbers}
+    shown_citations = re.findall(r'<code class="xv-cite">([^<]*)</code>', page)
+    assert shown_citations and set(shown_citations) <= citations
+    rest = re.sub(r'<code class="xv-cite">[^<]*</code>', " ", SPAN.sub(" ", page))
+    for text in sorted(set(_strings(live)) | {DOSSIER.version, DOSSIER.software,
+                                              DOSSIER.build_date}, key=len, reverse=True):
+        rest = rest.replace(str(md_text(text)), " ").replace(text, " ")
+    rest = re.sub(r"&#\d+;", " ", rest)                         # character references
+    rest = re.sub(r'(id|href|src|title)="[^"]*"', " ", rest)   # anchors, links, file names
+    rest = re.sub(r"\([^()]*\.svg\)", " ", rest)
+    stray = re.findall(r"\d+\.\d+", rest)
+    assert not stray, f"numbers on the page that are not from a span: {stray[:10]}"
+
+
+def test_flagged_runs_are_shown_beside_the_refit(live):
+    flags = live["outlier_screen"]["flags"]
+    assert [f["run"] for f in flags][:1] == ["R01"]
+    page = Pages(TEMPLATES).study_page(StudyInput("SYN-LIVE", live), DOSSIER)
+    assert "Runs flagged by the screens" in page
+    assert 'data-src="/outlier_screen/without_flagged/parameters/logK/value"' in page
+    assert 'id="SYN-LIVE/without_flagged/logK"' in page
+
+
+def test_study_text_is_shown_as_text(live):
+    page = Pages(TEMPLATES).study_page(StudyInput("SYN-LIVE", live), DOSSIER)
+    assert "<script>" not in page and "<b>" not in page
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page
+    assert "&#42;bold&#42;" in page and "&#124;" in page and "&#91;x&#93;" in page
+    # the solvent is chlorinated: its caution says so (cautions are common practice)
+    assert "Chlorinated solvents (this study's solvent is one)" in page
+
+
+def test_identifiers_are_names_not_positions(live):
+    ids = [n.identifier for q in study_register(live) for n in q.numbers]
+    assert len(ids) == len(set(ids))
+    assert "SYN-LIVE/logK" in ids and "SYN-LIVE/pKa/ci95_hi" in ids
+    assert "SYN-LIVE/P1/recovery_pct/ci95_lo" in ids
+    assert "SYN-LIVE/P2/remaining_after/1" in ids
+
+
+def test_identifiers_stable_when_a_study_is_added(gold_dict, live):
+    """The register rows of one study do not change when another study joins the dossier
+    (the dossier version in the citation aside)."""
+    pages = Pages(TEMPLATES)
+    one = pages.dossier_files([StudyInput("SYN-GOLD", gold_dict)], DOSSIER, {"studies_text": "1",
+                                                                            "runs_text": ""})
+    two = pages.dossier_files([StudyInput("SYN-LIVE", live), StudyInput("SYN-GOLD", gold_dict)],
+                              Dossier("dv-111111111111", DOSSIER.software, DOSSIER.build_date),
+                              {"studies_text": "2", "runs_text": ""})
+
+    def gold_rows(files):
+        rows = json.loads(files["results.json"])["numbers"]
+        return [{k: v for k, v in r.items() if k != "citation"} for r in rows
+                if r["study"] == "SYN-GOLD"]
+
+    assert gold_rows(one) == gold_rows(two)
+    assert len(gold_rows(one)) > 50
+    page1 = one[study_page_path("SYN-GOLD")].decode()
+    page2 = two[study_page_path("SYN-GOLD")].decode()
+    assert re.findall(r'<a class="xv-id" id="([^"]*)"', page1) == \
+        re.findall(r'<a class="xv-id" id="([^"]*)"', page2)
+
+
+def test_results_json_values_are_the_dicts(gold_dict):
+    files = gold_files(gold_dict)
+    doc = json.loads(files["results.json"])
+    assert doc["dossier_version"] == DOSSIER.version
+    assert [s["study"] for s in doc["studies"]] == ["SYN-BROKEN", "SYN-GOLD"]
+    by_id = {r["id"]: r for r in doc["numbers"]}
+    p = gold_dict["parameters"]["logK"]
+    assert by_id["SYN-GOLD/logK"]["value"] == p["value"]
+    assert by_id["SYN-GOLD/logK/ci95_lo"]["value"] == p["ci95"][0]
+    assert by_id["SYN-GOLD/logK/se"]["value"] == p["se"]
+    rec = gold_dict["procedures"][0]["recovery_pct"]
+    assert by_id["SYN-GOLD/P1/recovery_pct/ci95_hi"]["value"] == rec["ci95"][1]
+    assert by_id["SYN-GOLD/P1/recovery_pct"]["url"] == \
+        "studies/SYN-GOLD/#SYN-GOLD/P1/recovery_pct"
+    assert "dv-000000000000" in by_id["SYN-GOLD/P1/recovery_pct"]["citation"]
+    assert not any(r["study"] == "SYN-BROKEN" for r in doc["numbers"])   # errors, no numbers
+
+
+def test_results_csv_neutralises_formulas_and_keeps_numbers():
+    """Cells starting with = + - @ would run in a spreadsheet (OWASP CSV injection advice,
+    from memory); a number such as -1.2 stays a number."""
+    rows = [{"id": "=HYPERLINK(\"x\")", "study": "@S", "quantity": "+q", "statistic": "value",
+             "value": -1.2, "unit": "", "display": "-1.200", "description": "-2+3",
+             "method": None, "citation": "\tx", "url": "u"}]
+    out = list(csv.reader(io.StringIO(results_csv(rows).decode())))
+    assert out[1][:5] == ["'=HYPERLINK(\"x\")", "'@S", "'+q", "value", "-1.2"]
+    assert out[1][6:10] == ["-1.200", "'-2+3", "", "'\tx"]
+    assert float(out[1][4]) == -1.2
+    assert csv_cell(3) == 3 and csv_cell("1e-5") == "1e-5"
+
+
+def test_negative_log_d_is_numeric_in_the_csv(gold_dict):
+    """At pH 6 the base is mostly ionised: the log D of a procedure there is below zero."""
+    files = gold_files(gold_dict)
+    rows = list(csv.DictReader(io.StringIO(files["results.csv"].decode())))
+    assert rows and all(not r["value"].startswith("'") for r in rows)
+    negative = [r for r in rows if r["value"] and float(r["value"]) < 0]
+    assert negative, "expected at least one negative number in the register"
+    assert all(not r["id"].startswith("'") for r in rows)
+
+
+def test_nav_lists_every_page(gold_dict):
+    studies = [StudyInput("SYN-GOLD", gold_dict), StudyInput("SYN-BROKEN", None, ("e",))]
+    n = nav(studies)
+    assert n[0] == {"Overview": "index.md"}
+    assert n[1] == {"Studies": [{"SYN-BROKEN": "studies/SYN-BROKEN/index.md"},
+                                {"SYN-GOLD": "studies/SYN-GOLD/index.md"}]}
+
+
+def test_failed_study_page_has_errors_and_no_numbers(gold_dict):
+    page = gold_files(gold_dict)["studies/SYN-BROKEN/index.md"].decode()
+    assert "not a number" in page and "line 3" in page
+    assert 'class="xv-num"' not in page
