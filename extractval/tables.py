@@ -16,6 +16,19 @@ Rules for numbers
   it shows (0.95 shown as 95 % reads 95.0); text cells that spell a number with a decimal point
   are numbers too; other text stays text. Booleans and dates stay text.
 * ``nan``, ``inf`` and thousands separators are never numbers.
+
+Size limits
+-----------
+A shake-flask study has tens of runs (OECD TG 107: three volume ratios in duplicate at each
+pH). A table longer than :data:`MAX_ROWS` rows is almost certainly the wrong file (an instrument
+log, an export of many studies): it is refused with one located problem before its cells are
+parsed, so that memory stays bounded whatever the file. A CSV is measured by its lines, counted
+on the bytes before anything is decoded. An XLSX sheet is streamed and reading stops at the
+first row holding data beyond the limit (blank formatted rows do not count); openpyxl first
+looks for the sheet's stated size, and a sheet written without one (Excel writes it, some
+streaming writers do not) is scanned once by openpyxl, in time growing with its rows but not in
+memory. An ODS file is built whole by odfpy, so the row elements of all its sheets are
+counted in the streamed XML first. Files above :data:`MAX_BYTES` are not read at all.
 """
 
 from __future__ import annotations
@@ -38,6 +51,12 @@ Cell = str | float | None
 SEPARATORS = (";", "\t", ",")
 #: File name endings the reader understands.
 EXTENSIONS = (".csv", ".xlsx", ".ods")
+#: Most rows (CSV lines, sheet rows) a runs table may have, header and blank rows included.
+MAX_ROWS = 5000
+#: Largest runs-table file read, [bytes]; a table of MAX_ROWS runs is well below 1 MB.
+MAX_BYTES = 32 * 2**20
+#: Largest uncompressed sheet XML of an ODS file, [bytes]: odfpy builds the whole document.
+_MAX_ODS_XML_BYTES = 8 * MAX_BYTES
 
 _POINT_NUMBER = re.compile(r"^[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?$")
 _COMMA_NUMBER = re.compile(r"^[+-]?(?:\d+(?:,\d*)?|,\d+)(?:[eE][+-]?\d+)?$")
@@ -153,6 +172,12 @@ def read_table(path, display: str | None = None,
         return None, [Problem("unsupported runs table type", file=shown, found=path.suffix or
                               "(no extension)", expected=", ".join(EXTENSIONS))]
     try:
+        size = path.stat().st_size
+        if size > MAX_BYTES:
+            return None, [Problem("the runs table file is too large to be one study's runs",
+                                  file=shown, found=f"{size} bytes",
+                                  expected=f"at most {MAX_BYTES} bytes ({MAX_ROWS} rows at "
+                                           "most; one study per runs table)")]
         data = path.read_bytes()
     except OSError as exc:
         return None, [Problem(f"cannot read the runs table: {exc.strerror or exc}", file=shown)]
@@ -217,8 +242,30 @@ def _sniff_separator(lines: list[str]) -> str:
     return best
 
 
+def too_long(shown: str, found: str, unit: str, **where) -> Problem:
+    """The located problem of a table beyond :data:`MAX_ROWS`."""
+    return Problem(f"the runs table is too long for one study's runs (at most {MAX_ROWS} "
+                   f"{unit}s are read)", file=shown, found=found,
+                   expected=f"at most {MAX_ROWS} {unit}s, header included: a shake-flask study "
+                            "has tens of runs, and each study has its own runs table", **where)
+
+
+def count_lines(data: bytes) -> int:
+    """Physical lines of CSV bytes as the reader splits them (``\\n``, ``\\r\\n`` or
+    ``\\r`` ends a line), counted without decoding.
+
+    >>> count_lines(b"a\\nb\\r\\nc\\rd"), count_lines(b"a\\n"), count_lines(b"")
+    (4, 1, 0)
+    """
+    breaks = data.count(b"\n") + data.count(b"\r") - data.count(b"\r\n")
+    return breaks + (1 if data and not data.endswith((b"\n", b"\r")) else 0)
+
+
 def read_csv_bytes(data: bytes, shown: str) -> tuple[Table | None, list[Problem]]:
     """Parse CSV bytes; lines are 1-based physical lines (a BOM or ``sep=`` line counts)."""
+    n_lines = count_lines(data)
+    if n_lines > MAX_ROWS:
+        return None, [too_long(shown, f"{n_lines} lines", "line", line=MAX_ROWS + 1)]
     text, problems = decode_text(data, shown)
     if text is None:
         return None, problems
@@ -401,14 +448,24 @@ def _read_xlsx(data: bytes, shown: str, sheet: str | None) -> tuple[Table | None
         if problem:
             return None, [problem]
         ws = wb.worksheets[index]
+        declared = ws.max_row    # from the sheet's stated dimensions: for messages only
         ws.reset_dimensions()   # some writers store wrong dimensions; read every row
         records = []
         try:
             for number, cells in enumerate(ws.iter_rows(min_row=1), start=1):
+                # blank rows (formatted cells without values) are not kept: a sheet formatted
+                # down to its last row must not fill memory
+                if not any(c.value is not None for c in cells):
+                    continue
+                number = next((c.row for c in cells if getattr(c, "row", None)), number)
+                if number > MAX_ROWS:
+                    found = (f"{declared} rows (the sheet's stated size)"
+                             if declared and declared > MAX_ROWS else
+                             f"data in row {number}")
+                    return None, [too_long(shown, found, "row", sheet=names[index],
+                                           row=number)]
                 row = [(c.value, getattr(c, "number_format", None)) for c in cells]
-                if row:
-                    number = next((c.row for c in cells if getattr(c, "row", None)), number)
-                    records.append((number, row))
+                records.append((number, row))
         except Exception as exc:   # broken sheet XML surfaces only while iterating
             return None, [Problem(f"not a readable XLSX workbook ({type(exc).__name__}: {exc})",
                                   file=shown, sheet=names[index],
@@ -466,10 +523,59 @@ def _ods_rows(node):
             yield from _ods_rows(child)
 
 
+#: a table-row start tag (not table-rows or table-row-group, which wrap rows), and its length
+_ODS_ROW_TAG = re.compile(rb"<table:table-row[\s>/]")
+_ODS_ROW_TAG_LEN = len(b"<table:table-row") + 1
+#: bytes read at a time when streaming a part of a zip archive
+_CHUNK = 1 << 20
+
+
+def _ods_size(data: bytes) -> tuple[int, int] | None:
+    """(row elements, bytes) of an ODS file's content.xml, streamed without building it;
+    None when the archive cannot be read this way (the full reader then reports why).
+
+    Counting stops once either passes its limit. Every writer spells the table namespace
+    ``table:``; a file that does not is only read without this early check.
+    """
+    import zipfile
+
+    tag = _ODS_ROW_TAG
+    rows = size = 0
+    tail = b""
+    try:
+        with zipfile.ZipFile(io.BytesIO(data)) as zf, zf.open("content.xml") as fh:
+            while rows <= MAX_ROWS and size <= _MAX_ODS_XML_BYTES:
+                chunk = fh.read(_CHUNK)
+                if not chunk:
+                    break
+                size += len(chunk)
+                block = tail + chunk
+                # the tail is one byte shorter than a match: a tag cut by the chunk boundary
+                # is counted once, in the block that completes it
+                rows += len(tag.findall(block))
+                tail = block[-(_ODS_ROW_TAG_LEN - 1):]
+    except Exception:   # not a zip, no content.xml, a corrupt stream: left to the full reader
+        return None
+    return rows, size
+
+
 def _read_ods(data: bytes, shown: str, sheet: str | None) -> tuple[Table | None, list[Problem]]:
     from odf.namespaces import TABLENS
     from odf.opendocument import load
 
+    # odfpy builds the whole document, every sheet: its size is checked first
+    size = _ods_size(data)
+    expected = (f"at most {MAX_ROWS} rows in the spreadsheet, all sheets together, header "
+                "included: a shake-flask study has tens of runs; keep other data in another file")
+    if size is not None and size[0] > MAX_ROWS:
+        return None, [Problem("the spreadsheet is too long to be read as one study's runs (an "
+                              ".ods file is read whole, every sheet)", file=shown,
+                              found=f"more than {MAX_ROWS} rows", expected=expected)]
+    if size is not None and size[1] > _MAX_ODS_XML_BYTES:
+        return None, [Problem("the spreadsheet is too large to be read as one study's runs (an "
+                              ".ods file is read whole, every sheet)", file=shown,
+                              found=f"over {_MAX_ODS_XML_BYTES} bytes of sheet XML",
+                              expected=expected)]
     try:
         doc = load(io.BytesIO(data))
         tables = [t for t in doc.spreadsheet.childNodes
@@ -497,6 +603,10 @@ def _read_ods(data: bytes, shown: str, sheet: str | None) -> tuple[Table | None,
         while cells and cells[-1][0] is None:
             cells.pop()
         if cells:
+            if number + repeat > MAX_ROWS:
+                first = max(number + 1, MAX_ROWS + 1)
+                return None, [too_long(shown, f"data in row {first}", "row",
+                                       sheet=names[index], row=first)]
             for k in range(repeat):
                 records.append((number + k + 1, cells))
         number += repeat

@@ -15,6 +15,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from extractval import tables
 from extractval.errors import StudyError
 from extractval.study import check_study, discover_studies, load_study
 from extractval.tables import parse_number, read_table
@@ -521,6 +522,116 @@ def test_ods_valid_study(tmp_path):
     study, problems = check_study(folder)
     assert problems == []
     assert [r.found_organic for r in study.runs] == [59.0, 79.0, 96.0]
+
+
+# -- size limits: a table far longer than any study is refused before its cells are parsed ------
+
+def test_csv_of_100000_rows_is_refused_before_parsing(tmp_path, monkeypatch):
+    row = "R{},7.0,10,10,100,40,59\n"
+    csv = ",".join(HEADER) + "\n" + "".join(row.format(i) for i in range(100_000))
+    folder = write_study(tmp_path, runs=csv)
+
+    def no_decoding(*args):
+        raise AssertionError("the cells of a too long table were decoded")
+
+    monkeypatch.setattr(tables, "decode_text", no_decoding)
+    study, problems = check_study(folder)
+    assert study is None
+    p = only(problems, "too long")
+    assert (p.file, p.line, p.found) == ("ST-1/runs.csv", tables.MAX_ROWS + 1, "100001 lines")
+    assert p.expected.startswith(f"at most {tables.MAX_ROWS} lines, header included")
+    assert tables.MAX_ROWS == 5000
+
+
+def test_csv_at_the_row_limit_is_read_and_one_beyond_is_not(tmp_path, monkeypatch):
+    monkeypatch.setattr(tables, "MAX_ROWS", 4)
+    _, problems = check_csv(tmp_path, RUNS_CSV)               # header + 3 runs: 4 lines
+    assert problems == []
+    for ending in ("\n", "\r\n", "\r"):                       # every line ending counts
+        csv = (RUNS_CSV + "R4,9.5,10,20,100,3,97\n").replace("\n", ending)
+        _, problems = check_csv(tmp_path, csv)
+        assert only(problems, "too long").found == "5 lines"
+
+
+def test_file_above_the_byte_limit_is_not_read(tmp_path, monkeypatch):
+    monkeypatch.setattr(tables, "MAX_BYTES", 100)
+    _, problems = check_csv(tmp_path, RUNS_CSV)
+    p = only(problems, "too large")
+    assert (p.file, p.found) == ("ST-1/runs.csv", f"{len(RUNS_CSV)} bytes")
+    assert "at most 100 bytes" in p.expected
+
+
+def test_xlsx_with_data_beyond_the_row_limit(tmp_path, monkeypatch):
+    monkeypatch.setattr(tables, "MAX_ROWS", 4)
+    folder = write_study(tmp_path, runs=None, runs_name="runs.xlsx")
+    runs = [["R4", 9.5, 10, 20, 100, 3, 97], ["R5", 10.0, 10, 20, 100, 2, 98]]
+    write_xlsx(folder / "runs.xlsx", {1: HEADER, 2: ROWS[0], 3: ROWS[1], 4: ROWS[2], 5: runs[0],
+                                      6: runs[1]})
+    _, problems = check_study(folder)
+    p = only(problems, "too long")
+    assert (p.file, p.sheet, p.row) == ("ST-1/runs.xlsx", "Runs", 5)
+    assert p.found == "6 rows (the sheet's stated size)"
+    assert p.expected.startswith("at most 4 rows")
+
+
+def test_xlsx_formatted_blank_rows_beyond_the_limit_are_not_data(tmp_path, monkeypatch):
+    import openpyxl
+
+    monkeypatch.setattr(tables, "MAX_ROWS", 4)
+    folder = write_study(tmp_path, runs=None, runs_name="runs.xlsx")
+    path = write_xlsx(folder / "runs.xlsx", {1: HEADER, 2: ROWS[0], 3: ROWS[1], 4: ROWS[2]})
+    wb = openpyxl.load_workbook(path)
+    for number in range(5, 40):                   # styled cells without values, as sheets have
+        wb.active.cell(row=number, column=2).number_format = "0.00"
+    wb.save(path)
+    study, problems = check_study(folder)
+    assert problems == [] and len(study.runs) == 3
+
+
+def test_ods_beyond_the_row_limit(tmp_path, monkeypatch):
+    from odf.opendocument import load
+    from odf.table import TableCell, TableRow
+    from odf.text import P
+
+    monkeypatch.setattr(tables, "MAX_ROWS", 4)
+    folder = write_study(tmp_path, runs=None, runs_name="runs.ods")
+    # one row element more than the limit: refused from the element count, before odfpy
+    # builds the document (the rows' content does not matter then)
+    write_ods(folder / "runs.ods", [HEADER, *ROWS, ROWS[2]])
+    _, problems = check_study(folder)
+    p = only(problems, "too long")
+    assert (p.file, p.found) == ("ST-1/runs.ods", "more than 4 rows")
+    assert p.expected.startswith("at most 4 rows in the spreadsheet, all sheets together")
+    # few row elements, but one data row repeated past the limit
+    path = write_ods(folder / "runs.ods", [HEADER, ROWS[0]])
+    doc = load(str(path))
+    repeated = TableRow(numberrowsrepeated="3")
+    for value in ROWS[1]:
+        cell = TableCell(valuetype="string")
+        cell.addElement(P(text=str(value)))
+        repeated.addElement(cell)
+    doc.spreadsheet.childNodes[0].addElement(repeated)
+    doc.save(str(path))
+    _, problems = check_study(folder)
+    p = only(problems, "too long")
+    assert (p.sheet, p.row, p.found) == ("Runs", 5, "data in row 5")
+
+
+def test_ods_row_count_is_exact_across_chunk_boundaries(tmp_path, monkeypatch):
+    path = write_ods(tmp_path / "runs.ods", [HEADER, 2, *ROWS, ROWS[0]])
+    rows, size = tables._ods_size(path.read_bytes())
+    assert rows == 6                       # the repeated blank row is one element
+    for chunk in (1, 7, 16, 17, 18, 1000):
+        monkeypatch.setattr(tables, "_CHUNK", chunk)
+        assert tables._ods_size(path.read_bytes()) == (rows, size)
+
+
+def test_ods_trailing_blank_rows_do_not_count(tmp_path):
+    # spreadsheets pad a sheet with one repeated blank row to its last row (common practice)
+    folder = write_study(tmp_path, runs=None, runs_name="runs.ods")
+    write_ods(folder / "runs.ods", [HEADER, *ROWS, 1_048_572])
+    study, problems = check_study(folder)
+    assert problems == [] and len(study.runs) == 3
 
 
 # -- study.yaml ----------------------------------------------------------------------------------
