@@ -124,6 +124,10 @@ def choose_model(study: Study, obs: Observations) -> tuple[FitResult, list[Candi
     # Anderson, Model Selection and Multimodel Inference, 2nd ed. 2002, sec. 2.6); take the one
     # with the fewest parameters among them, the best AICc breaking ties
     close = [k for k in aicc if aicc[k] - aicc[best] < PARSIMONY_DELTA]
+    if not np.isfinite(aicc[best]):
+        # too few runs for AICc (n <= k + 1) in every model that could be fitted: nothing to
+        # compare, so the simplest of them
+        close = list(aicc)
     best = min(close, key=lambda k: (fits[k].p, aicc[k]))
     finite = {k: v for k, v in aicc.items() if np.isfinite(v)}
     rel = {k: np.exp(-0.5 * (v - aicc[best])) for k, v in finite.items()}

@@ -523,4 +523,9 @@ class _Profiler:
             # the warm-started inner fits disagree at the inside point (flat profile):
             # take the outer point, which is conservative
             return outside
-        return optimize.brentq(f, a, b, xtol=xtol, rtol=1e-9)
+        try:
+            return optimize.brentq(f, a, b, xtol=xtol, rtol=1e-9)
+        except ValueError:
+            # brentq evaluates both points again, and on a flat profile the warm-started
+            # inner fits can disagree once more: the same conservative choice
+            return outside

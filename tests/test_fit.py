@@ -6,10 +6,10 @@ import numpy as np
 import pytest
 
 from extractval.analysis import build_observations, fit_study
-from extractval.fitting import FitImpossible, fit_model
+from extractval.fitting import INTERVAL_METHOD, FitImpossible, fit_model
 from extractval.models import MODELS
 from extractval.simulate import simulate_runs, simulated_study
-from extractval.study import Procedure
+from extractval.study import Location, Procedure, Run
 from tests.reference import handbook as ref
 
 CASES = [
@@ -133,3 +133,34 @@ def test_ion_pair_warns_when_k_ion_cannot_be_told_from_zero():
     assert d["model"] == "acid+ion_pair"
     assert d["parameters"]["logK_ion"]["ci95"][0] is None
     assert any("K_I from zero" in w for w in d["warnings"])
+
+
+def test_auto_with_too_few_runs_for_aicc_takes_the_simplest_model():
+    # found by tests/test_properties.py: with two runs AICc is infinite (n <= k + 1) for every
+    # model that can be fitted, and choosing among them raised instead of answering
+    study = simulated_study("TWO", "acid", (1.88, 4.21), [3.0, 5.0], ratios=(1.0,),
+                            replicates=1, sigma=0.03, form="both", rng=1, fit_model="auto")
+    d = fit_study(study).to_dict()
+    assert d["model"] == "neutral" and d["problems"] == []
+    assert np.isfinite(d["parameters"]["logK"]["value"])
+    assert [c["model"] for c in d["model_selection"]["candidates"]] == ["neutral", "acid", "base"]
+
+
+def test_flat_profile_gives_the_conservative_end_not_an_error():
+    # found by tests/test_properties.py: an ampholyte measured noise-free at pH 0, 0.01 and 9
+    # only. Its log D profiles are flat, and the warm-started inner fits disagree between two
+    # evaluations at the same point, which made the root finder fail while tracing the band
+    # (at pH 6.5, warm-started from the ends found at pH 6.0).
+    found = {0.0: (99.93092886378255, 0.06907113621744639),
+             0.01: (99.92933388381661, 0.07066611618339544),
+             9.0: (99.89750897927226, 0.10249102072774807)}
+    runs = tuple(Run(f"R{i}", pH, 10.0, 0.1, Location("simulated", line=i + 2), spiked=100.0,
+                     found_aqueous=found[pH][0], found_organic=found[pH][1])
+                 for i, pH in enumerate((0.0, 0.0, 9.0, 9.0, 0.01, 0.01)))
+    study = dataclasses.replace(simulated_study("FLAT", "ampholyte", (1.0, 2.0, 9.0), [7.0]),
+                                runs=runs)
+    fit = fit_study(study).fit
+    est = fit.log_d_interval(6.5, hint=(0.20508553306423277, 1.443789456286197))
+    assert est.ci95.lo is None or est.ci95.lo <= est.value
+    assert est.ci95.hi is None or est.value <= est.ci95.hi
+    assert est.ci95.method == INTERVAL_METHOD
