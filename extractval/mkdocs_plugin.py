@@ -131,3 +131,6 @@ def serve(config_file: Path, studies: Path, addr: str) -> None:
                watch=[str(studies)])
     except MkDocsException as exc:
         raise site.SiteBuildError(f"the preview server stopped: {exc}") from None
+    except OSError as exc:
+        raise site.SiteBuildError(f"{addr}: cannot serve there ({exc.strerror or exc}); "
+                                  "choose another --addr") from None

@@ -34,7 +34,7 @@ from pathlib import Path
 from typing import Callable
 
 from . import __version__
-from .report.pages import Pages, StudyInput, nav, study_page_path
+from .report.pages import Pages, StudyInput, TemplateProblem, nav, study_page_path
 from .report.plots import study_plots
 from .report.register import Dossier
 
@@ -375,7 +375,10 @@ def render(outcomes: list[Outcome], templates_dir: Path, config_file: Path | Non
                                               if n_failed else ""),
         "runs_text": f"{runs['total']} ({runs['used']} used, {runs['excluded']} excluded)",
     }
-    files = Pages(templates_dir).dossier_files(inputs, dossier, counts)
+    try:
+        files = Pages(templates_dir).dossier_files(inputs, dossier, counts)
+    except TemplateProblem as exc:
+        raise SiteBuildError(f"a page template failed: {exc}") from None
     for o in outcomes:
         folder = study_page_path(o.study_id).rsplit("/", 1)[0]
         for name, data in sorted(o.plots.items()):

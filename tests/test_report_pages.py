@@ -21,7 +21,7 @@ import pytest
 from extractval.analysis import fit_study
 from extractval.report.pages import Pages, StudyInput, nav, study_page_path
 from extractval.report.plots import study_plots
-from extractval.report.register import (Dossier, csv_cell, resolve, results_csv,
+from extractval.report.register import (Dossier, csv_cell, fmt_number, resolve, results_csv,
                                         study_register)
 from extractval.report.text import md_text
 from extractval.study import Procedure
@@ -31,9 +31,10 @@ ROOT = Path(__file__).resolve().parent.parent
 TEMPLATES = ROOT / "site_templates"
 GOLDEN = Path(__file__).resolve().parent / "golden"
 UPDATE = os.environ.get("EXTRACTVAL_UPDATE_GOLDEN") == "1"
+STYLES = ("int", "log", "pH", "r", "se", "frac", "pct", "f2", "rel", "mL", "g")
 DOSSIER = Dossier("dv-000000000000", "extractval 0.0-test", "2026-01-01 00:00 UTC")
-SPAN = re.compile(r'<span class="xv-num"(?: id="[^"]*")? data-study="([^"]*)" '
-                  r'data-src="([^"]*)" data-value="([^"]*)">([^<]*)</span>')
+SPAN = re.compile(r'<span class="xv-num"(?: data-study="([^"]*)")? '
+                  r'data-src="([^"]*)">([^<]*)</span>')
 
 
 GOLD_PROCEDURES = (
@@ -125,29 +126,34 @@ def _strings(d) -> list[str]:
 def test_every_number_on_the_page_is_the_dicts(live):
     """Each number span holds the dict's value at its pointer and shows it as formatted;
     outside the spans no decimal number appears except inside text the dict itself holds."""
-    page = Pages(TEMPLATES).study_page(StudyInput("SYN-LIVE", live, key="sv-x"), DOSSIER)
+    page = Pages(TEMPLATES, trace=True).study_page(StudyInput("SYN-LIVE", live, key="sv-x"),
+                                                   DOSSIER)
+    published = Pages(TEMPLATES).study_page(StudyInput("SYN-LIVE", live, key="sv-x"), DOSSIER)
+    assert SPAN.sub(lambda m: m.group(3), page) == published     # the same page, untraced
     spans = SPAN.findall(page)
     assert len(spans) > 100
     quantities = {n.source: n for q in study_register(live) for n in q.numbers}
-    for study, src, value, shown in spans:
-        assert study == "SYN-LIVE"
-        expected = resolve(live, html.unescape(src))
+    for study, src, shown in spans:
+        assert study == ""                          # one study per page: named once, above
+        src = html.unescape(src)
+        shown = html.unescape(shown)
+        expected = resolve(live, src)
         if expected is None:
-            assert value == "" and shown in ("open", "")
-        elif isinstance(expected, float):
-            assert float(value) == expected, src        # exact: the value is copied
-        else:
-            assert value == str(expected), src
-        n = quantities.get(html.unescape(src))
+            assert shown == "open", src
+            continue
+        # the shown text is the dict's value in one of the formatter's styles: nothing else
+        assert any(fmt_number(expected, style) in (shown, shown.removesuffix(" %"))
+                   for style in STYLES), (src, shown, expected)
+        n = quantities.get(src)
         if n is not None:
-            assert html.unescape(shown).startswith(n.display.removesuffix(" %")), src
+            assert fmt_number(n.value, n.style) in (shown, shown.removesuffix(" %")), src
     # every register number is on the page
     assert set(quantities) <= {html.unescape(s[1]) for s in spans}
     # citation lines are the register's text: the same numbers, written by the same formatter
     citations = {str(md_text(q.citation(n, DOSSIER.version, DOSSIER.software)))
                  for q in study_register(live) for n in q.numbers}
     shown_citations = re.findall(r'<code class="xv-cite">([^<]*)</code>', page)
-    assert shown_citations and set(shown_citations) <= citations
+    assert len(shown_citations) == len(citations) and set(shown_citations) == citations
     rest = re.sub(r'<code class="xv-cite">[^<]*</code>', " ", SPAN.sub(" ", page))
     for text in sorted(set(_strings(live)) | {DOSSIER.version, DOSSIER.software,
                                               DOSSIER.build_date}, key=len, reverse=True):
@@ -162,10 +168,10 @@ def test_every_number_on_the_page_is_the_dicts(live):
 def test_flagged_runs_are_shown_beside_the_refit(live):
     flags = live["outlier_screen"]["flags"]
     assert [f["run"] for f in flags][:1] == ["R01"]
-    page = Pages(TEMPLATES).study_page(StudyInput("SYN-LIVE", live), DOSSIER)
+    page = Pages(TEMPLATES, trace=True).study_page(StudyInput("SYN-LIVE", live), DOSSIER)
     assert "Runs flagged by the screens" in page
     assert 'data-src="/outlier_screen/without_flagged/parameters/logK/value"' in page
-    assert 'id="SYN-LIVE/without_flagged/logK"' in page
+    assert 'id="SYN-LIVE/without_flagged/logK"' in page     # its register line
 
 
 def test_study_text_is_shown_as_text(live):
@@ -204,8 +210,9 @@ def test_identifiers_stable_when_a_study_is_added(gold_dict, live):
     assert len(gold_rows(one)) > 50
     page1 = one[study_page_path("SYN-GOLD")].decode()
     page2 = two[study_page_path("SYN-GOLD")].decode()
-    assert re.findall(r'<a class="xv-id" id="([^"]*)"', page1) == \
-        re.findall(r'<a class="xv-id" id="([^"]*)"', page2)
+    anchors1 = re.findall(r'<p class="xv-reg" id="([^"]*)"', page1)
+    assert len(anchors1) > 50
+    assert anchors1 == re.findall(r'<p class="xv-reg" id="([^"]*)"', page2)
 
 
 def test_results_json_values_are_the_dicts(gold_dict):
@@ -257,7 +264,22 @@ def test_nav_lists_every_page(gold_dict):
                                 {"SYN-GOLD": "studies/SYN-GOLD/index.md"}]}
 
 
-def test_failed_study_page_has_errors_and_no_numbers(gold_dict):
-    page = gold_files(gold_dict)["studies/SYN-BROKEN/index.md"].decode()
+def test_failed_study_page_has_errors_and_no_numbers():
+    broken = StudyInput("SYN-BROKEN", None, errors=("error: SYN-BROKEN/runs.csv, line 3: "
+                                                     "not a number",))
+    page = Pages(TEMPLATES, trace=True).study_page(broken, DOSSIER)
     assert "not a number" in page and "line 3" in page
-    assert 'class="xv-num"' not in page
+    assert 'class="xv-num"' not in page and "Number register" not in page
+
+
+def test_home_page_numbers_are_each_studys(gold_dict, live):
+    studies = [StudyInput("SYN-GOLD", gold_dict), StudyInput("SYN-LIVE", live)]
+    page = Pages(TEMPLATES, trace=True).index_page(studies, DOSSIER, {"studies_text": "2",
+                                                                      "runs_text": "-"})
+    spans = SPAN.findall(page)
+    assert {s[0] for s in spans} == {"SYN-GOLD", "SYN-LIVE"}
+    by_id = {"SYN-GOLD": gold_dict, "SYN-LIVE": live}
+    for study, src, shown in spans:
+        value = resolve(by_id[study], html.unescape(src))
+        assert any(fmt_number(value, st) in (shown, shown.removesuffix(" %")) for st in STYLES)
+    assert "&lt;script&gt;" in page and "<script>" not in page

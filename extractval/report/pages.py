@@ -5,8 +5,11 @@ the output is a mapping of site paths to bytes (Markdown, SVG, JSON, CSV, CSS). 
 which static-site generator will publish it.
 
 Every number goes through :meth:`StudyView.num`, which writes the value found at a JSON pointer
-in the study dict, formatted, inside ``<span class="xv-num" data-src=... data-value=...>``; a
-test reads those spans back and compares them with the dict. Every text from a study goes
+in the study dict, formatted. Rendered with ``trace=True`` each number also carries its pointer,
+``<span class="xv-num" data-src=...>``: a test reads those back and compares them with the dict,
+and checks that the published page is the traced one without the spans. (The published pages
+leave the spans out: three HTML parsers read every page of the site, and the spans doubled the
+tags they had to read.) Every text from a study goes
 through :func:`~extractval.report.text.md_text` (the template environment's ``finalize``), so
 nothing a study file says becomes markup.
 """
@@ -99,14 +102,6 @@ def solvent_hazards(organic) -> dict[str, bool]:
 
 
 # -- one study ----------------------------------------------------------------------------------
-def _data_value(value) -> str:
-    if value is None:
-        return ""
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    return repr(value) if isinstance(value, float) else str(value)
-
-
 @dataclass
 class StudyView:
     """A study dict as the templates see it: text as is (escaped on output), numbers by pointer.
@@ -118,6 +113,8 @@ class StudyView:
     d: dict
     dossier: Dossier
     quantities: list[Quantity] = field(default_factory=list)
+    tag_study: bool = False          # name the study on each number (pages of many studies)
+    trace: bool = False              # wrap each number in a span naming its pointer (tests)
 
     def __post_init__(self):
         self.by_name = {q.name: q for q in self.quantities}
@@ -138,13 +135,14 @@ class StudyView:
         ptr = pointer(*parts)
         return self.num(ptr, style, unit) if self.has(ptr) else Markup("")
 
-    def _span(self, ptr, value, style, unit="", anchor: str | None = None) -> Markup:
+    def _span(self, ptr, value, style, unit="") -> Markup:
         shown = fmt_number(value, style)
         if unit and value is not None:
             shown += f" {unit}"
-        ident = f' id="{html_attr(anchor)}"' if anchor else ""
-        return Markup(f'<span class="xv-num"{ident} data-study="{html_attr(self.id)}" '
-                      f'data-src="{html_attr(ptr)}" data-value="{html_attr(_data_value(value))}">'
+        if not self.trace:
+            return md_text(shown)
+        study = f' data-study="{html_attr(self.id)}"' if self.tag_study else ""
+        return Markup(f'<span class="xv-num"{study} data-src="{html_attr(ptr)}">'
                       f"{md_text(shown)}</span>")
 
     def has(self, ptr: str) -> bool:
@@ -186,8 +184,7 @@ class StudyView:
             for n in q.numbers:
                 rows.append({
                     "identifier": n.identifier,
-                    "anchor": Markup(f'<a class="xv-id" id="{html_attr(n.anchor)}" '
-                                     f'href="#{html_attr(n.anchor)}">{md_text(n.identifier)}</a>'),
+                    "anchor": html_attr(n.anchor),
                     "number": self._span(n.source, n.value, n.style,
                                          "%" if q.unit == "%" else ""),
                     "unit": q.unit,
@@ -196,6 +193,10 @@ class StudyView:
                     "citation": q.citation(n, self.dossier.version, self.dossier.software),
                 })
         return rows
+
+    def count(self) -> Markup:
+        """How many identifiers the study has (a count of the register, not a result)."""
+        return Markup(str(sum(len(q.numbers) for q in self.quantities)))
 
     def parameters(self) -> list[tuple[str, dict]]:
         return list(self.d.get("parameters", {}).items())
@@ -252,7 +253,7 @@ CRITERION_LABELS = {
     "ratio_agreement_log": "Agreement of log D between volume ratios",
     "lack_of_fit": "Lack of fit (p value)",
     "aoac_recovery_pct": "AOAC recovery range for the analyte level (%)",
-    "horrat": "HorRat",
+    "horrat_r": "HorRat(r), repeatability against the Horwitz value",
 }
 
 
@@ -277,35 +278,61 @@ class StudyInput:
     key: str = ""                        # content key of the study's inputs
 
 
+class TemplateProblem(Exception):
+    """A template in site_templates/ could not be rendered; the message says where."""
+
+
+def _study_of(ctx: dict) -> str:
+    s = ctx.get("s")
+    if isinstance(s, StudyView):
+        return f"study {s.id}"
+    return f"study {ctx['study_id']}" if "study_id" in ctx else "the dossier pages"
+
+
 class Pages:
     """Renders the dossier's pages from study inputs with the templates of one folder."""
 
-    def __init__(self, templates_dir: Path):
+    def __init__(self, templates_dir: Path, trace: bool = False):
         self.templates_dir = Path(templates_dir)
+        self.trace = trace
         self.env = environment(self.templates_dir)
+        self._registers: dict[int, list[Quantity]] = {}
+
+    def _register(self, data: dict) -> list[Quantity]:
+        """The study's register, built once per dict for all the pages that show it."""
+        key = id(data)
+        if key not in self._registers:
+            self._registers[key] = study_register(data)
+        return self._registers[key]
 
     def _render(self, name: str, **ctx) -> str:
-        return self.env.get_template(name).render(**ctx)
+        try:
+            return self.env.get_template(name).render(**ctx)
+        except jinja2.TemplateSyntaxError as exc:
+            raise TemplateProblem(f"{exc.filename or name}, line {exc.lineno}: {exc.message}")
+        except (jinja2.TemplateError, TypeError, KeyError, IndexError, AttributeError) as exc:
+            raise TemplateProblem(f"{self.templates_dir / name}: {type(exc).__name__}: {exc} "
+                                  f"(while rendering{' ' + _study_of(ctx) if ctx else ''})")
 
     def study_page(self, s: StudyInput, dossier: Dossier) -> str:
         if s.data is None:
             return self._render("failed.md.j2", study_id=s.study_id, errors=s.errors,
                                 dossier=dossier, key=s.key)
-        view = StudyView(s.data, dossier, study_register(s.data))
+        view = StudyView(s.data, dossier, self._register(s.data), trace=self.trace)
         return self._render("study.md.j2", s=view, d=s.data, dossier=dossier,
                             plots=set(s.plots), key=s.key, labels=SYSTEM_LABELS,
                             target_labels=TARGET_LABELS, names=PARAMETER_LABELS,
                             criteria=CRITERION_LABELS)
 
     def index_page(self, studies: list[StudyInput], dossier: Dossier, counts: dict) -> str:
-        views = [(s, StudyView(s.data, dossier, study_register(s.data)) if s.data else None)
-                 for s in studies]
+        views = [(s, StudyView(s.data, dossier, self._register(s.data), tag_study=True,
+                               trace=self.trace) if s.data else None) for s in studies]
         return self._render("index.md.j2", studies=views, dossier=dossier, counts=counts,
                             url=study_url, names=PARAMETER_LABELS)
 
     def register_page(self, studies: list[StudyInput], dossier: Dossier) -> str:
-        views = [StudyView(s.data, dossier, study_register(s.data))
-                 for s in studies if s.data is not None]
+        views = [StudyView(s.data, dossier, self._register(s.data), tag_study=True,
+                           trace=self.trace) for s in studies if s.data is not None]
         return self._render("register.md.j2", views=views, dossier=dossier, url=study_url)
 
     def about_page(self, dossier: Dossier) -> str:
@@ -330,7 +357,7 @@ class Pages:
             listing.append({"study": s.study_id, "page": study_url(s.study_id),
                             "status": status, "inputs_key": s.key})
             if s.data is not None:
-                rows.extend(register_rows(study_register(s.data), dossier,
+                rows.extend(register_rows(self._register(s.data), dossier,
                                           study_url(s.study_id)))
         files["results.json"] = results_json(rows, dossier, listing)
         files["results.csv"] = results_csv(rows)

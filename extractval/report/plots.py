@@ -15,7 +15,7 @@ import matplotlib
 from matplotlib.backends.backend_svg import FigureCanvasSVG
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
-from matplotlib.ticker import NullLocator
+from matplotlib.ticker import FuncFormatter, NullLocator
 
 #: The dossier's own palette; hues told apart by lightness as well as colour, and every series
 #: also has its own marker shape, so no reading depends on colour alone.
@@ -72,6 +72,20 @@ def _plain(text) -> str:
     return str(text).replace("$", r"\$")
 
 
+_SUPERSCRIPT = str.maketrans("-0123456789", "\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076"
+                                           "\u2077\u2078\u2079")
+
+
+def _power_of_ten(value: float, _pos=None) -> str:
+    """A log-axis tick label such as 10⁻³ in plain text (mathtext parsing is slow)."""
+    if value <= 0:
+        return ""
+    exponent = math.log10(value)
+    if abs(exponent - round(exponent)) > 1e-9:
+        return ""
+    return "10" + str(int(round(exponent))).translate(_SUPERSCRIPT)
+
+
 def _legend(ax, handles=None, labels=None, ncols: int = 3) -> None:
     """The legend above the axes, where it never hides a point."""
     if handles is None:
@@ -102,7 +116,8 @@ def log_d_plot(d: dict) -> bytes | None:
     rows = d.get("run_table", [])
     styles = _ratio_styles(rows)
     hollow = any(r["status"] != "used" and r.get("log_d_observed") is not None for r in rows)
-    n_legend = 2 + len(styles) + hollow
+    n_drawn = len({r["volume_ratio"] for r in rows if r.get("log_d_observed") is not None})
+    n_legend = 2 + n_drawn + hollow
     with matplotlib.rc_context(STYLE):
         fig, ax = _figure(_rows(n_legend, 3))
         band = ax.fill_between(curve["pH"], _nan(curve["lo"]), _nan(curve["hi"]), color=BAND,
@@ -126,8 +141,14 @@ def log_d_plot(d: dict) -> bytes | None:
                         gid=f"excluded-ratio-{ratio:g}")
         ax.set_xlabel("pH")
         ax.set_ylabel("log D")
+        if not n_drawn:
+            ax.text(0.99, 0.03, "no run measured in both phases: no observed log D to draw",
+                    transform=ax.transAxes, ha="right", va="bottom", color=INK, fontsize=8.5)
         handles, labels = ax.get_legend_handles_labels()
+        drawn = {r["volume_ratio"] for r in rows if r.get("log_d_observed") is not None}
         for ratio, (colour, marker) in styles.items():
+            if ratio not in drawn:
+                continue
             handles.append(Line2D([], [], linestyle="none", marker=marker, color=colour,
                                   markeredgecolor="white", markersize=5.5))
             labels.append(f"runs, org:aq {ratio:g}")
@@ -177,6 +198,7 @@ def portions_plot(pr: dict) -> bytes | None:
         fig, ax = _figure(2)
         ax.set_yscale("log")
         ax.yaxis.set_minor_locator(NullLocator())
+        ax.yaxis.set_major_formatter(FuncFormatter(_power_of_ten))
         err_lo = [v - lo_ if (lo_ is not None and v > 0) else 0.0 for v, lo_ in zip(val, lo)]
         err_hi = [hi_ - v if hi_ is not None else 0.0 for v, hi_ in zip(val, hi)]
         ax.errorbar(n, val, yerr=[err_lo, err_hi], color=SERIES[1], marker="o", markersize=6,
