@@ -204,6 +204,13 @@ class Outcome:
     cached: bool = False
     seconds: float = 0.0
 
+    @property
+    def problems(self) -> list[str]:
+        """Why the study has no numbers: its read errors, or why the fit was impossible."""
+        if self.data is None:
+            return list(self.errors)
+        return [f"{self.study_id}: not fitted: {p}" for p in self.data.get("problems", [])]
+
 
 @dataclass
 class Prepared:
@@ -217,7 +224,7 @@ class Prepared:
 
     @property
     def failed(self) -> list[Outcome]:
-        return [o for o in self.outcomes if o.data is None]
+        return [o for o in self.outcomes if o.problems]
 
 
 def build_date() -> tuple[str, int]:
@@ -390,8 +397,8 @@ def render(outcomes: list[Outcome], templates_dir: Path, config_file: Path | Non
 def _failure_text(failed: list[Outcome]) -> str:
     lines = []
     for o in failed:
-        lines.append(f"study {o.study_id}: {len(o.errors)} error(s)")
-        lines.extend(f"  {e}" for e in o.errors)
+        lines.append(f"study {o.study_id}: {len(o.problems)} error(s)")
+        lines.extend(f"  {e}" for e in o.problems)
     return "\n".join(lines)
 
 
@@ -412,7 +419,7 @@ def prepare(studies_dir: Path | None, templates_dir: Path, config_file: Path | N
     if cache_dir is None and config_file is not None:
         cache_dir = Path(config_file).resolve().parent / CACHE_DIR
     outcomes = collect(sources, Cache(cache_dir), jobs, progress, display_root)
-    failed = [o for o in outcomes if o.data is None]
+    failed = [o for o in outcomes if o.problems]
     if failed and not keep_going:
         raise SiteBuildError(_failure_text(failed) + "\nthe site was not built; correct the "
                              "files above, or use --keep-going to publish the other studies")
@@ -542,14 +549,15 @@ def build_command(args) -> int:
     p = result.prepared
     failed = p.failed
     for o in failed:
-        for e in o.errors:
+        for e in o.problems:
             print(e, file=sys.stderr)
     n_cached = sum(o.cached for o in p.outcomes)
     summary = (f"built {len(p.outcomes)} stud{'y' if len(p.outcomes) == 1 else 'ies'} "
                f"({n_cached} from cache) into {result.site_dir} in {result.seconds:.1f} s, "
                f"dossier {p.dossier.version}")
     if failed:
-        summary += f"; {len(failed)} with input errors published as error pages"
+        summary += (f"; {len(failed)} with errors published without numbers: "
+                    + ", ".join(o.study_id for o in failed))
     print(summary, flush=True)
     return 1 if failed else 0
 

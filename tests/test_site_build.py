@@ -182,8 +182,24 @@ def test_cli_keep_going_exit_status_and_located_errors(studies, cache, env_epoch
     assert not (tmp_path / "site").exists()
     assert main(args + ["--keep-going"]) == 1                # published, but says so
     out, err = capsys.readouterr()
-    assert "1 with input errors" in out.splitlines()[-1]
+    assert "1 with errors published without numbers: SYN-BAD" in out.splitlines()[-1]
     assert (tmp_path / "site/index.html").is_file()
+
+
+def test_a_study_the_model_cannot_fit_stops_the_build_too(studies, cache, env_epoch, tmp_path):
+    """Two runs cannot fit a base (log K and pKa need more): no numbers, so no publishing
+    unless --keep-going, which publishes the study's page with the reason."""
+    work = tmp_path / "studies"
+    shutil.copytree(studies, work)
+    write_study_folder(synthetic_study("SYN-FEW", pH=(9.0,), ratios=(1.0,), excluded={}),
+                       work)
+    with pytest.raises(site.SiteBuildError, match="SYN-FEW: not fitted"):
+        build(work, tmp_path / "site", cache)
+    assert not (tmp_path / "site").exists()
+    result = build(work, tmp_path / "site", cache, keep_going=True)
+    assert [o.study_id for o in result.prepared.failed] == ["SYN-FEW"]
+    page = (tmp_path / "site/studies/SYN-FEW/index.html").read_text(encoding="utf-8")
+    assert "Not fitted" in page
 
 
 def test_a_folder_not_made_by_the_tool_is_not_replaced(studies, cache, env_epoch, tmp_path):

@@ -355,7 +355,9 @@ class Pages:
             status = ("not published: input errors" if s.data is None
                       else study_status(s.data)[1])
             listing.append({"study": s.study_id, "page": study_url(s.study_id),
-                            "status": status, "inputs_key": s.key})
+                            "status": status,
+                            "verdict": None if s.data is None else s.data.get("status"),
+                            "inputs_key": s.key})
             if s.data is not None:
                 rows.extend(register_rows(self._register(s.data), dossier,
                                           study_url(s.study_id)))
