@@ -61,6 +61,25 @@ def _observation(run: Run) -> tuple[str, float] | str:
             "log scale")
 
 
+#: fractions between which a one-phase run gives a log D worth plotting
+ONE_PHASE_PLOT_RANGE = (0.02, 0.98)
+
+
+def observed_log_d(run: Run) -> float | None:
+    """log D read off one run (excluded runs too), for plots: directly when both phases were
+    measured, from the fraction extracted when one phase was and it lies between 2 and 98 %."""
+    got = _observation(run)
+    if isinstance(got, str):
+        return None
+    kind, y = got
+    if kind == LOG_D:
+        return y
+    e = 10.0 ** y if kind == LOG_E else 1.0 - 10.0 ** y
+    if not ONE_PHASE_PLOT_RANGE[0] < e < ONE_PHASE_PLOT_RANGE[1]:
+        return None
+    return float(np.log10(e / (1.0 - e) / run.volume_ratio))
+
+
 def build_observations(runs) -> tuple[Observations, tuple[RunOutcome, ...]]:
     outcomes, ids, pH, lr, kinds, ys, groups = [], [], [], [], [], [], []
     for run in runs:
@@ -223,8 +242,7 @@ class StudyReport:
                 "fitted_as": o.kind, "y": clean(o.y), "location": str(r.location),
             }
             if self.fit is not None:
-                # log D from the observation itself where one phase ratio gives it directly
-                row["log_d_observed"] = clean(o.y) if o.kind == LOG_D else None
+                row["log_d_observed"] = clean(observed_log_d(r))
                 if o.index is not None:
                     i = o.index
                     row["fitted"] = clean(self.fit.fitted[i])
