@@ -479,8 +479,11 @@ class _Profiler:
         if hint is not None:
             steps = [float(np.clip(h, 1e-6, 4.0)) if h is not None and np.isfinite(h) else step0
                      for h in hint]
-        return (self._end(v_hat, -1, lo_lim, steps[0], t_crit),
-                self._end(v_hat, +1, hi_lim, steps[1], t_crit))
+        lo = self._end(v_hat, -1, lo_lim, steps[0], t_crit)
+        hi = self._end(v_hat, +1, hi_lim, steps[1], t_crit)
+        # tau(v_hat) = 0, so an end on the wrong side of the estimate is round-off in a
+        # degenerate (flat) profile: the estimate itself bounds it
+        return (None if lo is None else min(lo, v_hat), None if hi is None else max(hi, v_hat))
 
     def _end(self, v_hat, sign, limit, step0, t_crit) -> float | None:
         """One end: secant iteration on tau(v) = t_crit from the Wald end (tau is nearly
