@@ -151,6 +151,10 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # the reader of our output went away (e.g. `| head`): stop quietly
+        sys.stderr.close()
+        return 0
 
 
 if __name__ == "__main__":
