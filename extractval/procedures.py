@@ -22,10 +22,16 @@ def _map(f, x: float | None) -> float | None:
     return None if x is None else float(f(x))
 
 
+def _ratio(log_d) -> np.ndarray:
+    """D = 10^log D. An interval end beyond the float range (a Wald end of a barely bounded
+    fit) gives D = inf, complete extraction, instead of an OverflowError."""
+    with np.errstate(over="ignore"):
+        return np.power(10.0, np.asarray(log_d, dtype=float))
+
+
 def recovery_pct_from_log_d(log_d, aqueous_mL: float, organic_mL) -> np.ndarray:
     """Percent extracted after the portions, 100 (1 - prod q_i)."""
-    return 100.0 * (1.0 - chem.remaining_fraction(10.0 ** np.asarray(log_d, dtype=float),
-                                                  aqueous_mL, organic_mL))
+    return 100.0 * (1.0 - chem.remaining_fraction(_ratio(log_d), aqueous_mL, organic_mL))
 
 
 @dataclass(frozen=True)
@@ -110,7 +116,7 @@ def predict_procedure(fit: FitResult, procedure: Procedure,
         return recovery_pct_from_log_d(x, p.aqueous_mL, p.organic_mL)
 
     def rem(x):
-        return chem.remaining_fraction(10.0 ** x, p.aqueous_mL, p.organic_mL)
+        return chem.remaining_fraction(_ratio(x), p.aqueous_mL, p.organic_mL)
 
     recovery = ValueInterval(float(rec(est.value)), Interval(_map(rec, lo), _map(rec, hi), method))
     remaining = ValueInterval(float(rem(est.value)),
@@ -118,12 +124,12 @@ def predict_procedure(fit: FitResult, procedure: Procedure,
     after = []
     for n in range(1, len(p.organic_mL) + 1):
         def rem_n(x, n=n):
-            return chem.remaining_fraction(10.0 ** x, p.aqueous_mL, p.organic_mL[:n])
+            return chem.remaining_fraction(_ratio(x), p.aqueous_mL, p.organic_mL[:n])
         after.append(ValueInterval(float(rem_n(est.value)),
                                    Interval(_map(rem_n, hi), _map(rem_n, lo), method)))
 
     def split(x):
-        return chem.split_limit_remaining(10.0 ** x, p.aqueous_mL, p.total_organic_mL)
+        return chem.split_limit_remaining(_ratio(x), p.aqueous_mL, p.total_organic_mL)
 
     split_limit = ValueInterval(float(split(est.value)),
                                 Interval(_map(split, hi), _map(split, lo), method))

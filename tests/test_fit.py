@@ -8,6 +8,7 @@ import pytest
 from extractval.analysis import build_observations, fit_study
 from extractval.fitting import INTERVAL_METHOD, FitImpossible, fit_model
 from extractval.models import MODELS
+from extractval.procedures import predict_procedure
 from extractval.simulate import simulate_runs, simulated_study
 from extractval.study import Location, Procedure, Run
 from tests.reference import handbook as ref
@@ -164,3 +165,22 @@ def test_flat_profile_gives_the_conservative_end_not_an_error():
     assert est.ci95.lo is None or est.ci95.lo <= est.value
     assert est.ci95.hi is None or est.value <= est.ci95.hi
     assert est.ci95.method == INTERVAL_METHOD
+
+
+def test_interval_end_beyond_the_float_range_of_D_is_complete_extraction(monkeypatch):
+    # found by tests/test_properties.py: a Wald end of a barely bounded fit can exceed
+    # log D = 308, where 10.0 ** x overflows a Python float
+    proc = Procedure("P1", "two portions", 3.0, 25.0, (10.0, 10.0))
+    study = simulated_study("WIDE", "acid", (1.88, 4.21), [2.5, 3.5, 4.2, 5.0, 6.0], (proc,),
+                            sigma=0.05, form="both", rng=2)
+    fit = fit_study(study).fit
+    est = fit.log_d_interval(3.0)
+    wide = dataclasses.replace(est, ci95=dataclasses.replace(est.ci95, hi=400.0))
+    monkeypatch.setattr(fit, "log_d_interval", lambda pH, hint=None: wide)
+    pred = predict_procedure(fit, proc)
+    assert pred.recovery_pct.ci95.hi == 100.0
+    assert pred.remaining_fraction.ci95.lo == 0.0
+    assert [a.ci95.lo for a in pred.after_portions] == [0.0, 0.0]
+    assert pred.split_limit_remaining.ci95.lo == 0.0
+    assert pred.recovery_pct.ci95.lo == pytest.approx(fit_study(study).predictions[0]
+                                                      .recovery_pct.ci95.lo, rel=1e-12)
