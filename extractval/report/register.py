@@ -14,22 +14,10 @@ from __future__ import annotations
 import csv
 import io
 import json
-import math
 import re
 from dataclasses import dataclass, field
 
-def fmt_pct(x: float) -> str:
-    """A percentage with enough decimals to show what is left near 100 (99.99975, not 100.0).
-
-    >>> fmt_pct(98.76), fmt_pct(99.95), fmt_pct(99.99997542), fmt_pct(100.0)
-    ('98.8', '99.950', '99.999975', '100.0')
-    """
-    if 99.9 <= x < 100.0:
-        rest = 100.0 - x
-        decimals = min(8, max(2, 1 - math.floor(math.log10(rest))))
-        text = f"{x:.{decimals}f}"
-        return "100.0" if float(text) >= 100.0 else text
-    return f"{x:.1f}"
+from ..results import fmt_pct
 
 #: characters kept in identifiers and anchors; anything else becomes "_"
 _SAFE = re.compile(r"[^A-Za-z0-9._-]")
