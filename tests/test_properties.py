@@ -5,10 +5,12 @@
   (``tests/test_readers.py`` fuzzes CSV bytes and study.yaml from fragments; here the inputs are
   whole random texts and mutations of valid files, which reach deeper into the parsers.)
 * The engine: random valid studies give a report whose dict is strict JSON, or a clear problem.
-* Chemistry (IUPAC Gold Book, fraction extracted F02503; the split limit exp(-D V / V_aq)):
-  recovery grows with the number of portions and with D; a fixed volume split into n equal
-  portions does no worse than one portion and no better than the split limit; D <= K for the
-  models where only the neutral form partitions.
+* Chemistry (remaining fraction q_n = prod V_aq / (V_aq + D V_i), IUPAC Gold Book "fraction
+  extracted" F02503; the split limit exp(-D V / V_aq) is the n -> infinity limit of
+  (1 + D V / (n V_aq))^-n, common practice): recovery grows with the number of portions and
+  with D; a fixed volume split into n equal portions does no worse than one portion and no
+  better than the split limit; D <= K for the models where only the neutral form partitions.
+* Engine bugs these tests found are pinned as plain regression tests in tests/test_fit.py.
 * The fit depends neither on the order of the runs nor on the unit of the amounts.
 
 No test here measures speed; the hang guard only stops an endless loop.
@@ -41,6 +43,8 @@ from tests.study_factory import (HEADER, ROWS, RUNS_CSV, STUDY_YAML, snapshot, w
 _fixture_ok = [HealthCheck.function_scoped_fixture, HealthCheck.too_slow]
 READER = settings(max_examples=60, deadline=None, suppress_health_check=_fixture_ok)
 ENGINE = settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+#: random designs include ill-posed ones that cost seconds each (band, design map): fewer
+RANDOM_STUDIES = settings(ENGINE, max_examples=20)
 FORMULA = settings(max_examples=300, deadline=None)
 
 #: An example that runs this long is stuck, not slow: every reader answers in well under 1 s.
@@ -124,8 +128,8 @@ def test_mutated_runs_csv(tmp_path, edits, cut):
 
 @READER
 @given(data=st.binary(max_size=2000) | st.text(max_size=400).map(str.encode))
-def test_any_bytes_as_a_workbook(tmp_path, data):
-    for name in ("runs.xlsx", "runs.ods"):
+def test_any_bytes_as_a_runs_table(tmp_path, data):
+    for name in ("runs.csv", "runs.xlsx", "runs.ods"):
         check_unwritten(write_study(tmp_path, runs=data, runs_name=name))
 
 
@@ -250,7 +254,7 @@ def studies(draw, forms=FORMS, fit_auto: bool = True) -> Study:
                  system={"aqueous": "buffer", "organic": "solvent", "temperature_C": 25.0})
 
 
-@ENGINE
+@RANDOM_STUDIES
 @given(study=studies())
 def test_random_valid_studies_give_strict_json_or_a_clear_problem(study):
     report = fit_study(study)
