@@ -8,7 +8,9 @@ from __future__ import annotations
 
 import argparse
 import json
+import signal
 import sys
+import threading
 from pathlib import Path
 
 from . import __version__
@@ -141,8 +143,15 @@ def make_parser() -> argparse.ArgumentParser:
     return ap
 
 
+def _stop(signum, frame):
+    # a plain `kill` (SIGTERM) unwinds like Ctrl-C, so a build removes its half-built folder
+    raise KeyboardInterrupt
+
+
 def main(argv: list[str] | None = None) -> int:
     args = make_parser().parse_args(argv)
+    main_thread = threading.current_thread() is threading.main_thread()
+    saved = signal.signal(signal.SIGTERM, _stop) if main_thread else None
     try:
         return int(args.func(args) or 0)
     except StudyError as exc:
@@ -155,6 +164,9 @@ def main(argv: list[str] | None = None) -> int:
         # the reader of our output went away (e.g. `| head`): stop quietly
         sys.stderr.close()
         return 0
+    finally:
+        if main_thread:
+            signal.signal(signal.SIGTERM, saved)
 
 
 if __name__ == "__main__":

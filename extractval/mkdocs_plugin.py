@@ -41,6 +41,7 @@ class DossierPlugin(BasePlugin[DossierConfig]):
     def __init__(self):
         super().__init__()
         self.prepared: site.Prepared | None = None     # set by `extractval build`
+        self._blocks: dict[str, list[str]] = {}
 
     def _studies(self, config) -> Path:
         root = Path(config.config_file_path or ".").resolve().parent
@@ -67,9 +68,78 @@ class DossierPlugin(BasePlugin[DossierConfig]):
             files.append(File.generated(config, path, content=content))
         return files
 
+    # Python-Markdown parses every raw HTML block with an HTML parser only to pass it through
+    # unchanged; the dossier's pages are mostly such blocks (tables, the register), so they
+    # are set aside before the conversion and put back after it, which gives the same HTML
+    # (tests/test_site_build.py compares both) in a tenth of the time. A block marked
+    # data-search-exclude is put back only into the finished page, so the search index
+    # never reads it either.
+    def on_page_markdown(self, markdown, *, page, config, files):
+        text, self._blocks[page.file.src_uri] = set_aside_html(markdown)
+        return text
+
+    def on_page_content(self, html, *, page, config, files):
+        return put_back_html(html, self._blocks.get(page.file.src_uri, ()), searchable=True)
+
+    def on_post_page(self, output, *, page, config):
+        return put_back_html(output, self._blocks.pop(page.file.src_uri, ()), searchable=False)
+
     def on_serve(self, server, *, config, builder):
         server.watch(str(self._studies(config)))
         return server
+
+
+_HTML_START = re.compile(r"<(table|div|figure)(?=[\s>])")
+
+
+def _placeholder(i: int) -> str:
+    return f"<!--xv-block-{i}-->"
+
+
+def set_aside_html(markdown: str) -> tuple[str, list[str]]:
+    r"""Replace each top-level raw HTML block by a placeholder comment: (text, blocks).
+
+    A block is what Python-Markdown itself takes as one: it starts a line after a blank line
+    with ``<table``, ``<div`` or ``<figure``, and ends with the line that closes that tag at
+    the same depth, followed by a blank line (or the end). Anything else stays in the text.
+
+    >>> set_aside_html("# T\n\n<table>\n<tr><td>1</td></tr>\n</table>\n\nend")
+    ('# T\n\n<!--xv-block-0-->\n\nend', ['<table>\n<tr><td>1</td></tr>\n</table>'])
+    """
+    lines = markdown.split("\n")
+    out: list[str] = []
+    blocks: list[str] = []
+    i, after_blank = 0, True
+    while i < len(lines):
+        m = _HTML_START.match(lines[i]) if after_blank else None
+        if m:
+            opening = re.compile(rf"<{m.group(1)}(?=[\s>])")
+            closing = f"</{m.group(1)}>"
+            depth, j = 0, i
+            while j < len(lines):
+                depth += len(opening.findall(lines[j])) - lines[j].count(closing)
+                if depth <= 0:
+                    break
+                j += 1
+            if (j < len(lines) and lines[j].rstrip().endswith(closing)
+                    and (j + 1 == len(lines) or not lines[j + 1].strip())):
+                out.append(_placeholder(len(blocks)))
+                blocks.append("\n".join(lines[i:j + 1]))
+                i, after_blank = j + 1, False
+                continue
+        out.append(lines[i])
+        after_blank = not lines[i].strip()
+        i += 1
+    return "\n".join(out), blocks
+
+
+def put_back_html(html: str, blocks, searchable: bool) -> str:
+    """Put the blocks set aside back at their placeholders: those the search may read
+    (``searchable``), or those marked ``data-search-exclude``."""
+    for i, block in enumerate(blocks):
+        if ("data-search-exclude" not in block.split(">", 1)[0]) == searchable:
+            html = html.replace(_placeholder(i), block, 1)
+    return html
 
 
 def docs_dir(config_file: Path) -> Path:

@@ -445,15 +445,55 @@ def _check_target(site_dir: Path, protected: list[Path]) -> None:
                                  "empty it")
 
 
+def _leftover(site_dir: Path, kind: str) -> str:
+    """The name prefix of this process's temporary folders beside ``site_dir``."""
+    return f".{site_dir.name}.{kind}-{os.getpid()}-"
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+def sweep_leftovers(site_dir: Path) -> None:
+    """Clear what a build that was killed (power cut, SIGKILL) left beside the site.
+
+    Its half-built folder goes; if it was killed between the two renames of :func:`publish`,
+    the previous site is put back. Folders of builds still running are left alone.
+    """
+    parent = site_dir.parent
+    if not parent.is_dir():
+        return
+    dead: dict[str, list[Path]] = {"building": [], "old": []}
+    for kind, found in dead.items():
+        for p in parent.glob(f".{site_dir.name}.{kind}-*"):
+            pid = p.name[len(f".{site_dir.name}.{kind}-"):].split("-", 1)[0]
+            if pid.isdigit() and not _alive(int(pid)):
+                found.append(p)
+    if not site_dir.exists():
+        previous = sorted((p for p in dead["old"] if (p / MARKER).is_file()),
+                          key=lambda p: p.stat().st_mtime)
+        if previous:
+            os.replace(previous[-1], site_dir)
+            dead["old"].remove(previous[-1])
+    for p in dead["building"] + dead["old"]:
+        shutil.rmtree(p, ignore_errors=True)
+
+
 def publish(built: Path, site_dir: Path) -> None:
     """Put the finished site in place of the old one (two renames on the same disk)."""
     if site_dir.exists():
-        old = Path(tempfile.mkdtemp(prefix=f".{site_dir.name}.old-", dir=site_dir.parent))
+        old = Path(tempfile.mkdtemp(prefix=_leftover(site_dir, "old"), dir=site_dir.parent))
         os.rmdir(old)
         os.replace(site_dir, old)
         try:
             os.replace(built, site_dir)
-        except OSError:
+        except BaseException:
             os.replace(old, site_dir)
             raise
         shutil.rmtree(old, ignore_errors=True)
@@ -488,7 +528,8 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
     prepared = prepare(studies_dir, templates_dir, config_file, keep_going=keep_going,
                        cache_dir=cache_dir, jobs=jobs, progress=progress, sources=sources)
     site_dir.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{site_dir.name}.building-", dir=site_dir.parent))
+    sweep_leftovers(site_dir)
+    tmp = Path(tempfile.mkdtemp(prefix=_leftover(site_dir, "building"), dir=site_dir.parent))
     try:
         _, epoch = build_date()
         saved = os.environ.get("SOURCE_DATE_EPOCH")

@@ -265,3 +265,142 @@ def test_bad_source_date_epoch_is_a_clear_error(studies, cache, tmp_path, monkey
     monkeypatch.setenv("SOURCE_DATE_EPOCH", "yesterday")
     with pytest.raises(site.SiteBuildError, match="SOURCE_DATE_EPOCH"):
         build(studies, tmp_path / "site", cache)
+
+
+# -- the generator's fast path and interrupted builds ---------------------------------------------
+def test_html_set_aside_gives_the_html_markdown_gives(tmp_path):
+    """The plugin keeps raw HTML blocks away from Python-Markdown and puts them back: the
+    page must be the one Markdown alone makes (golden pages: a study, the index, the
+    register, a study that failed)."""
+    import markdown
+
+    from extractval.mkdocs_plugin import put_back_html, set_aside_html
+
+    pages = sorted((ROOT / "tests" / "golden" / "pages").rglob("*.md"))
+    assert len(pages) >= 4
+    n_blocks = 0
+    for page in pages:
+        text = page.read_text(encoding="utf-8")
+        alone = markdown.markdown(text, extensions=["tables", "attr_list", "toc"])
+        short, blocks = set_aside_html(text)
+        n_blocks += len(blocks)
+        html = markdown.markdown(short, extensions=["tables", "attr_list", "toc"])
+        html = put_back_html(put_back_html(html, blocks, True), blocks, False)
+        assert html == alone, page
+    assert n_blocks >= 20          # the study page's tables, figures and register
+
+
+def test_set_aside_leaves_what_markdown_would_not_take_as_one_block():
+    from extractval.mkdocs_plugin import set_aside_html
+
+    inline = "Text <div>not a block</div>\n\n<table>\n<tr><td>open"   # never closed
+    assert set_aside_html(inline) == (inline, [])
+    nested = "<div a>\n<div b>\nx\n</div>\n</div>\n\nafter"
+    assert set_aside_html(nested) == ("<!--xv-block-0-->\n\nafter",
+                                      ["<div a>\n<div b>\nx\n</div>\n</div>"])
+
+
+def test_register_is_on_the_page_but_not_in_the_search_index(built):
+    html = (built / "studies" / "SYN-001" / "index.html").read_text(encoding="utf-8")
+    assert 'id="SYN-001/logK"' in html and "<!--xv-block-" not in html
+    index = json.loads((built / "search" / "search_index.json").read_text(encoding="utf-8"))
+    texts = " ".join(d["title"] + " " + d["text"] for d in index["docs"]
+                     if d["location"].startswith("studies/SYN-001/"))
+    assert "Fitted constants" in texts           # the page itself is searchable
+    assert "SYN-001/logK/ci95" not in texts      # its register lines (data-search-exclude) not
+
+
+def test_an_interrupted_build_leaves_the_site_and_no_half_built_folder(
+        built, studies, cache, env_epoch, tmp_path, monkeypatch):
+    from extractval import mkdocs_plugin
+
+    target = tmp_path / "site"
+    shutil.copytree(built, target)
+    before = tree(target)
+
+    def half_then_interrupt(config_file, site_dir, prepared):
+        (Path(site_dir) / "index.html").write_text("half", encoding="utf-8")
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(mkdocs_plugin, "build_site", half_then_interrupt)
+    with pytest.raises(KeyboardInterrupt):
+        build(studies, target, cache)
+    assert tree(target) == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["site"]
+
+
+def test_a_killed_build_leaves_the_site_and_the_next_build_clears_its_folder(
+        built, studies, cache, env_epoch, tmp_path):
+    """SIGKILL while the generator writes: nothing can clean up then, so the published site
+    must already be safe, and the next build removes the half-built folder."""
+    import signal
+    import time
+
+    target = tmp_path / "site"
+    shutil.copytree(built, target)
+    before = tree(target)
+    env = dict(os.environ, SOURCE_DATE_EPOCH=EPOCH, PYTHONPATH=str(ROOT))
+    cmd = [sys.executable, "-m", "extractval.cli", "build", "--studies", str(studies),
+           "--site", str(target), "--config", str(CONFIG), "--cache-dir", str(cache)]
+    killed = False
+    for _ in range(5):                 # the window is short; try again if the build won
+        proc = subprocess.Popen(cmd, env=env, stdout=subprocess.DEVNULL,
+                                stderr=subprocess.DEVNULL)
+        end = time.monotonic() + 300
+        while proc.poll() is None and time.monotonic() < end:
+            half = list(tmp_path.glob(".site.building-*/**/*.html"))
+            if half:
+                proc.send_signal(signal.SIGKILL)
+                killed = True
+                break
+            time.sleep(0.005)
+        proc.wait(timeout=60)
+        if killed:
+            break
+    assert killed, "the build always finished before it could be killed"
+    assert tree(target) == before
+    assert list(tmp_path.glob(".site.building-*"))          # what the kill left behind
+    build(studies, target, cache)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["site"]
+    assert tree(target) == before                           # same inputs, same bytes
+
+
+def test_a_site_killed_between_the_two_renames_is_put_back(built, tmp_path):
+    """Killed after the old site was moved aside and before the new one took its place: the
+    next build finds no site and the previous one beside it, and puts it back."""
+    dead = subprocess.Popen([sys.executable, "-c", "pass"])
+    dead.wait()
+    aside = tmp_path / f".site.old-{dead.pid}-abc"
+    shutil.copytree(built, aside)
+    before = tree(aside)
+    site.sweep_leftovers(tmp_path / "site")
+    assert tree(tmp_path / "site") == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["site"]
+
+
+def test_the_command_line_build_stops_cleanly_on_sigterm(studies, cache, env_epoch, tmp_path):
+    import signal
+    import time
+
+    env = dict(os.environ, SOURCE_DATE_EPOCH=EPOCH, PYTHONPATH=str(ROOT))
+    target = tmp_path / "site"
+    cmd = [sys.executable, "-m", "extractval.cli", "build", "--studies", str(studies),
+           "--site", str(target), "--config", str(CONFIG), "--cache-dir", str(cache)]
+    for _ in range(5):
+        proc = subprocess.Popen(cmd, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
+                                text=True)
+        end = time.monotonic() + 300
+        sent = False
+        while proc.poll() is None and time.monotonic() < end:
+            if list(tmp_path.glob(".site.building-*/**/*.html")):
+                proc.send_signal(signal.SIGTERM)
+                sent = True
+                break
+            time.sleep(0.005)
+        _, err = proc.communicate(timeout=60)
+        if sent and proc.returncode == 130:
+            break
+        shutil.rmtree(target, ignore_errors=True)
+    assert sent and proc.returncode == 130, err
+    assert "interrupted" in err and "Traceback" not in err
+    assert list(tmp_path.iterdir()) == []        # no site was there before, none now
