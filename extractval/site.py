@@ -40,7 +40,7 @@ from .report.register import Dossier
 
 SOFTWARE = f"extractval {__version__}"
 CACHE_DIR = ".extractval-cache"
-CACHE_FORMAT = "v1"
+CACHE_FORMAT = "v2"
 #: written into every site this tool publishes; a folder without it is never replaced
 MARKER = ".extractval-dossier"
 CONFIG = "mkdocs.yml"
@@ -147,8 +147,10 @@ def compute(study) -> tuple[str, dict[str, bytes]]:
 class Cache:
     """Per study, the fitted dict and the plots, under a key of study content and software.
 
-    Layout: ``<root>/v1/<study-id>/<key>/report.json`` and ``plots/*.svg``. The folder is
-    safe to delete at any time; only the newest entry of each study is kept.
+    Layout: ``<root>/v1/<study-id>/<key>/report.json``, ``meta.json`` (the study's inputs key
+    and run count) and ``plots/*.svg``. A study folder is keyed by its files' bytes, a study
+    made in memory by its record. The folder is safe to delete at any time; only the newest
+    entry of each study is kept.
     """
 
     def __init__(self, root: Path | None):
@@ -157,18 +159,30 @@ class Cache:
     def key(self, study) -> str:
         return _sha(software_fingerprint(), _record(study))[:24]
 
-    def get(self, study_id: str, key: str) -> tuple[str, dict[str, bytes]] | None:
+    def folder_key(self, folder: Path, shown_as: str) -> str:
+        """The key of a study folder by its files' bytes, without reading it as a study: a
+        warm rebuild then skips parsing too. ``shown_as`` is the folder as the messages and
+        pages name it (part of what the pages say)."""
+        parts: list[bytes | str] = [software_fingerprint(), "folder", shown_as]
+        for f in sorted(p for p in folder.rglob("*") if p.is_file()):
+            parts += [f.relative_to(folder).as_posix(), f.read_bytes()]
+        return _sha(*parts)[:24]
+
+    def get(self, study_id: str, key: str) -> tuple[str, dict[str, bytes], dict] | None:
+        """(report JSON text, plots, meta) of an entry, or None."""
         if self.root is None:
             return None
         entry = self.root / study_id / key
         try:
             text = (entry / "report.json").read_text(encoding="utf-8")
+            meta = json.loads((entry / "meta.json").read_text(encoding="utf-8"))
             plots = {p.name: p.read_bytes() for p in sorted((entry / "plots").glob("*.svg"))}
-        except OSError:
+        except (OSError, ValueError):
             return None
-        return text, plots
+        return text, plots, meta
 
-    def put(self, study_id: str, key: str, text: str, plots: dict[str, bytes]) -> None:
+    def put(self, study_id: str, key: str, text: str, plots: dict[str, bytes],
+            meta: dict) -> None:
         if self.root is None:
             return
         base = self.root / study_id
@@ -179,6 +193,7 @@ class Cache:
             for name, data in plots.items():
                 (tmp / "plots" / name).write_bytes(data)
             (tmp / "report.json").write_text(text, encoding="utf-8")
+            (tmp / "meta.json").write_text(json.dumps(meta), encoding="utf-8")
             final = base / key
             if final.exists():
                 shutil.rmtree(final, ignore_errors=True)
@@ -299,8 +314,21 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
         if progress:
             progress(_progress_line(done, n, o))
 
+    def from_cache(src, text, plots, meta) -> Outcome:
+        return Outcome(src.study_id, json.loads(text), plots, [], meta["inputs_key"],
+                       meta["runs"], cached=True)
+
     for src in sources:
         t0 = time.perf_counter()
+        key = None
+        if src.folder is not None and cache.root is not None and src.folder.is_dir():
+            shown = (os.path.relpath(src.folder, display_root) if display_root is not None
+                     else str(src.folder))
+            key = cache.folder_key(src.folder, shown)
+            hit = cache.get(src.study_id, key)
+            if hit is not None:
+                report(from_cache(src, *hit))
+                continue
         try:
             with _working_folder(display_root):
                 study, errors = src.load()
@@ -312,19 +340,19 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
             report(Outcome(src.study_id, None, {}, errors, _folder_key(src.folder, errors),
                            seconds=time.perf_counter() - t0))
             continue
-        key = cache.key(study)
-        hit = cache.get(src.study_id, key)
-        if hit is not None:
-            text, plots = hit
-            report(Outcome(src.study_id, json.loads(text), plots, [], inputs_key(study),
-                           len(study.runs), cached=True))
-        else:
-            todo.append((src, study, key))
+        if key is None:
+            key = cache.key(study)
+            hit = cache.get(src.study_id, key)
+            if hit is not None:
+                report(from_cache(src, *hit))
+                continue
+        todo.append((src, study, key))
 
     def finish(src, study, key, text, plots, seconds):
-        cache.put(src.study_id, key, text, plots)
-        report(Outcome(src.study_id, json.loads(text), plots, [], inputs_key(study),
-                       len(study.runs), seconds=seconds))
+        meta = {"inputs_key": inputs_key(study), "runs": len(study.runs)}
+        cache.put(src.study_id, key, text, plots, meta)
+        report(Outcome(src.study_id, json.loads(text), plots, [], meta["inputs_key"],
+                       meta["runs"], seconds=seconds))
 
     def failed(src, study, exc):
         report(Outcome(src.study_id, None, {}, [
@@ -506,6 +534,8 @@ class BuildResult:
     site_dir: Path
     prepared: Prepared
     seconds: float
+    #: wall seconds of the steps: "read and fit" (with plots and pages), "generator"
+    steps: dict[str, float] = field(default_factory=dict)
 
 
 def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
@@ -527,6 +557,7 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
     _check_target(site_dir, protected)
     prepared = prepare(studies_dir, templates_dir, config_file, keep_going=keep_going,
                        cache_dir=cache_dir, jobs=jobs, progress=progress, sources=sources)
+    t1 = time.perf_counter()
     site_dir.parent.mkdir(parents=True, exist_ok=True)
     sweep_leftovers(site_dir)
     tmp = Path(tempfile.mkdtemp(prefix=_leftover(site_dir, "building"), dir=site_dir.parent))
@@ -547,7 +578,9 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
-    return BuildResult(site_dir, prepared, time.perf_counter() - t0)
+    t2 = time.perf_counter()
+    return BuildResult(site_dir, prepared, t2 - t0,
+                       {"studies and pages": t1 - t0, "site generator": t2 - t1})
 
 
 # -- the commands ---------------------------------------------------------------------------------
@@ -594,8 +627,9 @@ def build_command(args) -> int:
             print(e, file=sys.stderr)
     n_cached = sum(o.cached for o in p.outcomes)
     summary = (f"built {len(p.outcomes)} stud{'y' if len(p.outcomes) == 1 else 'ies'} "
-               f"({n_cached} from cache) into {result.site_dir} in {result.seconds:.1f} s, "
-               f"dossier {p.dossier.version}")
+               f"({n_cached} from cache) into {result.site_dir} in {result.seconds:.1f} s ("
+               + ", ".join(f"{k} {v:.1f} s" for k, v in result.steps.items())
+               + f"), dossier {p.dossier.version}")
     if failed:
         summary += (f"; {len(failed)} with errors published without numbers: "
                     + ", ".join(o.study_id for o in failed))

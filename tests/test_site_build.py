@@ -235,6 +235,19 @@ def test_one_changed_study_is_the_only_one_fitted_again(studies, cache, env_epoc
     assert rows(a, "SYN-002") != rows(b, "SYN-002")
 
 
+def test_a_cached_study_folder_is_not_even_read_again(built, studies, cache, env_epoch,
+                                                       tmp_path, monkeypatch):
+    """A warm rebuild knows an unchanged folder by its bytes and takes the entry without
+    parsing the study; the site it publishes is the same."""
+    def no_reading(self):
+        raise AssertionError(f"{self.study_id} was read although its files did not change")
+
+    monkeypatch.setattr(site.Source, "load", no_reading)
+    result = build(studies, tmp_path / "site", cache)
+    assert all(o.cached for o in result.prepared.outcomes)
+    assert tree(tmp_path / "site") == tree(built)
+
+
 def test_privacy_guard_fails_the_build_on_an_external_asset(studies, cache, env_epoch,
                                                            tmp_path):
     """An external image in a template must stop the build (privacy plugin, strict mode)."""
