@@ -90,6 +90,8 @@ class DossierPlugin(BasePlugin[DossierConfig]):
 
 
 _HTML_START = re.compile(r"<(table|div|figure)(?=[\s>])")
+#: a block whose inside is Markdown (the md_in_html extension) must go through Markdown
+_MD_IN_HTML = re.compile(r"\smarkdown(?=[\s=>]|$)")
 
 
 def _placeholder(i: int) -> str:
@@ -101,7 +103,8 @@ def set_aside_html(markdown: str) -> tuple[str, list[str]]:
 
     A block is what Python-Markdown itself takes as one: it starts a line after a blank line
     with ``<table``, ``<div`` or ``<figure``, and ends with the line that closes that tag at
-    the same depth, followed by a blank line (or the end). Anything else stays in the text.
+    the same depth, followed by a blank line (or the end). Anything else stays in the text,
+    and so does a block with a ``markdown`` attribute (its inside is Markdown).
 
     >>> set_aside_html("# T\n\n<table>\n<tr><td>1</td></tr>\n</table>\n\nend")
     ('# T\n\n<!--xv-block-0-->\n\nend', ['<table>\n<tr><td>1</td></tr>\n</table>'])
@@ -112,7 +115,7 @@ def set_aside_html(markdown: str) -> tuple[str, list[str]]:
     i, after_blank = 0, True
     while i < len(lines):
         m = _HTML_START.match(lines[i]) if after_blank else None
-        if m:
+        if m and not _MD_IN_HTML.search(lines[i].split(">", 1)[0]):
             opening = re.compile(rf"<{m.group(1)}(?=[\s>])")
             closing = f"</{m.group(1)}>"
             depth, j = 0, i

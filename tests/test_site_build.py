@@ -308,6 +308,8 @@ def test_set_aside_leaves_what_markdown_would_not_take_as_one_block():
 
     inline = "Text <div>not a block</div>\n\n<table>\n<tr><td>open"   # never closed
     assert set_aside_html(inline) == (inline, [])
+    md_inside = '<div class="x" markdown>\n*emphasis*\n</div>\n'
+    assert set_aside_html(md_inside) == (md_inside, [])
     nested = "<div a>\n<div b>\nx\n</div>\n</div>\n\nafter"
     assert set_aside_html(nested) == ("<!--xv-block-0-->\n\nafter",
                                       ["<div a>\n<div b>\nx\n</div>\n</div>"])
