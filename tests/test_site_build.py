@@ -242,8 +242,10 @@ def test_a_cached_study_folder_is_not_even_read_again(built, studies, cache, env
     def no_reading(self):
         raise AssertionError(f"{self.study_id} was read although its files did not change")
 
+    own_cache = tmp_path / "cache"                # other tests refill the shared one
+    build(studies, tmp_path / "first", own_cache)
     monkeypatch.setattr(site.Source, "load", no_reading)
-    result = build(studies, tmp_path / "site", cache)
+    result = build(studies, tmp_path / "site", own_cache)
     assert all(o.cached for o in result.prepared.outcomes)
     assert tree(tmp_path / "site") == tree(built)
 
