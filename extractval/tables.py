@@ -434,9 +434,50 @@ def _pick_sheet(names: list[str], sheet: str | None,
                          expected="one of " + ", ".join(repr(n) for n in names))
 
 
+_XLSX_ROW_TAG = re.compile(rb"<(?:\w+:)?row[\s>/]")
+_XLSX_ROW_TAG_LEN = len(b"<row") + 1
+_XLSX_HEAD = 1 << 16
+
+
+def _xlsx_unsized_rows(data: bytes) -> tuple[str, int] | None:
+    """The first worksheet that states no size and has more than :data:`MAX_ROWS` row
+    elements, as (member name, rows counted), or None.
+
+    A sheet without its ``<dimension>`` (streaming writers leave it out) makes openpyxl read
+    the whole sheet while it opens the workbook, before a single row reaches us; such a sheet
+    is measured here on its bytes first. Sheets that state their size are left to the reader.
+    """
+    import zipfile
+
+    try:
+        with zipfile.ZipFile(io.BytesIO(data)) as zf:
+            for member in sorted(n for n in zf.namelist()
+                                 if n.startswith("xl/worksheets/") and n.endswith(".xml")):
+                with zf.open(member) as fh:
+                    head = fh.read(_XLSX_HEAD)
+                data_at = head.find(b"sheetData")
+                if b"<dimension" in (head if data_at < 0 else head[:data_at]):
+                    continue
+                rows, _ = _count_rows(zf, member, _XLSX_ROW_TAG, _XLSX_ROW_TAG_LEN,
+                                      _MAX_ODS_XML_BYTES)
+                if rows > MAX_ROWS:
+                    return member, rows
+    except Exception:   # not a zip, a corrupt stream: left to the full reader
+        return None
+    return None
+
+
 def _read_xlsx(data: bytes, shown: str, sheet: str | None) -> tuple[Table | None, list[Problem]]:
     import openpyxl
 
+    unsized = _xlsx_unsized_rows(data)
+    if unsized is not None:
+        return None, [Problem(
+            "the workbook is too long to be read as one study's runs: a sheet without a "
+            f"stated size ({unsized[0]}) has more rows than a study can have", file=shown,
+            found=f"more than {MAX_ROWS} rows", expected=(
+                f"at most {MAX_ROWS} rows in each sheet, header included: a shake-flask study "
+                "has tens of runs; keep other data in another file"))]
     try:
         wb = openpyxl.load_workbook(io.BytesIO(data), read_only=True, data_only=True)
     except Exception as exc:   # a corrupt workbook can fail anywhere inside the parser
@@ -530,33 +571,43 @@ _ODS_ROW_TAG_LEN = len(b"<table:table-row") + 1
 _CHUNK = 1 << 20
 
 
+def _count_rows(zf, member: str, tag: re.Pattern, tag_len: int,
+                max_bytes: int) -> tuple[int, int]:
+    """(row elements, bytes) of one XML member of a zip, streamed without parsing it.
+
+    Counting stops once either passes its limit (:data:`MAX_ROWS`, ``max_bytes``).
+    """
+    rows = size = 0
+    tail = b""
+    with zf.open(member) as fh:
+        while rows <= MAX_ROWS and size <= max_bytes:
+            chunk = fh.read(_CHUNK)
+            if not chunk:
+                break
+            size += len(chunk)
+            block = tail + chunk
+            # the tail is one byte shorter than a match: a tag cut by the chunk boundary
+            # is counted once, in the block that completes it
+            rows += len(tag.findall(block))
+            tail = block[-(tag_len - 1):]
+    return rows, size
+
+
 def _ods_size(data: bytes) -> tuple[int, int] | None:
     """(row elements, bytes) of an ODS file's content.xml, streamed without building it;
     None when the archive cannot be read this way (the full reader then reports why).
 
-    Counting stops once either passes its limit. Every writer spells the table namespace
-    ``table:``; a file that does not is only read without this early check.
+    Every writer spells the table namespace ``table:``; a file that does not is only read
+    without this early check.
     """
     import zipfile
 
-    tag = _ODS_ROW_TAG
-    rows = size = 0
-    tail = b""
     try:
-        with zipfile.ZipFile(io.BytesIO(data)) as zf, zf.open("content.xml") as fh:
-            while rows <= MAX_ROWS and size <= _MAX_ODS_XML_BYTES:
-                chunk = fh.read(_CHUNK)
-                if not chunk:
-                    break
-                size += len(chunk)
-                block = tail + chunk
-                # the tail is one byte shorter than a match: a tag cut by the chunk boundary
-                # is counted once, in the block that completes it
-                rows += len(tag.findall(block))
-                tail = block[-(_ODS_ROW_TAG_LEN - 1):]
+        with zipfile.ZipFile(io.BytesIO(data)) as zf:
+            return _count_rows(zf, "content.xml", _ODS_ROW_TAG, _ODS_ROW_TAG_LEN,
+                               _MAX_ODS_XML_BYTES)
     except Exception:   # not a zip, no content.xml, a corrupt stream: left to the full reader
         return None
-    return rows, size
 
 
 def _read_ods(data: bytes, shown: str, sheet: str | None) -> tuple[Table | None, list[Problem]]:

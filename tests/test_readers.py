@@ -574,6 +574,46 @@ def test_xlsx_with_data_beyond_the_row_limit(tmp_path, monkeypatch):
     assert p.expected.startswith("at most 4 rows")
 
 
+def _streamed_xlsx(path, rows):
+    """A workbook as streaming writers make it: no stated size in the sheet."""
+    import openpyxl
+
+    wb = openpyxl.Workbook(write_only=True)
+    ws = wb.create_sheet("Runs")
+    for row in rows:
+        ws.append(row)
+    wb.save(path)
+    return path
+
+
+def test_xlsx_without_a_stated_size_is_measured_before_it_is_opened(tmp_path, monkeypatch):
+    import openpyxl
+
+    monkeypatch.setattr(tables, "MAX_ROWS", 4)
+    folder = write_study(tmp_path, runs=None, runs_name="runs.xlsx")
+    runs = [["R4", 9.5, 10, 20, 100, 3, 97], ["R5", 10.0, 10, 20, 100, 2, 98]]
+    _streamed_xlsx(folder / "runs.xlsx", [HEADER, *ROWS, *runs])
+    assert b"<dimension" not in __import__("zipfile").ZipFile(
+        folder / "runs.xlsx").read("xl/worksheets/sheet1.xml")
+
+    def no_opening(*args, **kw):
+        raise AssertionError("a too long workbook was opened")
+
+    monkeypatch.setattr(openpyxl, "load_workbook", no_opening)
+    study, problems = check_study(folder)
+    assert study is None
+    p = only(problems, "too long")
+    assert (p.file, p.found) == ("ST-1/runs.xlsx", "more than 4 rows")
+    assert "xl/worksheets/sheet1.xml" in p.message and "at most 4 rows" in p.expected
+
+
+def test_xlsx_without_a_stated_size_inside_the_limit_is_read(tmp_path):
+    folder = write_study(tmp_path, runs=None, runs_name="runs.xlsx")
+    _streamed_xlsx(folder / "runs.xlsx", [HEADER, *ROWS])
+    study, problems = check_study(folder)
+    assert problems == [] and [r.run_id for r in study.runs] == [r[0] for r in ROWS]
+
+
 def test_xlsx_formatted_blank_rows_beyond_the_limit_are_not_data(tmp_path, monkeypatch):
     import openpyxl
 
