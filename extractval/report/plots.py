@@ -1,7 +1,9 @@
-"""SVG plots of a study dict: log D against pH, residuals against pH, portions per procedure.
+"""SVG plots of a study dict: log D against pH, residuals against pH, portions per procedure,
+and the design-space map.
 
-Every plotted value is read from ``StudyReport.to_dict()`` (the ``curve``, ``run_table`` and
-``procedures`` entries); the only arithmetic here is placing things on the axes. The output is
+Every plotted value is read from ``StudyReport.to_dict()`` (the ``curve``, ``run_table``,
+``procedures`` and ``design_space`` entries); the only arithmetic here is placing things on the
+axes. The output is
 byte-stable: a fixed ``svg.hashsalt``, no date in the metadata, text drawn as paths, and the
 object-oriented matplotlib API (no pyplot state shared between figures).
 """
@@ -12,10 +14,15 @@ import io
 import math
 
 import matplotlib
+import numpy as np
+from matplotlib import patheffects
 from matplotlib.backends.backend_svg import FigureCanvasSVG
+from matplotlib.cm import ScalarMappable
+from matplotlib.colors import BoundaryNorm
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
-from matplotlib.ticker import FuncFormatter, NullLocator
+from matplotlib.patches import Patch
+from matplotlib.ticker import FixedLocator, FuncFormatter, MultipleLocator, NullLocator
 
 #: The dossier's own palette; hues told apart by lightness as well as colour, and every series
 #: also has its own marker shape, so no reading depends on colour alone.
@@ -26,6 +33,14 @@ BAND = "#7fa7cf"
 SERIES = ("#c8541c", "#2274b5", "#d9a21b", "#5b3f8c", "#2f9784", "#8c8c8c")
 MARKERS = ("o", "s", "^", "D", "v", "P")
 LIMIT = "#a3322b"
+#: design-space map: a sequential map made for colour-vision deficiency (dark blue to yellow,
+#: lightness rising with recovery); its bands are finer where procedures are judged
+MAP_CMAP = "cividis"
+MAP_LEVELS = (0.0, 20.0, 40.0, 60.0, 80.0, 90.0, 95.0, 98.0, 99.0, 100.0)
+MAP_RATIO_TICKS = (0.05, 0.1, 0.2, 0.5, 1.0, 2.0)
+NO_VALUE = "#b8bec6"          # cells whose lower end is open
+EXTRAPOLATED = "#8d96a0"      # hatching beyond the measured pH: seen on dark and light bands
+HALO = [patheffects.withStroke(linewidth=3.0, foreground="white")]
 
 STYLE = {
     "svg.hashsalt": "extractval-dossier",
@@ -224,13 +239,184 @@ def portions_plot(pr: dict) -> bytes | None:
         return _svg(fig)
 
 
+def _panel_words(n: int) -> str:
+    return f"{n} portion" + ("" if n == 1 else "s")
+
+
+def design_space_figure(d: dict) -> Figure | None:
+    """The design-space map as a Figure (before SVG): one panel per number of portions.
+
+    Each panel shows the lower 95 % end of recovery (``design_space/recovery_lo_pct``) over pH
+    and the organic:aqueous ratio per portion in colour bands, the target as a line, the part
+    beyond the measured pH span hatched, and the procedures the dict places on the map.
+    """
+    ds = d.get("design_space")
+    if not ds or not ds.get("pH") or not ds.get("volume_ratio") or not ds.get("portions"):
+        return None
+    pH = np.asarray(ds["pH"], dtype=float)
+    ratio = np.asarray(ds["volume_ratio"], dtype=float)
+    if len(pH) < 2 or len(ratio) < 2:
+        return None
+    target = ds.get("target_pct")
+    measured = ds.get("measured_pH")
+    places = [p for p in ds.get("procedures", []) if p.get("on_map")]
+    grids = [np.ma.masked_invalid(np.asarray(_nan_grid(g), dtype=float))
+             for g in ds["recovery_lo_pct"]]
+    open_cells = any(np.ma.count_masked(g) for g in grids)
+    below = measured is not None and measured[0] > pH[0]
+    above = measured is not None and measured[1] < pH[-1]
+
+    handles, labels = [], []
+    if target is not None:
+        handles.append(Line2D([], [], color=INK, linewidth=1.8, path_effects=HALO))
+        labels.append(f"target {target:g} % (lower end)")
+    else:
+        handles.append(Line2D([], [], linestyle="none"))
+        labels.append("no recovery target: no target line")
+    if any(p.get("equal_portions", True) for p in places):
+        handles.append(Line2D([], [], linestyle="none", marker="o", markersize=6,
+                              markerfacecolor="white", markeredgecolor=INK))
+        labels.append("procedure")
+    if any(not p.get("equal_portions", True) for p in places):
+        handles.append(Line2D([], [], linestyle="none", marker="D", markersize=5.5,
+                              markerfacecolor="white", markeredgecolor=INK))
+        labels.append("procedure, unequal portions")
+    if below or above:
+        handles.append(Patch(facecolor="white", edgecolor=EXTRAPOLATED,
+                             hatchcolor=EXTRAPOLATED, hatch="////", linewidth=0.6))
+        labels.append("extrapolated pH")
+    if open_cells:
+        handles.append(Patch(facecolor=NO_VALUE, edgecolor=INK, linewidth=0.6))
+        labels.append("lower end open")
+    rows = _rows(len(handles), 3)
+
+    height = HEIGHT_IN + 0.2 * rows
+    fig = Figure(figsize=(WIDTH_IN, height))
+    top = 1.0 - (0.32 + 0.2 * rows) / height
+    grid = fig.add_gridspec(1, len(grids) + 1, width_ratios=[1.0] * len(grids) + [0.07],
+                            left=0.1, right=0.9, bottom=0.15, top=top, wspace=0.1)
+    cmap = matplotlib.colormaps[MAP_CMAP].resampled(len(MAP_LEVELS) - 1)
+    norm = BoundaryNorm(MAP_LEVELS, cmap.N)
+    axes = []
+    for k, (n, z) in enumerate(zip(ds["portions"], grids)):
+        ax = fig.add_subplot(grid[0, k], sharey=axes[0] if axes else None)
+        axes.append(ax)
+        ax.set_gid(f"design-space-{n}")
+        ax.set_facecolor(NO_VALUE)
+        ax.set_yscale("log")
+        ax.set_xlim(pH[0], pH[-1])
+        ax.set_ylim(ratio[0], ratio[-1])
+        ax.xaxis.set_major_locator(MultipleLocator(2.0))
+        ax.yaxis.set_major_locator(FixedLocator(MAP_RATIO_TICKS))
+        ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+        ax.yaxis.set_minor_locator(NullLocator())
+        ax.set_title(_panel_words(n), fontsize=9.5, color=INK, pad=4)
+        for side in ("top", "right"):
+            ax.spines[side].set_visible(True)
+        if k:
+            ax.tick_params(labelleft=False)
+        values = z.T                                     # rows: ratio, columns: pH
+        if values.count():
+            fill = ax.contourf(pH, ratio, values, levels=MAP_LEVELS, cmap=cmap, norm=norm)
+            fill.set_gid(f"recovery-bands-{n}")
+        if target is not None and values.count():
+            if values.max() >= target > values.min():
+                line = ax.contour(pH, ratio, values, levels=[target], colors=INK,
+                                  linewidths=1.8)
+                line.set_path_effects(HALO)
+                line.set_gid(f"target-{n}")
+                spot = _label_spot(ax, line, [(p["pH"], p["volume_ratio"]) for p in places
+                                              if p["portions"] == n])
+                if spot is not None:
+                    for label in ax.clabel(line, fmt={target: f"{target:g} %"}, fontsize=8,
+                                           inline=True, inline_spacing=3, manual=[spot]):
+                        label.set_path_effects(HALO)
+            else:
+                where = "everywhere" if values.min() >= target else "nowhere"
+                ax.text(0.5, 0.04, f"target met {where}", transform=ax.transAxes,
+                        ha="center", va="bottom", fontsize=8, color=INK, path_effects=HALO,
+                        gid=f"target-{where}-{n}")
+        if below:
+            ax.axvspan(pH[0], measured[0], facecolor="none", edgecolor=EXTRAPOLATED,
+                       hatchcolor=EXTRAPOLATED, hatch="////", linewidth=0,
+                       gid=f"extrapolated-below-{n}")
+        if above:
+            ax.axvspan(measured[1], pH[-1], facecolor="none", edgecolor=EXTRAPOLATED,
+                       hatchcolor=EXTRAPOLATED, hatch="////", linewidth=0,
+                       gid=f"extrapolated-above-{n}")
+        middle = 0.5 * (pH[0] + pH[-1])
+        high_ratio = ratio[-1] ** 0.8 * ratio[0] ** 0.2        # 80 % up the log axis
+        for p in places:
+            if p["portions"] != n:
+                continue
+            equal = p.get("equal_portions", True)
+            ax.plot([p["pH"]], [p["volume_ratio"]], linestyle="none",
+                    marker="o" if equal else "D", markersize=6.5 if equal else 6,
+                    markerfacecolor="white", markeredgecolor=INK, markeredgewidth=1.2,
+                    gid=f"procedure-{p['id']}", clip_on=False)
+            # the label goes toward the middle of the panel, away from its edges and title
+            left = p["pH"] <= middle
+            low = p["volume_ratio"] <= high_ratio
+            ax.annotate(_plain(p["id"]), xy=(p["pH"], p["volume_ratio"]),
+                        xytext=(6 if left else -6, 5 if low else -5), textcoords="offset points",
+                        ha="left" if left else "right", va="bottom" if low else "top",
+                        fontsize=8.5,
+                        color=INK, path_effects=HALO, gid=f"procedure-label-{p['id']}")
+    axes[0].set_ylabel("organic:aqueous per portion")
+    axes[len(axes) // 2].set_xlabel("pH")
+    cax = fig.add_subplot(grid[0, -1])
+    cax.set_gid("colour-bar")
+    bar = fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), cax=cax, ticks=MAP_LEVELS,
+                       spacing="uniform")
+    bar.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+    bar.outline.set_linewidth(0.6)
+    bar.set_label("recovery, 95 % lower bound (%)")
+    fig.legend(handles, labels, loc="upper left", bbox_to_anchor=(0.1, 1.0), ncols=3,
+               borderaxespad=0.3, handletextpad=0.4, columnspacing=1.4)
+    return fig
+
+
+def _label_spot(ax, contour, avoid) -> tuple[float, float] | None:
+    """Where on a contour line its label goes: inside the panel, clear of its edges, away
+    from the procedures' markers and labels, and otherwise near half height."""
+    verts = [p.vertices for p in contour.get_paths() if len(p.vertices)]
+    if not verts:
+        return None
+    xy = np.concatenate(verts)
+    to_axes = ax.transData + ax.transAxes.inverted()
+    frac = to_axes.transform(xy)
+    inside = np.all((frac > 0.12) & (frac < 0.88), axis=1)
+    if not inside.any():
+        return None
+    far = np.full(len(xy), 0.25)
+    if avoid:
+        marks = to_axes.transform(np.asarray(avoid, dtype=float))
+        gap = np.hypot(frac[:, None, 0] - marks[None, :, 0], frac[:, None, 1] - marks[None, :, 1])
+        far = np.minimum(far, gap.min(axis=1))
+    score = np.where(inside, far - 0.1 * np.abs(frac[:, 1] - 0.5), -np.inf)
+    x, y = xy[int(np.argmax(score))]
+    return float(x), float(y)
+
+
+def _nan_grid(grid) -> list[list[float]]:
+    return [_nan(row) for row in grid]
+
+
+def design_space_plot(d: dict) -> bytes | None:
+    """The design-space map as SVG; None when the dict has no map."""
+    with matplotlib.rc_context(STYLE):
+        fig = design_space_figure(d)
+        return None if fig is None else _svg(fig)
+
+
 def plot_name(kind: str, procedure_id: str | None = None) -> str:
     """File name of a plot inside the study's folder of the site."""
     from .register import safe_name
 
     if kind == "portions":
         return f"portions-{safe_name(procedure_id)}.svg"
-    return {"log_d": "log-d-vs-ph.svg", "residuals": "residuals-vs-ph.svg"}[kind]
+    return {"log_d": "log-d-vs-ph.svg", "residuals": "residuals-vs-ph.svg",
+            "design_space": "design-space.svg"}[kind]
 
 
 def study_plots(d: dict) -> dict[str, bytes]:
@@ -246,4 +432,7 @@ def study_plots(d: dict) -> dict[str, bytes]:
         svg = portions_plot(pr)
         if svg:
             out[plot_name("portions", pr["id"])] = svg
+    svg = design_space_plot(d)
+    if svg:
+        out[plot_name("design_space")] = svg
     return out
