@@ -353,7 +353,7 @@ def _map_place(p: Procedure, pH_span: tuple[float, float]) -> dict:
     if not pH_span[0] <= p.pH <= pH_span[1]:
         off.append(f"pH {p.pH:g}, outside the map's {pH_span[0]:g} to {pH_span[1]:g}")
     if off:
-        note = "not on the map: " + "; ".join(off)
+        note = "; ".join(off)
     elif not equal:
         note = ("unequal portions, marked at their mean volume per portion; equal portions of "
                 "the same total extract the most, so the map overstates its recovery there")

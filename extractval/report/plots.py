@@ -283,12 +283,13 @@ def design_space_figure(d: dict) -> Figure | None:
         labels.append("procedure, unequal portions")
     if below or above:
         handles.append(Patch(facecolor="white", edgecolor=EXTRAPOLATED,
-                             hatchcolor=EXTRAPOLATED, hatch="////", linewidth=0.6))
-        labels.append("extrapolated pH")
+                             hatchcolor=EXTRAPOLATED, hatch="////", hatch_linewidth=0.7,
+                             linewidth=0.6))
+        labels.append("pH outside the runs (extrapolated)")
     if open_cells:
         handles.append(Patch(facecolor=NO_VALUE, edgecolor=INK, linewidth=0.6))
         labels.append("lower end open")
-    rows = _rows(len(handles), 3)
+    rows = _rows(len(handles), 2)
 
     height = HEIGHT_IN + 0.2 * rows
     fig = Figure(figsize=(WIDTH_IN, height))
@@ -338,12 +339,12 @@ def design_space_figure(d: dict) -> Figure | None:
                         gid=f"target-{where}-{n}")
         if below:
             ax.axvspan(pH[0], measured[0], facecolor="none", edgecolor=EXTRAPOLATED,
-                       hatchcolor=EXTRAPOLATED, hatch="////", linewidth=0,
-                       gid=f"extrapolated-below-{n}")
+                       hatchcolor=EXTRAPOLATED, hatch="////", hatch_linewidth=0.7,
+                       linewidth=0, gid=f"extrapolated-below-{n}")
         if above:
             ax.axvspan(measured[1], pH[-1], facecolor="none", edgecolor=EXTRAPOLATED,
-                       hatchcolor=EXTRAPOLATED, hatch="////", linewidth=0,
-                       gid=f"extrapolated-above-{n}")
+                       hatchcolor=EXTRAPOLATED, hatch="////", hatch_linewidth=0.7,
+                       linewidth=0, gid=f"extrapolated-above-{n}")
         middle = 0.5 * (pH[0] + pH[-1])
         high_ratio = ratio[-1] ** 0.8 * ratio[0] ** 0.2        # 80 % up the log axis
         for p in places:
@@ -371,7 +372,7 @@ def design_space_figure(d: dict) -> Figure | None:
     bar.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
     bar.outline.set_linewidth(0.6)
     bar.set_label("recovery, 95 % lower bound (%)")
-    fig.legend(handles, labels, loc="upper left", bbox_to_anchor=(0.1, 1.0), ncols=3,
+    fig.legend(handles, labels, loc="upper left", bbox_to_anchor=(0.1, 1.0), ncols=2,
                borderaxespad=0.3, handletextpad=0.4, columnspacing=1.4)
     return fig
 
