@@ -12,6 +12,7 @@ import pytest
 from matplotlib.contour import ContourSet
 
 from extractval.analysis import fit_study
+from extractval.report import plots
 from extractval.report.plots import (MAP_CMAP, design_space_figure, design_space_plot,
                                      plot_name, study_plots)
 from extractval.study import Procedure
@@ -183,3 +184,35 @@ def test_svg_is_valid_self_contained_and_byte_stable(d):
     hrefs = [v for el in root.iter() for k, v in el.attrib.items() if k.endswith("href")]
     assert hrefs and all(h.startswith("#") for h in hrefs)  # nothing fetched from outside
     assert b"<dc:date>" not in svg
+
+
+@pytest.fixture(scope="module")
+def other() -> dict:
+    """Another study with the same kinds of plots (so the same kept figures draw it)."""
+    study = synthetic_study("SYN-OTHER", procedures=PROCS, log_k=1.6, pka=7.4, seed=4,
+                            pH=(5.0, 6.0, 7.0, 8.0, 9.0))
+    return json.loads(json.dumps(fit_study(study).to_dict(), allow_nan=False))
+
+
+def test_kept_figures_draw_what_new_figures_draw(d, other):
+    """Each figure layout is kept and emptied between plots (for speed): a study's plots are
+    the same bytes whether its figures are new or have just drawn another study."""
+    plots.forget_canvases()
+    fresh = study_plots(d)
+    kept = dict(plots._CANVASES)
+    assert len(kept) == 4                  # log D, residuals, portions, map
+    between = study_plots(other)
+    assert dict(plots._CANVASES) == kept   # the other study was drawn on the same figures
+    assert study_plots(d) == fresh
+    assert between != fresh
+    plots.forget_canvases()
+    assert study_plots(other) == between
+
+
+def test_remembered_text_outlines_draw_the_same_bytes(d, monkeypatch):
+    remembered = study_plots(d)
+    assert plots._TEXT_PATHS._glyphs                      # it was used
+    monkeypatch.setattr(plots, "_TEXT_PATHS", None)      # matplotlib's own, per figure
+    plots.forget_canvases()
+    assert study_plots(d) == remembered
+    plots.forget_canvases()

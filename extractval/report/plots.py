@@ -3,15 +3,22 @@ and the design-space map.
 
 Every plotted value is read from ``StudyReport.to_dict()`` (the ``curve``, ``run_table``,
 ``procedures`` and ``design_space`` entries); the only arithmetic here is placing things on the
-axes. The output is
-byte-stable: a fixed ``svg.hashsalt``, no date in the metadata, text drawn as paths, and the
-object-oriented matplotlib API (no pyplot state shared between figures).
+axes. The output is byte-stable: a fixed ``svg.hashsalt``, no date in the metadata, text drawn
+as paths, and the object-oriented matplotlib API (no pyplot state).
+
+Speed (``benchmarks/bench_plots.py``): building a Figure and the ticks of its axes costs more
+than drawing a study's data on it, so each figure layout is built once per process and emptied
+before the next plot (:func:`_canvas`), and the outlines and extents of text are remembered
+between figures (:class:`_RememberingTextToPath`). Both leave the SVG byte for byte as a new
+Figure draws it (``tests/test_report_plots.py`` checks it).
 """
 
 from __future__ import annotations
 
+import functools
 import io
 import math
+import threading
 
 import matplotlib
 import numpy as np
@@ -22,6 +29,7 @@ from matplotlib.colors import BoundaryNorm
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
+from matplotlib.textpath import TextToPath
 from matplotlib.ticker import FixedLocator, FuncFormatter, MultipleLocator, NullLocator
 
 #: The dossier's own palette; hues told apart by lightness as well as colour, and every series
@@ -65,13 +73,142 @@ WIDTH_IN, HEIGHT_IN = 6.3, 3.4
 
 
 def _svg(fig: Figure) -> bytes:
+    canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasSVG) else FigureCanvasSVG(fig)
     buf = io.BytesIO()
-    FigureCanvasSVG(fig).print_svg(buf, metadata={"Date": None, "Creator": "extractval"})
+    canvas.print_svg(buf, metadata={"Date": None, "Creator": "extractval"})
     return buf.getvalue()
 
 
-def _figure(legend_rows: int = 1) -> tuple[Figure, object]:
-    fig = Figure(figsize=(WIDTH_IN, HEIGHT_IN + 0.2 * legend_rows))
+class _RememberingTextToPath(TextToPath):
+    """Text turned into glyph outlines, remembered between figures.
+
+    Text is drawn as paths (``svg.fonttype: path``: no font needed where the SVG is viewed);
+    matplotlib lays out every string and measures it anew for each Figure it draws. A string
+    in the same font gives the same glyphs, advances and extent every time, so each is
+    computed once per process by the methods of the parent class and reused; what the SVG
+    gets is unchanged (``tests/test_report_plots.py`` compares the output with and without).
+    """
+
+    LIMIT = 20000                   # entries per table; the tables are emptied beyond it
+
+    def __init__(self):
+        super().__init__()
+        self._fonts: dict = {}
+        self._extents: dict = {}
+        self._glyphs: dict = {}
+
+    @staticmethod
+    def _remember(table: dict, key, compute):
+        if key not in table:
+            if len(table) >= _RememberingTextToPath.LIMIT:
+                table.clear()
+            table[key] = compute()
+        return table[key]
+
+    def _get_font(self, prop):
+        font = self._remember(self._fonts, prop.copy(), lambda: super(
+            _RememberingTextToPath, self)._get_font(prop))
+        font.set_size(self.FONT_SCALE, self.DPI)     # the font object is shared in matplotlib
+        return font
+
+    def get_text_width_height_descent(self, s, prop, ismath):
+        return self._remember(self._extents, (s, prop.copy(), ismath), lambda: super(
+            _RememberingTextToPath, self).get_text_width_height_descent(s, prop, ismath))
+
+    def get_glyphs_with_font(self, font, s, glyph_map=None, return_new_glyphs_only=False,
+                             **kwargs):
+        # fonts come from _get_font, always at FONT_SCALE; the font is kept in the value, so
+        # its id is not reused by another font while the entry exists
+        key = (id(font), font.fname, s, tuple(sorted(kwargs.items())))
+        _font, info, paths, rects = self._remember(self._glyphs, key, lambda: (
+            font, *super(_RememberingTextToPath, self).get_glyphs_with_font(font, s,
+                                                                            **kwargs)))
+        if glyph_map is None:
+            glyph_map = {}
+        new = {} if return_new_glyphs_only else glyph_map
+        for glyph, *_ in info:
+            if glyph not in glyph_map:
+                new[glyph] = paths[glyph]
+        return list(info), new, list(rects)
+
+
+#: shared by every figure drawn here; None draws with matplotlib's own, unremembered
+_TEXT_PATHS: TextToPath | None = _RememberingTextToPath()
+
+
+class _Figure(Figure):
+    """A Figure whose SVG renderer takes its text outlines from :data:`_TEXT_PATHS`."""
+
+    def draw(self, renderer):
+        # the SVG renderer sits inside a MixedModeRenderer; if either attribute is not where
+        # this matplotlib keeps it, the text is drawn the ordinary way
+        svg = getattr(renderer, "_renderer", renderer)
+        if _TEXT_PATHS is not None and type(getattr(svg, "_text2path", None)) is TextToPath:
+            svg._text2path = _TEXT_PATHS
+        return super().draw(renderer)
+
+
+def _new_figure(width_in: float, height_in: float) -> Figure:
+    """A Figure on an SVG canvas at the SVG's 72 dpi from the start (printing an SVG sets the
+    figure to 72 dpi and leaves it there): what is measured while a plot is built, such as the
+    gap a contour label cuts into its line, is then measured as the SVG draws it, and alike
+    on the first plot of a kept Figure and on the later ones."""
+    fig = _Figure(figsize=(width_in, height_in), dpi=72)
+    FigureCanvasSVG(fig)
+    return fig
+
+
+#: one Figure per layout, kept for the process; the lock keeps two threads (the preview server)
+#: from drawing on one at once, and rcParams are process-wide anyway
+_CANVASES: dict[tuple, tuple] = {}
+_LOCK = threading.RLock()
+
+
+def _styled(fn):
+    """Run a plot function alone, inside the dossier's rcParams."""
+    @functools.wraps(fn)
+    def run(*args, **kwargs):
+        with _LOCK, matplotlib.rc_context(STYLE):
+            return fn(*args, **kwargs)
+    return run
+
+
+def forget_canvases() -> None:
+    """Drop the kept figures: the next plot of each layout is drawn on a new Figure."""
+    with _LOCK:
+        _CANVASES.clear()
+
+
+def _canvas(key: tuple, build):
+    """``build()``'s (figure, axes...) for this layout, those axes emptied of the previous plot.
+
+    Everything a plot adds (lines, collections, patches, texts, images, legends) is removed
+    and the data limits are forgotten, so autoscaling sees only the new data; the layout, the
+    axes and their tick objects stay. Settings a plot makes (limits, locators, titles) it
+    makes every time.
+    """
+    entry = _CANVASES.get(key)
+    if entry is None:
+        entry = _CANVASES[key] = build()
+        return entry
+    fig, *axes = entry
+    for legend in list(fig.legends):
+        legend.remove()
+    for ax in axes:
+        for artist in (*ax.collections, *ax.lines, *ax.patches, *ax.texts, *ax.images,
+                       *ax.artists, *ax.tables):
+            if artist.axes is ax:        # a contour's labels go with the contour
+                artist.remove()
+        ax.containers.clear()
+        if ax.legend_ is not None:
+            ax.legend_.remove()
+        ax.relim()
+        ax.autoscale(True)
+    return entry
+
+
+def _frame(legend_rows: int, log_y: bool = False) -> tuple[Figure, object]:
+    fig = _new_figure(WIDTH_IN, HEIGHT_IN + 0.2 * legend_rows)
     # fixed margins (the legend sits above the axes): a layout engine would triple the time
     # per plot for no visible gain
     top = 1.0 - (0.12 + 0.2 * legend_rows) / (HEIGHT_IN + 0.2 * legend_rows)
@@ -79,7 +216,16 @@ def _figure(legend_rows: int = 1) -> tuple[Figure, object]:
     ax = fig.add_subplot()
     ax.grid(True, color=GRID, linewidth=0.6)
     ax.set_axisbelow(True)
+    if log_y:
+        ax.set_yscale("log")
+        ax.yaxis.set_minor_locator(NullLocator())
+        ax.yaxis.set_major_formatter(FuncFormatter(_power_of_ten))
     return fig, ax
+
+
+def _figure(kind: str, legend_rows: int = 1, log_y: bool = False) -> tuple[Figure, object]:
+    """The one-axes figure of a plot kind with room for ``legend_rows`` above the axes."""
+    return _canvas((kind, legend_rows, log_y), lambda: _frame(legend_rows, log_y))
 
 
 def _plain(text) -> str:
@@ -123,6 +269,7 @@ def _ratio_styles(rows) -> dict:
     return {r: (SERIES[i % len(SERIES)], MARKERS[i % len(MARKERS)]) for i, r in enumerate(ratios)}
 
 
+@_styled
 def log_d_plot(d: dict) -> bytes | None:
     """log D against pH: the fitted curve, its 95 % band, the runs by volume ratio."""
     curve = d.get("curve")
@@ -133,73 +280,73 @@ def log_d_plot(d: dict) -> bytes | None:
     hollow = any(r["status"] != "used" and r.get("log_d_observed") is not None for r in rows)
     n_drawn = len({r["volume_ratio"] for r in rows if r.get("log_d_observed") is not None})
     n_legend = 2 + n_drawn + hollow
-    with matplotlib.rc_context(STYLE):
-        fig, ax = _figure(_rows(n_legend, 3))
-        band = ax.fill_between(curve["pH"], _nan(curve["lo"]), _nan(curve["hi"]), color=BAND,
-                               alpha=0.35, linewidth=0, label="95 % band of the fit")
-        band.set_gid("fit-band")
-        ax.plot(curve["pH"], _nan(curve["log_d"]), color=CURVE,
-                label=f"fitted ({_plain(d['model'])})", gid="fit-curve")
-        for ratio, (colour, marker) in styles.items():
-            used = [r for r in rows if r["volume_ratio"] == ratio and r["status"] == "used"
-                    and r.get("log_d_observed") is not None]
-            other = [r for r in rows if r["volume_ratio"] == ratio and r["status"] != "used"
-                     and r.get("log_d_observed") is not None]
-            if used:
-                ax.plot([r["pH"] for r in used], [r["log_d_observed"] for r in used],
-                        linestyle="none", marker=marker, markersize=5.5, color=colour,
-                        markeredgecolor="white", markeredgewidth=0.5, gid=f"runs-ratio-{ratio:g}")
-            if other:
-                ax.plot([r["pH"] for r in other], [r["log_d_observed"] for r in other],
-                        linestyle="none", marker=marker, markersize=6, markerfacecolor="none",
-                        markeredgecolor=colour, markeredgewidth=1.2,
-                        gid=f"excluded-ratio-{ratio:g}")
-        ax.set_xlabel("pH")
-        ax.set_ylabel("log D")
-        if not n_drawn:
-            ax.text(0.99, 0.03, "no run measured in both phases: no observed log D to draw",
-                    transform=ax.transAxes, ha="right", va="bottom", color=INK, fontsize=8.5)
-        handles, labels = ax.get_legend_handles_labels()
-        drawn = {r["volume_ratio"] for r in rows if r.get("log_d_observed") is not None}
-        for ratio, (colour, marker) in styles.items():
-            if ratio not in drawn:
-                continue
-            handles.append(Line2D([], [], linestyle="none", marker=marker, color=colour,
-                                  markeredgecolor="white", markersize=5.5))
-            labels.append(f"runs, org:aq {ratio:g}")
-        if hollow:
-            handles.append(Line2D([], [], linestyle="none", marker="o", markerfacecolor="none",
-                                  markeredgecolor=INK, markersize=6))
-            labels.append("excluded (hollow)")
-        _legend(ax, handles, labels)
-        return _svg(fig)
+    fig, ax = _figure("log_d", _rows(n_legend, 3))
+    band = ax.fill_between(curve["pH"], _nan(curve["lo"]), _nan(curve["hi"]), color=BAND,
+                           alpha=0.35, linewidth=0, label="95 % band of the fit")
+    band.set_gid("fit-band")
+    ax.plot(curve["pH"], _nan(curve["log_d"]), color=CURVE,
+            label=f"fitted ({_plain(d['model'])})", gid="fit-curve")
+    for ratio, (colour, marker) in styles.items():
+        used = [r for r in rows if r["volume_ratio"] == ratio and r["status"] == "used"
+                and r.get("log_d_observed") is not None]
+        other = [r for r in rows if r["volume_ratio"] == ratio and r["status"] != "used"
+                 and r.get("log_d_observed") is not None]
+        if used:
+            ax.plot([r["pH"] for r in used], [r["log_d_observed"] for r in used],
+                    linestyle="none", marker=marker, markersize=5.5, color=colour,
+                    markeredgecolor="white", markeredgewidth=0.5, gid=f"runs-ratio-{ratio:g}")
+        if other:
+            ax.plot([r["pH"] for r in other], [r["log_d_observed"] for r in other],
+                    linestyle="none", marker=marker, markersize=6, markerfacecolor="none",
+                    markeredgecolor=colour, markeredgewidth=1.2,
+                    gid=f"excluded-ratio-{ratio:g}")
+    ax.set_xlabel("pH")
+    ax.set_ylabel("log D")
+    if not n_drawn:
+        ax.text(0.99, 0.03, "no run measured in both phases: no observed log D to draw",
+                transform=ax.transAxes, ha="right", va="bottom", color=INK, fontsize=8.5)
+    handles, labels = ax.get_legend_handles_labels()
+    drawn = {r["volume_ratio"] for r in rows if r.get("log_d_observed") is not None}
+    for ratio, (colour, marker) in styles.items():
+        if ratio not in drawn:
+            continue
+        handles.append(Line2D([], [], linestyle="none", marker=marker, color=colour,
+                              markeredgecolor="white", markersize=5.5))
+        labels.append(f"runs, org:aq {ratio:g}")
+    if hollow:
+        handles.append(Line2D([], [], linestyle="none", marker="o", markerfacecolor="none",
+                              markeredgecolor=INK, markersize=6))
+        labels.append("excluded (hollow)")
+    _legend(ax, handles, labels)
+    return _svg(fig)
 
 
+@_styled
 def residual_plot(d: dict) -> bytes | None:
     """Studentized residuals of the used runs against pH, by volume ratio."""
     rows = [r for r in d.get("run_table", []) if r.get("studentized_residual") is not None]
     if not rows:
         return None
     styles = _ratio_styles(rows)
-    with matplotlib.rc_context(STYLE):
-        fig, ax = _figure(_rows(len(styles), 4))
-        ax.axhline(0.0, color=INK, linewidth=0.8)
-        for y in (-2.0, 2.0):     # |studentized residual| > 2 is worth a look (common practice)
-            ax.axhline(y, color=LIMIT, linewidth=0.8, linestyle=(0, (4, 3)))
-        for ratio, (colour, marker) in styles.items():
-            sel = [r for r in rows if r["volume_ratio"] == ratio]
-            ax.plot([r["pH"] for r in sel], [r["studentized_residual"] for r in sel],
-                    linestyle="none", marker=marker, markersize=5.5, color=colour,
-                    markeredgecolor="white", markeredgewidth=0.5, label=f"org:aq {ratio:g}",
-                    gid=f"residuals-ratio-{ratio:g}")
-        ax.set_xlabel("pH")
-        ax.set_ylabel("studentized residual")
-        top = max(3.0, max(abs(r["studentized_residual"]) for r in rows) * 1.1)
-        ax.set_ylim(-top, top)
-        _legend(ax, ncols=4)
-        return _svg(fig)
+    fig, ax = _figure("residuals", _rows(len(styles), 4))
+    ax.axhline(0.0, color=INK, linewidth=0.8)
+    for y in (-2.0, 2.0):     # |studentized residual| > 2 is worth a look (common practice)
+        ax.axhline(y, color=LIMIT, linewidth=0.8, linestyle=(0, (4, 3)))
+    for ratio, (colour, marker) in styles.items():
+        sel = [r for r in rows if r["volume_ratio"] == ratio]
+        ax.plot([r["pH"] for r in sel], [r["studentized_residual"] for r in sel],
+                linestyle="none", marker=marker, markersize=5.5, color=colour,
+                markeredgecolor="white", markeredgewidth=0.5, label=f"org:aq {ratio:g}",
+                gid=f"residuals-ratio-{ratio:g}")
+    ax.set_xlabel("pH")
+    ax.set_ylabel("studentized residual")
+    top = max(3.0, max(abs(r["studentized_residual"]) for r in rows) * 1.1)
+    ax.set_ylim(-top, top)
+    _legend(ax, ncols=4)
+    return _svg(fig)
 
 
+@_styled
 def portions_plot(pr: dict) -> bytes | None:
     """Remaining fraction after each portion of a procedure, beside the split limit."""
     after = pr.get("after_portions") or []
@@ -209,40 +356,37 @@ def portions_plot(pr: dict) -> bytes | None:
     val = [a["value"] for a in after]
     lo = [a["ci95"][0] for a in after]
     hi = [a["ci95"][1] for a in after]
-    with matplotlib.rc_context(STYLE):
-        fig, ax = _figure(2)
-        ax.set_yscale("log")
-        ax.yaxis.set_minor_locator(NullLocator())
-        ax.yaxis.set_major_formatter(FuncFormatter(_power_of_ten))
-        err_lo = [v - lo_ if (lo_ is not None and v > 0) else 0.0 for v, lo_ in zip(val, lo)]
-        err_hi = [hi_ - v if hi_ is not None else 0.0 for v, hi_ in zip(val, hi)]
-        ax.errorbar(n, val, yerr=[err_lo, err_hi], color=SERIES[1], marker="o", markersize=6,
-                    capsize=3, linewidth=1.4, gid="after-portions",
-                    label=f"{_plain(pr['id'])}: left in the water after each portion (95 % "
-                          "interval)")
-        positive = [v for v in val + lo + hi if v is not None and v > 0]
-        bottom = min(positive) / 10 if positive else 1e-6
-        ax.set_ylim(bottom, 1.5)
-        limit = pr.get("split_limit_remaining_fraction", {}).get("value")
-        if limit is not None and limit >= bottom:
-            ax.axhline(limit, color=LIMIT, linestyle=(0, (5, 3)), gid="split-limit",
-                       label="limit: the same total solvent in ever more portions")
-        elif limit is not None:
-            ax.annotate(f"limit of ever more portions: {limit:.2g} (below the axis)",
-                        xy=(0.99, 0.02), xycoords="axes fraction", ha="right", va="bottom",
-                        color=LIMIT, fontsize=8.5, gid="split-limit-below")
-        ax.set_xticks(n)
-        ax.set_xlim(0.5, max(n) + 0.5)
-        ax.set_xlabel("number of solvent portions")
-        ax.set_ylabel("fraction left in the water")
-        _legend(ax, ncols=1)
-        return _svg(fig)
+    fig, ax = _figure("portions", 2, log_y=True)
+    err_lo = [v - lo_ if (lo_ is not None and v > 0) else 0.0 for v, lo_ in zip(val, lo)]
+    err_hi = [hi_ - v if hi_ is not None else 0.0 for v, hi_ in zip(val, hi)]
+    ax.errorbar(n, val, yerr=[err_lo, err_hi], color=SERIES[1], marker="o", markersize=6,
+                capsize=3, linewidth=1.4, gid="after-portions",
+                label=f"{_plain(pr['id'])}: left in the water after each portion (95 % "
+                      "interval)")
+    positive = [v for v in val + lo + hi if v is not None and v > 0]
+    bottom = min(positive) / 10 if positive else 1e-6
+    ax.set_ylim(bottom, 1.5)
+    limit = pr.get("split_limit_remaining_fraction", {}).get("value")
+    if limit is not None and limit >= bottom:
+        ax.axhline(limit, color=LIMIT, linestyle=(0, (5, 3)), gid="split-limit",
+                   label="limit: the same total solvent in ever more portions")
+    elif limit is not None:
+        ax.annotate(f"limit of ever more portions: {limit:.2g} (below the axis)",
+                    xy=(0.99, 0.02), xycoords="axes fraction", ha="right", va="bottom",
+                    color=LIMIT, fontsize=8.5, gid="split-limit-below")
+    ax.set_xticks(n)
+    ax.set_xlim(0.5, max(n) + 0.5)
+    ax.set_xlabel("number of solvent portions")
+    ax.set_ylabel("fraction left in the water")
+    _legend(ax, ncols=1)
+    return _svg(fig)
 
 
 def _panel_words(n: int) -> str:
     return f"{n} portion" + ("" if n == 1 else "s")
 
 
+@_styled
 def design_space_figure(d: dict) -> Figure | None:
     """The design-space map as a Figure (before SVG): one panel per number of portions.
 
@@ -291,31 +435,16 @@ def design_space_figure(d: dict) -> Figure | None:
         labels.append("lower end open")
     rows = _rows(len(handles), 2)
 
-    height = HEIGHT_IN + 0.2 * rows
-    fig = Figure(figsize=(WIDTH_IN, height))
-    top = 1.0 - (0.32 + 0.2 * rows) / height
-    grid = fig.add_gridspec(1, len(grids) + 1, width_ratios=[1.0] * len(grids) + [0.07],
-                            left=0.1, right=0.9, bottom=0.15, top=top, wspace=0.1)
-    cmap = matplotlib.colormaps[MAP_CMAP].resampled(len(MAP_LEVELS) - 1)
-    norm = BoundaryNorm(MAP_LEVELS, cmap.N)
-    axes = []
-    for k, (n, z) in enumerate(zip(ds["portions"], grids)):
-        ax = fig.add_subplot(grid[0, k], sharey=axes[0] if axes else None)
-        axes.append(ax)
+    fig, *axes = _canvas(("design_space", rows, len(grids)),
+                         lambda: _map_frame(rows, len(grids)))
+    cmap, norm = _map_colours()
+    for k, (n, z, ax) in enumerate(zip(ds["portions"], grids, axes)):
         ax.set_gid(f"design-space-{n}")
-        ax.set_facecolor(NO_VALUE)
-        ax.set_yscale("log")
         ax.set_xlim(pH[0], pH[-1])
         ax.set_ylim(ratio[0], ratio[-1])
-        ax.xaxis.set_major_locator(MultipleLocator(2.0))
-        ax.yaxis.set_major_locator(FixedLocator(MAP_RATIO_TICKS))
-        ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
-        ax.yaxis.set_minor_locator(NullLocator())
-        ax.set_title(_panel_words(n), fontsize=9.5, color=INK, pad=4)
-        for side in ("top", "right"):
-            ax.spines[side].set_visible(True)
-        if k:
-            ax.tick_params(labelleft=False)
+        # y given: the title stays at the top of the panel (nothing is drawn above it) and
+        # matplotlib skips measuring every tick label to see whether to move it
+        ax.set_title(_panel_words(n), fontsize=9.5, color=INK, pad=4, y=1.0)
         values = z.T                                     # rows: ratio, columns: pH
         if values.count():
             fill = ax.contourf(pH, ratio, values, levels=MAP_LEVELS, cmap=cmap, norm=norm)
@@ -363,18 +492,63 @@ def design_space_figure(d: dict) -> Figure | None:
                         ha="left" if left else "right", va="bottom" if low else "top",
                         fontsize=8.5,
                         color=INK, path_effects=HALO, gid=f"procedure-label-{p['id']}")
+    fig.legend(handles, labels, loc="upper left", bbox_to_anchor=(0.1, 1.0), ncols=2,
+               borderaxespad=0.3, handletextpad=0.4, columnspacing=1.4)
+    return fig
+
+
+def _map_colours(fresh: bool = False) -> tuple:
+    """The map's colours and the norm of its bands (one pair per process unless fresh)."""
+    if fresh or not _MAP_COLOURS:
+        cmap = matplotlib.colormaps[MAP_CMAP].resampled(len(MAP_LEVELS) - 1)
+        pair = (cmap, BoundaryNorm(MAP_LEVELS, cmap.N))
+        if fresh:
+            return pair
+        _MAP_COLOURS.append(pair)
+    return _MAP_COLOURS[0]
+
+
+_MAP_COLOURS: list = []
+
+
+def _map_frame(legend_rows: int, n_panels: int) -> tuple:
+    """The map's figure without a study in it: panels on shared log axes, and the colour bar,
+    which depends on nothing but the fixed bands and so is not among the axes returned (the
+    ones emptied for each map)."""
+    height = HEIGHT_IN + 0.2 * legend_rows
+    fig = _new_figure(WIDTH_IN, height)
+    top = 1.0 - (0.32 + 0.2 * legend_rows) / height
+    grid = fig.add_gridspec(1, n_panels + 1, width_ratios=[1.0] * n_panels + [0.07],
+                            left=0.1, right=0.9, bottom=0.15, top=top, wspace=0.1)
+    axes = []
+    for k in range(n_panels):
+        ax = fig.add_subplot(grid[0, k], sharey=axes[0] if axes else None)
+        axes.append(ax)
+        ax.set_facecolor(NO_VALUE)
+        ax.set_yscale("log")
+        ax.xaxis.set_major_locator(MultipleLocator(2.0))
+        ax.yaxis.set_major_locator(FixedLocator(MAP_RATIO_TICKS))
+        ax.yaxis.set_major_formatter(FuncFormatter(_plain_number))
+        ax.yaxis.set_minor_locator(NullLocator())
+        for side in ("top", "right"):
+            ax.spines[side].set_visible(True)
+        if k:
+            ax.tick_params(labelleft=False)
     axes[0].set_ylabel("organic:aqueous per portion")
     axes[len(axes) // 2].set_xlabel("pH")
     cax = fig.add_subplot(grid[0, -1])
     cax.set_gid("colour-bar")
+    cmap, norm = _map_colours(fresh=True)   # the bands' norm would redraw the bar per map
     bar = fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), cax=cax, ticks=MAP_LEVELS,
                        spacing="uniform")
-    bar.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+    bar.ax.yaxis.set_major_formatter(FuncFormatter(_plain_number))
     bar.outline.set_linewidth(0.6)
     bar.set_label("recovery, 95 % lower bound (%)")
-    fig.legend(handles, labels, loc="upper left", bbox_to_anchor=(0.1, 1.0), ncols=2,
-               borderaxespad=0.3, handletextpad=0.4, columnspacing=1.4)
-    return fig
+    return (fig, *axes)
+
+
+def _plain_number(value: float, _pos=None) -> str:
+    return f"{value:g}"
 
 
 def _label_spot(ax, contour, avoid) -> tuple[float, float] | None:
@@ -403,11 +577,11 @@ def _nan_grid(grid) -> list[list[float]]:
     return [_nan(row) for row in grid]
 
 
+@_styled
 def design_space_plot(d: dict) -> bytes | None:
     """The design-space map as SVG; None when the dict has no map."""
-    with matplotlib.rc_context(STYLE):
-        fig = design_space_figure(d)
-        return None if fig is None else _svg(fig)
+    fig = design_space_figure(d)
+    return None if fig is None else _svg(fig)
 
 
 def plot_name(kind: str, procedure_id: str | None = None) -> str:
