@@ -536,6 +536,12 @@ def _map_frame(legend_rows: int, n_panels: int) -> tuple:
             ax.tick_params(labelleft=False)
     axes[0].set_ylabel("organic:aqueous per portion")
     axes[len(axes) // 2].set_xlabel("pH")
+    # an axis without a label needs no place for it: fixed coordinates spare matplotlib the
+    # measuring of every tick label to find one
+    for ax in axes:
+        for axis in (ax.xaxis, ax.yaxis):
+            if not axis.label.get_text():
+                axis.set_label_coords(0.5, 0.5)
     cax = fig.add_subplot(grid[0, -1])
     cax.set_gid("colour-bar")
     cmap, norm = _map_colours(fresh=True)   # the bands' norm would redraw the bar per map
@@ -544,6 +550,7 @@ def _map_frame(legend_rows: int, n_panels: int) -> tuple:
     bar.ax.yaxis.set_major_formatter(FuncFormatter(_plain_number))
     bar.outline.set_linewidth(0.6)
     bar.set_label("recovery, 95 % lower bound (%)")
+    cax.xaxis.set_label_coords(0.5, 0.5)
     return (fig, *axes)
 
 
