@@ -68,6 +68,8 @@ STYLE = {
     "legend.fontsize": 8.5,
     "lines.linewidth": 1.6,
     "path.simplify": True,
+    "hatch.linewidth": 0.7,       # only the map hatches (its extrapolated pH); the hatch takes
+                                  # the patch's edge colour
 }
 WIDTH_IN, HEIGHT_IN = 6.3, 3.4
 
@@ -426,8 +428,7 @@ def design_space_figure(d: dict) -> Figure | None:
                               markerfacecolor="white", markeredgecolor=INK))
         labels.append("procedure, unequal portions")
     if below or above:
-        handles.append(Patch(facecolor="white", edgecolor=EXTRAPOLATED,
-                             hatchcolor=EXTRAPOLATED, hatch="////", hatch_linewidth=0.7,
+        handles.append(Patch(facecolor="white", edgecolor=EXTRAPOLATED, hatch="////",
                              linewidth=0.6))
         labels.append("pH outside the runs (extrapolated)")
     if open_cells:
@@ -468,12 +469,10 @@ def design_space_figure(d: dict) -> Figure | None:
                         gid=f"target-{where}-{n}")
         if below:
             ax.axvspan(pH[0], measured[0], facecolor="none", edgecolor=EXTRAPOLATED,
-                       hatchcolor=EXTRAPOLATED, hatch="////", hatch_linewidth=0.7,
-                       linewidth=0, gid=f"extrapolated-below-{n}")
+                       hatch="////", linewidth=0, gid=f"extrapolated-below-{n}")
         if above:
             ax.axvspan(measured[1], pH[-1], facecolor="none", edgecolor=EXTRAPOLATED,
-                       hatchcolor=EXTRAPOLATED, hatch="////", hatch_linewidth=0.7,
-                       linewidth=0, gid=f"extrapolated-above-{n}")
+                       hatch="////", linewidth=0, gid=f"extrapolated-above-{n}")
         middle = 0.5 * (pH[0] + pH[-1])
         high_ratio = ratio[-1] ** 0.8 * ratio[0] ** 0.2        # 80 % up the log axis
         for p in places:
