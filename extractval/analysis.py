@@ -297,7 +297,9 @@ class StudyReport:
                 "interval_method": INTERVAL_METHOD,
             }
             out["curve"] = self.curve
-            out["design_space"] = design_space(self.band, s.procedures, s.targets.recovery_pct)
+            out["design_space"] = design_space(
+                self.band, s.procedures, s.targets.recovery_pct,
+                measured_pH=(float(fit.obs.pH.min()), float(fit.obs.pH.max())))
             out.update(self.assessment["details"])
             out["outlier_screen"] = self.outlier_screen
         if self.candidates:

@@ -333,9 +333,44 @@ def design_procedure(fit: FitResult, band: LogDBand, p: Procedure,
     return ProcedureDesign(wc, steps, steps_note, split, limit, window, window_note)
 
 
+def _map_place(p: Procedure, pH_span: tuple[float, float]) -> dict:
+    """Where a procedure sits on the design-space map, or why it is not on it.
+
+    The map holds equal portions only. A procedure of unequal portions is placed at its mean
+    portion volume: for a given total, equal portions extract the most (the product of the
+    q_i is smallest when the V_i are equal), so the map's value there bounds its recovery from
+    above.
+    """
+    n = len(p.organic_mL)
+    ratio = p.total_organic_mL / n / p.aqueous_mL
+    equal = max(p.organic_mL) - min(p.organic_mL) <= 1e-9 * max(p.organic_mL)
+    off = []
+    if n not in MAP_PORTIONS:
+        off.append(f"{n} portions; the map shows {MAP_PORTIONS[0]} to {MAP_PORTIONS[-1]}")
+    if not MAP_RATIOS[0] <= ratio <= MAP_RATIOS[-1]:
+        off.append(f"organic:aqueous {ratio:.3g} per portion, outside the map's "
+                   f"{MAP_RATIOS[0]:g} to {MAP_RATIOS[-1]:g}")
+    if not pH_span[0] <= p.pH <= pH_span[1]:
+        off.append(f"pH {p.pH:g}, outside the map's {pH_span[0]:g} to {pH_span[1]:g}")
+    if off:
+        note = "; ".join(off)
+    elif not equal:
+        note = ("unequal portions, marked at their mean volume per portion; equal portions of "
+                "the same total extract the most, so the map overstates its recovery there")
+    else:
+        note = None
+    return {"id": p.id, "pH": clean(p.pH), "volume_ratio": clean(ratio), "portions": n,
+            "equal_portions": equal, "on_map": not off, "map_note": note}
+
+
 def design_space(band: LogDBand, procedures, target_pct: float | None,
-                 aqueous_mL: float = 10.0) -> dict:
-    """Lower-bound recovery over pH x organic:aqueous ratio per portion, for 1, 2, 3 portions."""
+                 aqueous_mL: float = 10.0, *,
+                 measured_pH: tuple[float, float] | None = None) -> dict:
+    """Lower-bound recovery over pH x organic:aqueous ratio per portion, for 1, 2, 3 portions.
+
+    ``measured_pH`` is the pH span of the runs in the fit: the map beyond it (the band is
+    traced BAND_MARGIN further on each side) is an extrapolation of the model.
+    """
     table = []
     for n in MAP_PORTIONS:
         grid = []
@@ -344,16 +379,15 @@ def design_space(band: LogDBand, procedures, target_pct: float | None,
                    if np.isfinite(lo) else None for r in MAP_RATIOS]
             grid.append(row)
         table.append(grid)
+    span = (float(band.pH[0]), float(band.pH[-1]))
     return {
         "pH": [clean(x, 6) for x in band.pH],
         "volume_ratio": list(MAP_RATIOS),
         "portions": list(MAP_PORTIONS),
         "recovery_lo_pct": table,
         "target_pct": target_pct,
+        "measured_pH": None if measured_pH is None else [clean(x, 6) for x in measured_pH],
         "meaning": "lower end of the 95 % interval of recovery, equal portions each at the "
                    "given organic:aqueous ratio",
-        "procedures": [{"id": p.id, "pH": clean(p.pH),
-                        "volume_ratio": clean(p.total_organic_mL / len(p.organic_mL)
-                                              / p.aqueous_mL),
-                        "portions": len(p.organic_mL)} for p in procedures],
+        "procedures": [_map_place(p, span) for p in procedures],
     }

@@ -96,3 +96,34 @@ def test_design_space_map_matches_closed_form():
         assert ds["recovery_lo_pct"][k][i][j] == pytest.approx(expected, rel=1e-5)
     assert ds["procedures"][0]["volume_ratio"] == pytest.approx(0.4)
     assert np.shape(ds["recovery_lo_pct"]) == (3, len(ds["pH"]), len(ds["volume_ratio"]))
+
+
+def test_design_space_names_the_measured_pH_span():
+    ds = _report((Procedure("P1", "x", 3.0, 25.0, (10.0,)),))["design_space"]
+    assert ds["measured_pH"] == [min(PH), max(PH)]
+    # the map reaches beyond the measured span: that part is an extrapolation
+    assert ds["pH"][0] < min(PH) and ds["pH"][-1] > max(PH)
+
+
+def test_design_space_places_each_procedure_or_says_why_not():
+    procs = (Procedure("EQ", "x", 3.5, 25.0, (10.0, 10.0)),
+             Procedure("MANY", "x", 3.5, 25.0, (5.0,) * 5),
+             Procedure("BIG", "x", 3.5, 10.0, (30.0,)),
+             Procedure("FAR", "x", 13.5, 25.0, (10.0,)),
+             Procedure("UNEQ", "x", 3.5, 100.0, (10.0, 24.2)))
+    report = _report(procs)
+    ds = report["design_space"]
+    by_id = {p["id"]: p for p in ds["procedures"]}
+    assert by_id["EQ"] == {"id": "EQ", "pH": 3.5, "volume_ratio": 0.4, "portions": 2,
+                           "equal_portions": True, "on_map": True, "map_note": None}
+    assert not by_id["MANY"]["on_map"] and "5 portions" in by_id["MANY"]["map_note"]
+    assert not by_id["BIG"]["on_map"] and "organic:aqueous 3 per portion" in \
+        by_id["BIG"]["map_note"]
+    assert not by_id["FAR"]["on_map"] and "pH 13.5" in by_id["FAR"]["map_note"]
+    uneq = by_id["UNEQ"]
+    assert uneq["on_map"] and not uneq["equal_portions"] and "unequal" in uneq["map_note"]
+    # the claim of the note: at its mean portion the map bounds its lower-end recovery above
+    j = ds["volume_ratio"].index(uneq["volume_ratio"])
+    i = ds["pH"].index(3.5)
+    own = next(p for p in report["procedures"] if p["id"] == "UNEQ")["recovery_pct"]["ci95"][0]
+    assert ds["recovery_lo_pct"][1][i][j] > own

@@ -20,7 +20,7 @@ import pytest
 
 from extractval.analysis import fit_study
 from extractval.report.pages import Pages, StudyInput, nav, study_page_path
-from extractval.report.plots import study_plots
+from extractval.report.plots import plot_name, study_plots
 from extractval.report.register import (Dossier, csv_cell, fmt_number, resolve, results_csv,
                                         study_register)
 from extractval.report.text import md_text
@@ -126,9 +126,10 @@ def _strings(d) -> list[str]:
 def test_every_number_on_the_page_is_the_dicts(live):
     """Each number span holds the dict's value at its pointer and shows it as formatted;
     outside the spans no decimal number appears except inside text the dict itself holds."""
-    page = Pages(TEMPLATES, trace=True).study_page(StudyInput("SYN-LIVE", live, key="sv-x"),
-                                                   DOSSIER)
-    published = Pages(TEMPLATES).study_page(StudyInput("SYN-LIVE", live, key="sv-x"), DOSSIER)
+    shown = StudyInput("SYN-LIVE", live, key="sv-x", plots=(plot_name("design_space"),))
+    page = Pages(TEMPLATES, trace=True).study_page(shown, DOSSIER)
+    published = Pages(TEMPLATES).study_page(shown, DOSSIER)
+    assert "## Design space" in page
     assert SPAN.sub(lambda m: m.group(3), page) == published     # the same page, untraced
     spans = SPAN.findall(page)
     assert len(spans) > 100
@@ -283,3 +284,35 @@ def test_home_page_numbers_are_each_studys(gold_dict, live):
         value = resolve(by_id[study], html.unescape(src))
         assert any(fmt_number(value, st) in (shown, shown.removesuffix(" %")) for st in STYLES)
     assert "&lt;script&gt;" in page and "<script>" not in page
+
+
+def test_design_space_figure_on_the_study_page(live):
+    """The map is shown with a caption whose numbers are the dict's; no plot, no section."""
+    ds = live["design_space"]
+    assert ds["target_pct"] == 95.0 and ds["measured_pH"] == [6.0, 10.0]
+    name = plot_name("design_space")
+    page = Pages(TEMPLATES, trace=True).study_page(
+        StudyInput("SYN-LIVE", live, plots=(name,)), DOSSIER)
+    section = page[page.index("## Design space"):page.index("## All runs")]
+    assert f'<img src="{name}"' in section
+    assert section.count('data-src="/design_space/target_pct">95</span> %') == 1
+    assert 'data-src="/design_space/measured_pH/0">6.00</span>' in section
+    assert 'data-src="/design_space/measured_pH/1">10.00</span>' in section
+    assert "lower end of the 95 % interval" in section and "extrapolates" in section
+    assert "Procedures not marked on the map" not in section     # both of its are on it
+    without = Pages(TEMPLATES).study_page(StudyInput("SYN-LIVE", live), DOSSIER)
+    assert "## Design space" not in without and name not in without
+
+
+def test_procedures_off_the_map_are_listed_under_it(live):
+    d = json.loads(json.dumps(live))
+    d["design_space"]["target_pct"] = None
+    d["design_space"]["procedures"][0].update(on_map=False, map_note="5 portions; the map "
+                                              "shows 1 to 3")
+    page = Pages(TEMPLATES).study_page(
+        StudyInput("SYN-LIVE", d, plots=(plot_name("design_space"),)), DOSSIER)
+    section = page[page.index("## Design space"):page.index("## All runs")]
+    assert "Procedures not marked on the map" in section
+    assert f"- {d['design_space']['procedures'][0]['id']}: 5 portions; the map shows 1 to 3" \
+        in section
+    assert "no target line is drawn" in section and "The dark line is the target" not in section

@@ -1,21 +1,36 @@
-"""SVG plots of a study dict: log D against pH, residuals against pH, portions per procedure.
+"""SVG plots of a study dict: log D against pH, residuals against pH, portions per procedure,
+and the design-space map.
 
-Every plotted value is read from ``StudyReport.to_dict()`` (the ``curve``, ``run_table`` and
-``procedures`` entries); the only arithmetic here is placing things on the axes. The output is
-byte-stable: a fixed ``svg.hashsalt``, no date in the metadata, text drawn as paths, and the
-object-oriented matplotlib API (no pyplot state shared between figures).
+Every plotted value is read from ``StudyReport.to_dict()`` (the ``curve``, ``run_table``,
+``procedures`` and ``design_space`` entries); the only arithmetic here is placing things on the
+axes. The output is byte-stable: a fixed ``svg.hashsalt``, no date in the metadata, text drawn
+as paths, and the object-oriented matplotlib API (no pyplot state).
+
+Speed (``benchmarks/bench_plots.py``): building a Figure and the ticks of its axes costs more
+than drawing a study's data on it, so each figure layout is built once per process and emptied
+before the next plot (:func:`_canvas`), and the outlines and extents of text are remembered
+between figures (:class:`_RememberingTextToPath`). Both leave the SVG byte for byte as a new
+Figure draws it (``tests/test_report_plots.py`` checks it).
 """
 
 from __future__ import annotations
 
+import functools
 import io
 import math
+import threading
 
 import matplotlib
+import numpy as np
+from matplotlib import patheffects
 from matplotlib.backends.backend_svg import FigureCanvasSVG
+from matplotlib.cm import ScalarMappable
+from matplotlib.colors import BoundaryNorm
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
-from matplotlib.ticker import FuncFormatter, NullLocator
+from matplotlib.patches import Patch
+from matplotlib.textpath import TextToPath
+from matplotlib.ticker import FixedLocator, FuncFormatter, MultipleLocator, NullLocator
 
 #: The dossier's own palette; hues told apart by lightness as well as colour, and every series
 #: also has its own marker shape, so no reading depends on colour alone.
@@ -26,6 +41,14 @@ BAND = "#7fa7cf"
 SERIES = ("#c8541c", "#2274b5", "#d9a21b", "#5b3f8c", "#2f9784", "#8c8c8c")
 MARKERS = ("o", "s", "^", "D", "v", "P")
 LIMIT = "#a3322b"
+#: design-space map: a sequential map made for colour-vision deficiency (dark blue to yellow,
+#: lightness rising with recovery); its bands are finer where procedures are judged
+MAP_CMAP = "cividis"
+MAP_LEVELS = (0.0, 20.0, 40.0, 60.0, 80.0, 90.0, 95.0, 98.0, 99.0, 100.0)
+MAP_RATIO_TICKS = (0.05, 0.1, 0.2, 0.5, 1.0, 2.0)
+NO_VALUE = "#b8bec6"          # cells whose lower end is open
+EXTRAPOLATED = "#8d96a0"      # hatching beyond the measured pH: seen on dark and light bands
+HALO = [patheffects.withStroke(linewidth=3.0, foreground="white")]
 
 STYLE = {
     "svg.hashsalt": "extractval-dossier",
@@ -45,18 +68,149 @@ STYLE = {
     "legend.fontsize": 8.5,
     "lines.linewidth": 1.6,
     "path.simplify": True,
+    "hatch.linewidth": 0.7,       # only the map hatches (its extrapolated pH); the hatch takes
+                                  # the patch's edge colour
 }
 WIDTH_IN, HEIGHT_IN = 6.3, 3.4
 
 
 def _svg(fig: Figure) -> bytes:
+    canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasSVG) else FigureCanvasSVG(fig)
     buf = io.BytesIO()
-    FigureCanvasSVG(fig).print_svg(buf, metadata={"Date": None, "Creator": "extractval"})
+    canvas.print_svg(buf, metadata={"Date": None, "Creator": "extractval"})
     return buf.getvalue()
 
 
-def _figure(legend_rows: int = 1) -> tuple[Figure, object]:
-    fig = Figure(figsize=(WIDTH_IN, HEIGHT_IN + 0.2 * legend_rows))
+class _RememberingTextToPath(TextToPath):
+    """Text turned into glyph outlines, remembered between figures.
+
+    Text is drawn as paths (``svg.fonttype: path``: no font needed where the SVG is viewed);
+    matplotlib lays out every string and measures it anew for each Figure it draws. A string
+    in the same font gives the same glyphs, advances and extent every time, so each is
+    computed once per process by the methods of the parent class and reused; what the SVG
+    gets is unchanged (``tests/test_report_plots.py`` compares the output with and without).
+    """
+
+    LIMIT = 20000                   # entries per table; the tables are emptied beyond it
+
+    def __init__(self):
+        super().__init__()
+        self._fonts: dict = {}
+        self._extents: dict = {}
+        self._glyphs: dict = {}
+
+    @staticmethod
+    def _remember(table: dict, key, compute):
+        if key not in table:
+            if len(table) >= _RememberingTextToPath.LIMIT:
+                table.clear()
+            table[key] = compute()
+        return table[key]
+
+    def _get_font(self, prop):
+        font = self._remember(self._fonts, prop.copy(), lambda: super(
+            _RememberingTextToPath, self)._get_font(prop))
+        font.set_size(self.FONT_SCALE, self.DPI)     # the font object is shared in matplotlib
+        return font
+
+    def get_text_width_height_descent(self, s, prop, ismath):
+        return self._remember(self._extents, (s, prop.copy(), ismath), lambda: super(
+            _RememberingTextToPath, self).get_text_width_height_descent(s, prop, ismath))
+
+    def get_glyphs_with_font(self, font, s, glyph_map=None, return_new_glyphs_only=False,
+                             **kwargs):
+        # fonts come from _get_font, always at FONT_SCALE; the font is kept in the value, so
+        # its id is not reused by another font while the entry exists
+        key = (id(font), font.fname, s, tuple(sorted(kwargs.items())))
+        _font, info, paths, rects = self._remember(self._glyphs, key, lambda: (
+            font, *super(_RememberingTextToPath, self).get_glyphs_with_font(font, s,
+                                                                            **kwargs)))
+        if glyph_map is None:
+            glyph_map = {}
+        new = {} if return_new_glyphs_only else glyph_map
+        for glyph, *_ in info:
+            if glyph not in glyph_map:
+                new[glyph] = paths[glyph]
+        return list(info), new, list(rects)
+
+
+#: shared by every figure drawn here; None draws with matplotlib's own, unremembered
+_TEXT_PATHS: TextToPath | None = _RememberingTextToPath()
+
+
+class _Figure(Figure):
+    """A Figure whose SVG renderer takes its text outlines from :data:`_TEXT_PATHS`."""
+
+    def draw(self, renderer):
+        # the SVG renderer sits inside a MixedModeRenderer; if either attribute is not where
+        # this matplotlib keeps it, the text is drawn the ordinary way
+        svg = getattr(renderer, "_renderer", renderer)
+        if _TEXT_PATHS is not None and type(getattr(svg, "_text2path", None)) is TextToPath:
+            svg._text2path = _TEXT_PATHS
+        return super().draw(renderer)
+
+
+def _new_figure(width_in: float, height_in: float) -> Figure:
+    """A Figure on an SVG canvas at the SVG's 72 dpi from the start (printing an SVG sets the
+    figure to 72 dpi and leaves it there): what is measured while a plot is built, such as the
+    gap a contour label cuts into its line, is then measured as the SVG draws it, and alike
+    on the first plot of a kept Figure and on the later ones."""
+    fig = _Figure(figsize=(width_in, height_in), dpi=72)
+    FigureCanvasSVG(fig)
+    return fig
+
+
+#: one Figure per layout, kept for the process; the lock keeps two threads (the preview server)
+#: from drawing on one at once, and rcParams are process-wide anyway
+_CANVASES: dict[tuple, tuple] = {}
+_LOCK = threading.RLock()
+
+
+def _styled(fn):
+    """Run a plot function alone, inside the dossier's rcParams."""
+    @functools.wraps(fn)
+    def run(*args, **kwargs):
+        with _LOCK, matplotlib.rc_context(STYLE):
+            return fn(*args, **kwargs)
+    return run
+
+
+def forget_canvases() -> None:
+    """Drop the kept figures: the next plot of each layout is drawn on a new Figure."""
+    with _LOCK:
+        _CANVASES.clear()
+
+
+def _canvas(key: tuple, build):
+    """``build()``'s (figure, axes...) for this layout, those axes emptied of the previous plot.
+
+    Everything a plot adds (lines, collections, patches, texts, images, legends) is removed
+    and the data limits are forgotten, so autoscaling sees only the new data; the layout, the
+    axes and their tick objects stay. Settings a plot makes (limits, locators, titles) it
+    makes every time.
+    """
+    entry = _CANVASES.get(key)
+    if entry is None:
+        entry = _CANVASES[key] = build()
+        return entry
+    fig, *axes = entry
+    for legend in list(fig.legends):
+        legend.remove()
+    for ax in axes:
+        for artist in (*ax.collections, *ax.lines, *ax.patches, *ax.texts, *ax.images,
+                       *ax.artists, *ax.tables):
+            if artist.axes is ax:        # a contour's labels go with the contour
+                artist.remove()
+        ax.containers.clear()
+        if ax.legend_ is not None:
+            ax.legend_.remove()
+        ax.relim()
+        ax.autoscale(True)
+    return entry
+
+
+def _frame(legend_rows: int, log_y: bool = False) -> tuple[Figure, object]:
+    fig = _new_figure(WIDTH_IN, HEIGHT_IN + 0.2 * legend_rows)
     # fixed margins (the legend sits above the axes): a layout engine would triple the time
     # per plot for no visible gain
     top = 1.0 - (0.12 + 0.2 * legend_rows) / (HEIGHT_IN + 0.2 * legend_rows)
@@ -64,7 +218,16 @@ def _figure(legend_rows: int = 1) -> tuple[Figure, object]:
     ax = fig.add_subplot()
     ax.grid(True, color=GRID, linewidth=0.6)
     ax.set_axisbelow(True)
+    if log_y:
+        ax.set_yscale("log")
+        ax.yaxis.set_minor_locator(NullLocator())
+        ax.yaxis.set_major_formatter(FuncFormatter(_power_of_ten))
     return fig, ax
+
+
+def _figure(kind: str, legend_rows: int = 1, log_y: bool = False) -> tuple[Figure, object]:
+    """The one-axes figure of a plot kind with room for ``legend_rows`` above the axes."""
+    return _canvas((kind, legend_rows, log_y), lambda: _frame(legend_rows, log_y))
 
 
 def _plain(text) -> str:
@@ -108,6 +271,7 @@ def _ratio_styles(rows) -> dict:
     return {r: (SERIES[i % len(SERIES)], MARKERS[i % len(MARKERS)]) for i, r in enumerate(ratios)}
 
 
+@_styled
 def log_d_plot(d: dict) -> bytes | None:
     """log D against pH: the fitted curve, its 95 % band, the runs by volume ratio."""
     curve = d.get("curve")
@@ -118,73 +282,73 @@ def log_d_plot(d: dict) -> bytes | None:
     hollow = any(r["status"] != "used" and r.get("log_d_observed") is not None for r in rows)
     n_drawn = len({r["volume_ratio"] for r in rows if r.get("log_d_observed") is not None})
     n_legend = 2 + n_drawn + hollow
-    with matplotlib.rc_context(STYLE):
-        fig, ax = _figure(_rows(n_legend, 3))
-        band = ax.fill_between(curve["pH"], _nan(curve["lo"]), _nan(curve["hi"]), color=BAND,
-                               alpha=0.35, linewidth=0, label="95 % band of the fit")
-        band.set_gid("fit-band")
-        ax.plot(curve["pH"], _nan(curve["log_d"]), color=CURVE,
-                label=f"fitted ({_plain(d['model'])})", gid="fit-curve")
-        for ratio, (colour, marker) in styles.items():
-            used = [r for r in rows if r["volume_ratio"] == ratio and r["status"] == "used"
-                    and r.get("log_d_observed") is not None]
-            other = [r for r in rows if r["volume_ratio"] == ratio and r["status"] != "used"
-                     and r.get("log_d_observed") is not None]
-            if used:
-                ax.plot([r["pH"] for r in used], [r["log_d_observed"] for r in used],
-                        linestyle="none", marker=marker, markersize=5.5, color=colour,
-                        markeredgecolor="white", markeredgewidth=0.5, gid=f"runs-ratio-{ratio:g}")
-            if other:
-                ax.plot([r["pH"] for r in other], [r["log_d_observed"] for r in other],
-                        linestyle="none", marker=marker, markersize=6, markerfacecolor="none",
-                        markeredgecolor=colour, markeredgewidth=1.2,
-                        gid=f"excluded-ratio-{ratio:g}")
-        ax.set_xlabel("pH")
-        ax.set_ylabel("log D")
-        if not n_drawn:
-            ax.text(0.99, 0.03, "no run measured in both phases: no observed log D to draw",
-                    transform=ax.transAxes, ha="right", va="bottom", color=INK, fontsize=8.5)
-        handles, labels = ax.get_legend_handles_labels()
-        drawn = {r["volume_ratio"] for r in rows if r.get("log_d_observed") is not None}
-        for ratio, (colour, marker) in styles.items():
-            if ratio not in drawn:
-                continue
-            handles.append(Line2D([], [], linestyle="none", marker=marker, color=colour,
-                                  markeredgecolor="white", markersize=5.5))
-            labels.append(f"runs, org:aq {ratio:g}")
-        if hollow:
-            handles.append(Line2D([], [], linestyle="none", marker="o", markerfacecolor="none",
-                                  markeredgecolor=INK, markersize=6))
-            labels.append("excluded (hollow)")
-        _legend(ax, handles, labels)
-        return _svg(fig)
+    fig, ax = _figure("log_d", _rows(n_legend, 3))
+    band = ax.fill_between(curve["pH"], _nan(curve["lo"]), _nan(curve["hi"]), color=BAND,
+                           alpha=0.35, linewidth=0, label="95 % band of the fit")
+    band.set_gid("fit-band")
+    ax.plot(curve["pH"], _nan(curve["log_d"]), color=CURVE,
+            label=f"fitted ({_plain(d['model'])})", gid="fit-curve")
+    for ratio, (colour, marker) in styles.items():
+        used = [r for r in rows if r["volume_ratio"] == ratio and r["status"] == "used"
+                and r.get("log_d_observed") is not None]
+        other = [r for r in rows if r["volume_ratio"] == ratio and r["status"] != "used"
+                 and r.get("log_d_observed") is not None]
+        if used:
+            ax.plot([r["pH"] for r in used], [r["log_d_observed"] for r in used],
+                    linestyle="none", marker=marker, markersize=5.5, color=colour,
+                    markeredgecolor="white", markeredgewidth=0.5, gid=f"runs-ratio-{ratio:g}")
+        if other:
+            ax.plot([r["pH"] for r in other], [r["log_d_observed"] for r in other],
+                    linestyle="none", marker=marker, markersize=6, markerfacecolor="none",
+                    markeredgecolor=colour, markeredgewidth=1.2,
+                    gid=f"excluded-ratio-{ratio:g}")
+    ax.set_xlabel("pH")
+    ax.set_ylabel("log D")
+    if not n_drawn:
+        ax.text(0.99, 0.03, "no run measured in both phases: no observed log D to draw",
+                transform=ax.transAxes, ha="right", va="bottom", color=INK, fontsize=8.5)
+    handles, labels = ax.get_legend_handles_labels()
+    drawn = {r["volume_ratio"] for r in rows if r.get("log_d_observed") is not None}
+    for ratio, (colour, marker) in styles.items():
+        if ratio not in drawn:
+            continue
+        handles.append(Line2D([], [], linestyle="none", marker=marker, color=colour,
+                              markeredgecolor="white", markersize=5.5))
+        labels.append(f"runs, org:aq {ratio:g}")
+    if hollow:
+        handles.append(Line2D([], [], linestyle="none", marker="o", markerfacecolor="none",
+                              markeredgecolor=INK, markersize=6))
+        labels.append("excluded (hollow)")
+    _legend(ax, handles, labels)
+    return _svg(fig)
 
 
+@_styled
 def residual_plot(d: dict) -> bytes | None:
     """Studentized residuals of the used runs against pH, by volume ratio."""
     rows = [r for r in d.get("run_table", []) if r.get("studentized_residual") is not None]
     if not rows:
         return None
     styles = _ratio_styles(rows)
-    with matplotlib.rc_context(STYLE):
-        fig, ax = _figure(_rows(len(styles), 4))
-        ax.axhline(0.0, color=INK, linewidth=0.8)
-        for y in (-2.0, 2.0):     # |studentized residual| > 2 is worth a look (common practice)
-            ax.axhline(y, color=LIMIT, linewidth=0.8, linestyle=(0, (4, 3)))
-        for ratio, (colour, marker) in styles.items():
-            sel = [r for r in rows if r["volume_ratio"] == ratio]
-            ax.plot([r["pH"] for r in sel], [r["studentized_residual"] for r in sel],
-                    linestyle="none", marker=marker, markersize=5.5, color=colour,
-                    markeredgecolor="white", markeredgewidth=0.5, label=f"org:aq {ratio:g}",
-                    gid=f"residuals-ratio-{ratio:g}")
-        ax.set_xlabel("pH")
-        ax.set_ylabel("studentized residual")
-        top = max(3.0, max(abs(r["studentized_residual"]) for r in rows) * 1.1)
-        ax.set_ylim(-top, top)
-        _legend(ax, ncols=4)
-        return _svg(fig)
+    fig, ax = _figure("residuals", _rows(len(styles), 4))
+    ax.axhline(0.0, color=INK, linewidth=0.8)
+    for y in (-2.0, 2.0):     # |studentized residual| > 2 is worth a look (common practice)
+        ax.axhline(y, color=LIMIT, linewidth=0.8, linestyle=(0, (4, 3)))
+    for ratio, (colour, marker) in styles.items():
+        sel = [r for r in rows if r["volume_ratio"] == ratio]
+        ax.plot([r["pH"] for r in sel], [r["studentized_residual"] for r in sel],
+                linestyle="none", marker=marker, markersize=5.5, color=colour,
+                markeredgecolor="white", markeredgewidth=0.5, label=f"org:aq {ratio:g}",
+                gid=f"residuals-ratio-{ratio:g}")
+    ax.set_xlabel("pH")
+    ax.set_ylabel("studentized residual")
+    top = max(3.0, max(abs(r["studentized_residual"]) for r in rows) * 1.1)
+    ax.set_ylim(-top, top)
+    _legend(ax, ncols=4)
+    return _svg(fig)
 
 
+@_styled
 def portions_plot(pr: dict) -> bytes | None:
     """Remaining fraction after each portion of a procedure, beside the split limit."""
     after = pr.get("after_portions") or []
@@ -194,34 +358,236 @@ def portions_plot(pr: dict) -> bytes | None:
     val = [a["value"] for a in after]
     lo = [a["ci95"][0] for a in after]
     hi = [a["ci95"][1] for a in after]
-    with matplotlib.rc_context(STYLE):
-        fig, ax = _figure(2)
+    fig, ax = _figure("portions", 2, log_y=True)
+    err_lo = [v - lo_ if (lo_ is not None and v > 0) else 0.0 for v, lo_ in zip(val, lo)]
+    err_hi = [hi_ - v if hi_ is not None else 0.0 for v, hi_ in zip(val, hi)]
+    ax.errorbar(n, val, yerr=[err_lo, err_hi], color=SERIES[1], marker="o", markersize=6,
+                capsize=3, linewidth=1.4, gid="after-portions",
+                label=f"{_plain(pr['id'])}: left in the water after each portion (95 % "
+                      "interval)")
+    positive = [v for v in val + lo + hi if v is not None and v > 0]
+    bottom = min(positive) / 10 if positive else 1e-6
+    ax.set_ylim(bottom, 1.5)
+    limit = pr.get("split_limit_remaining_fraction", {}).get("value")
+    if limit is not None and limit >= bottom:
+        ax.axhline(limit, color=LIMIT, linestyle=(0, (5, 3)), gid="split-limit",
+                   label="limit: the same total solvent in ever more portions")
+    elif limit is not None:
+        ax.annotate(f"limit of ever more portions: {limit:.2g} (below the axis)",
+                    xy=(0.99, 0.02), xycoords="axes fraction", ha="right", va="bottom",
+                    color=LIMIT, fontsize=8.5, gid="split-limit-below")
+    ax.set_xticks(n)
+    ax.set_xlim(0.5, max(n) + 0.5)
+    ax.set_xlabel("number of solvent portions")
+    ax.set_ylabel("fraction left in the water")
+    _legend(ax, ncols=1)
+    return _svg(fig)
+
+
+def _panel_words(n: int) -> str:
+    return f"{n} portion" + ("" if n == 1 else "s")
+
+
+@_styled
+def design_space_figure(d: dict) -> Figure | None:
+    """The design-space map as a Figure (before SVG): one panel per number of portions.
+
+    Each panel shows the lower 95 % end of recovery (``design_space/recovery_lo_pct``) over pH
+    and the organic:aqueous ratio per portion in colour bands, the target as a line, the part
+    beyond the measured pH span hatched, and the procedures the dict places on the map.
+    """
+    ds = d.get("design_space")
+    if not ds or not ds.get("pH") or not ds.get("volume_ratio") or not ds.get("portions"):
+        return None
+    pH = np.asarray(ds["pH"], dtype=float)
+    ratio = np.asarray(ds["volume_ratio"], dtype=float)
+    if len(pH) < 2 or len(ratio) < 2:
+        return None
+    target = ds.get("target_pct")
+    measured = ds.get("measured_pH")
+    places = [p for p in ds.get("procedures", []) if p.get("on_map")]
+    grids = [np.ma.masked_invalid(np.asarray(_nan_grid(g), dtype=float))
+             for g in ds["recovery_lo_pct"]]
+    open_cells = any(np.ma.count_masked(g) for g in grids)
+    below = measured is not None and measured[0] > pH[0]
+    above = measured is not None and measured[1] < pH[-1]
+
+    handles, labels = [], []
+    if target is not None:
+        handles.append(Line2D([], [], color=INK, linewidth=1.8, path_effects=HALO))
+        labels.append(f"target {target:g} % (lower end)")
+    else:
+        handles.append(Line2D([], [], linestyle="none"))
+        labels.append("no recovery target: no target line")
+    if any(p.get("equal_portions", True) for p in places):
+        handles.append(Line2D([], [], linestyle="none", marker="o", markersize=6,
+                              markerfacecolor="white", markeredgecolor=INK))
+        labels.append("procedure")
+    if any(not p.get("equal_portions", True) for p in places):
+        handles.append(Line2D([], [], linestyle="none", marker="D", markersize=5.5,
+                              markerfacecolor="white", markeredgecolor=INK))
+        labels.append("procedure, unequal portions")
+    if below or above:
+        handles.append(Patch(facecolor="white", edgecolor=EXTRAPOLATED, hatch="////",
+                             linewidth=0.6))
+        labels.append("pH outside the runs (extrapolated)")
+    if open_cells:
+        handles.append(Patch(facecolor=NO_VALUE, edgecolor=INK, linewidth=0.6))
+        labels.append("lower end open")
+    rows = _rows(len(handles), 2)
+
+    fig, *axes = _canvas(("design_space", rows, len(grids)),
+                         lambda: _map_frame(rows, len(grids)))
+    cmap, norm = _map_colours()
+    for k, (n, z, ax) in enumerate(zip(ds["portions"], grids, axes)):
+        ax.set_gid(f"design-space-{n}")
+        ax.set_xlim(pH[0], pH[-1])
+        ax.set_ylim(ratio[0], ratio[-1])
+        # y given: the title stays at the top of the panel (nothing is drawn above it) and
+        # matplotlib skips measuring every tick label to see whether to move it
+        ax.set_title(_panel_words(n), fontsize=9.5, color=INK, pad=4, y=1.0)
+        values = z.T                                     # rows: ratio, columns: pH
+        if values.count():
+            fill = ax.contourf(pH, ratio, values, levels=MAP_LEVELS, cmap=cmap, norm=norm)
+            fill.set_gid(f"recovery-bands-{n}")
+        if target is not None and values.count():
+            if values.max() >= target > values.min():
+                line = ax.contour(pH, ratio, values, levels=[target], colors=INK,
+                                  linewidths=1.8)
+                line.set_path_effects(HALO)
+                line.set_gid(f"target-{n}")
+                spot = _label_spot(ax, line, [(p["pH"], p["volume_ratio"]) for p in places
+                                              if p["portions"] == n])
+                if spot is not None:
+                    for label in ax.clabel(line, fmt={target: f"{target:g} %"}, fontsize=8,
+                                           inline=True, inline_spacing=3, manual=[spot]):
+                        label.set_path_effects(HALO)
+            else:
+                where = "everywhere" if values.min() >= target else "nowhere"
+                ax.text(0.5, 0.04, f"target met {where}", transform=ax.transAxes,
+                        ha="center", va="bottom", fontsize=8, color=INK, path_effects=HALO,
+                        gid=f"target-{where}-{n}")
+        if below:
+            ax.axvspan(pH[0], measured[0], facecolor="none", edgecolor=EXTRAPOLATED,
+                       hatch="////", linewidth=0, gid=f"extrapolated-below-{n}")
+        if above:
+            ax.axvspan(measured[1], pH[-1], facecolor="none", edgecolor=EXTRAPOLATED,
+                       hatch="////", linewidth=0, gid=f"extrapolated-above-{n}")
+        middle = 0.5 * (pH[0] + pH[-1])
+        high_ratio = ratio[-1] ** 0.8 * ratio[0] ** 0.2        # 80 % up the log axis
+        for p in places:
+            if p["portions"] != n:
+                continue
+            equal = p.get("equal_portions", True)
+            ax.plot([p["pH"]], [p["volume_ratio"]], linestyle="none",
+                    marker="o" if equal else "D", markersize=6.5 if equal else 6,
+                    markerfacecolor="white", markeredgecolor=INK, markeredgewidth=1.2,
+                    gid=f"procedure-{p['id']}", clip_on=False)
+            # the label goes toward the middle of the panel, away from its edges and title
+            left = p["pH"] <= middle
+            low = p["volume_ratio"] <= high_ratio
+            ax.annotate(_plain(p["id"]), xy=(p["pH"], p["volume_ratio"]),
+                        xytext=(6 if left else -6, 5 if low else -5), textcoords="offset points",
+                        ha="left" if left else "right", va="bottom" if low else "top",
+                        fontsize=8.5,
+                        color=INK, path_effects=HALO, gid=f"procedure-label-{p['id']}")
+    fig.legend(handles, labels, loc="upper left", bbox_to_anchor=(0.1, 1.0), ncols=2,
+               borderaxespad=0.3, handletextpad=0.4, columnspacing=1.4)
+    return fig
+
+
+def _map_colours(fresh: bool = False) -> tuple:
+    """The map's colours and the norm of its bands (one pair per process unless fresh)."""
+    if fresh or not _MAP_COLOURS:
+        cmap = matplotlib.colormaps[MAP_CMAP].resampled(len(MAP_LEVELS) - 1)
+        pair = (cmap, BoundaryNorm(MAP_LEVELS, cmap.N))
+        if fresh:
+            return pair
+        _MAP_COLOURS.append(pair)
+    return _MAP_COLOURS[0]
+
+
+_MAP_COLOURS: list = []
+
+
+def _map_frame(legend_rows: int, n_panels: int) -> tuple:
+    """The map's figure without a study in it: panels on shared log axes, and the colour bar,
+    which depends on nothing but the fixed bands and so is not among the axes returned (the
+    ones emptied for each map)."""
+    height = HEIGHT_IN + 0.2 * legend_rows
+    fig = _new_figure(WIDTH_IN, height)
+    top = 1.0 - (0.32 + 0.2 * legend_rows) / height
+    grid = fig.add_gridspec(1, n_panels + 1, width_ratios=[1.0] * n_panels + [0.07],
+                            left=0.1, right=0.9, bottom=0.15, top=top, wspace=0.1)
+    axes = []
+    for k in range(n_panels):
+        ax = fig.add_subplot(grid[0, k], sharey=axes[0] if axes else None)
+        axes.append(ax)
+        ax.set_facecolor(NO_VALUE)
         ax.set_yscale("log")
+        ax.xaxis.set_major_locator(MultipleLocator(2.0))
+        ax.yaxis.set_major_locator(FixedLocator(MAP_RATIO_TICKS))
+        ax.yaxis.set_major_formatter(FuncFormatter(_plain_number))
         ax.yaxis.set_minor_locator(NullLocator())
-        ax.yaxis.set_major_formatter(FuncFormatter(_power_of_ten))
-        err_lo = [v - lo_ if (lo_ is not None and v > 0) else 0.0 for v, lo_ in zip(val, lo)]
-        err_hi = [hi_ - v if hi_ is not None else 0.0 for v, hi_ in zip(val, hi)]
-        ax.errorbar(n, val, yerr=[err_lo, err_hi], color=SERIES[1], marker="o", markersize=6,
-                    capsize=3, linewidth=1.4, gid="after-portions",
-                    label=f"{_plain(pr['id'])}: left in the water after each portion (95 % "
-                          "interval)")
-        positive = [v for v in val + lo + hi if v is not None and v > 0]
-        bottom = min(positive) / 10 if positive else 1e-6
-        ax.set_ylim(bottom, 1.5)
-        limit = pr.get("split_limit_remaining_fraction", {}).get("value")
-        if limit is not None and limit >= bottom:
-            ax.axhline(limit, color=LIMIT, linestyle=(0, (5, 3)), gid="split-limit",
-                       label="limit: the same total solvent in ever more portions")
-        elif limit is not None:
-            ax.annotate(f"limit of ever more portions: {limit:.2g} (below the axis)",
-                        xy=(0.99, 0.02), xycoords="axes fraction", ha="right", va="bottom",
-                        color=LIMIT, fontsize=8.5, gid="split-limit-below")
-        ax.set_xticks(n)
-        ax.set_xlim(0.5, max(n) + 0.5)
-        ax.set_xlabel("number of solvent portions")
-        ax.set_ylabel("fraction left in the water")
-        _legend(ax, ncols=1)
-        return _svg(fig)
+        for side in ("top", "right"):
+            ax.spines[side].set_visible(True)
+        if k:
+            ax.tick_params(labelleft=False)
+    axes[0].set_ylabel("organic:aqueous per portion")
+    axes[len(axes) // 2].set_xlabel("pH")
+    # an axis without a label needs no place for it: fixed coordinates spare matplotlib the
+    # measuring of every tick label to find one
+    for ax in axes:
+        for axis in (ax.xaxis, ax.yaxis):
+            if not axis.label.get_text():
+                axis.set_label_coords(0.5, 0.5)
+    cax = fig.add_subplot(grid[0, -1])
+    cax.set_gid("colour-bar")
+    cmap, norm = _map_colours(fresh=True)   # the bands' norm would redraw the bar per map
+    bar = fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), cax=cax, ticks=MAP_LEVELS,
+                       spacing="uniform")
+    bar.ax.yaxis.set_major_formatter(FuncFormatter(_plain_number))
+    bar.outline.set_linewidth(0.6)
+    bar.set_label("recovery, 95 % lower bound (%)")
+    cax.xaxis.set_label_coords(0.5, 0.5)
+    return (fig, *axes)
+
+
+def _plain_number(value: float, _pos=None) -> str:
+    return f"{value:g}"
+
+
+def _label_spot(ax, contour, avoid) -> tuple[float, float] | None:
+    """Where on a contour line its label goes: inside the panel, clear of its edges, away
+    from the procedures' markers and labels, and otherwise near half height."""
+    verts = [p.vertices for p in contour.get_paths() if len(p.vertices)]
+    if not verts:
+        return None
+    xy = np.concatenate(verts)
+    to_axes = ax.transData + ax.transAxes.inverted()
+    frac = to_axes.transform(xy)
+    inside = np.all((frac > 0.12) & (frac < 0.88), axis=1)
+    if not inside.any():
+        return None
+    far = np.full(len(xy), 0.25)
+    if avoid:
+        marks = to_axes.transform(np.asarray(avoid, dtype=float))
+        gap = np.hypot(frac[:, None, 0] - marks[None, :, 0], frac[:, None, 1] - marks[None, :, 1])
+        far = np.minimum(far, gap.min(axis=1))
+    score = np.where(inside, far - 0.1 * np.abs(frac[:, 1] - 0.5), -np.inf)
+    x, y = xy[int(np.argmax(score))]
+    return float(x), float(y)
+
+
+def _nan_grid(grid) -> list[list[float]]:
+    return [_nan(row) for row in grid]
+
+
+@_styled
+def design_space_plot(d: dict) -> bytes | None:
+    """The design-space map as SVG; None when the dict has no map."""
+    fig = design_space_figure(d)
+    return None if fig is None else _svg(fig)
 
 
 def plot_name(kind: str, procedure_id: str | None = None) -> str:
@@ -230,7 +596,8 @@ def plot_name(kind: str, procedure_id: str | None = None) -> str:
 
     if kind == "portions":
         return f"portions-{safe_name(procedure_id)}.svg"
-    return {"log_d": "log-d-vs-ph.svg", "residuals": "residuals-vs-ph.svg"}[kind]
+    return {"log_d": "log-d-vs-ph.svg", "residuals": "residuals-vs-ph.svg",
+            "design_space": "design-space.svg"}[kind]
 
 
 def study_plots(d: dict) -> dict[str, bytes]:
@@ -246,4 +613,7 @@ def study_plots(d: dict) -> dict[str, bytes]:
         svg = portions_plot(pr)
         if svg:
             out[plot_name("portions", pr["id"])] = svg
+    svg = design_space_plot(d)
+    if svg:
+        out[plot_name("design_space")] = svg
     return out
