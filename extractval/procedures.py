@@ -185,12 +185,8 @@ def log_d_band(fit: FitResult, step: float = BAND_STEP) -> LogDBand:
     lo_ph = max(0.0, np.floor((fit.obs.pH.min() - BAND_MARGIN) / step) * step)
     hi_ph = min(14.0, np.ceil((fit.obs.pH.max() + BAND_MARGIN) / step) * step)
     grid = np.round(np.arange(lo_ph, hi_ph + step / 2, step), 6)
-    ests, hint = [], None
-    for x in grid:          # warm-start each point's end search from its neighbour's ends
-        e = fit.log_d_interval(float(x), hint)
-        ests.append(e)
-        hint = (None if e.ci95.lo is None else e.value - e.ci95.lo,
-                None if e.ci95.hi is None else e.ci95.hi - e.value)
+    # in order, so that each point's end search starts from its neighbour's ends
+    ests = [fit.log_d_interval(float(x)) for x in grid]
 
     def arr(get):
         return np.array([np.nan if get(e) is None else get(e) for e in ests], dtype=float)
@@ -241,11 +237,10 @@ def worst_case(fit: FitResult, band: LogDBand, p: Procedure) -> dict:
     candidates += [float(x) for x in band.pH[inside]]
     best = None
     for x in candidates:
-        est = fit.log_d_interval(x)
-        rec_lo = _recovery_lower(est.ci95.lo, aq, org)
+        rec_lo = _recovery_lower(fit.log_d_lower(x), aq, org)
         key = -np.inf if rec_lo is None else rec_lo
         if best is None or key < best[0]:
-            best = (key, x, rec_lo, float(recovery_pct_from_log_d(est.value, aq, org)))
+            best = (key, x, rec_lo, float(recovery_pct_from_log_d(fit.log_d(x), aq, org)))
     _, x, rec_lo, rec = best
     return {"recovery_pct": clean(rec_lo), "predicted_recovery_pct": clean(rec),
             "pH": clean(x, 6), "aqueous_mL": clean(aq), "organic_mL": [clean(v) for v in org]}
@@ -293,7 +288,7 @@ def pH_window(fit: FitResult, band: LogDBand, p: Procedure, target_pct: float):
     bound (profile likelihood) to 0.001 pH.
     """
     def rec_lo_at(x: float) -> float:
-        r = _recovery_lower(fit.log_d_interval(x).ci95.lo, p.aqueous_mL, p.organic_mL)
+        r = _recovery_lower(fit.log_d_lower(x), p.aqueous_mL, p.organic_mL)
         return -1.0 if r is None else r      # an open lower end meets no target
 
     rec = np.array([rec_lo_at(float(x)) for x in band.pH])
