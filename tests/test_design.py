@@ -96,3 +96,24 @@ def test_design_space_map_matches_closed_form():
         assert ds["recovery_lo_pct"][k][i][j] == pytest.approx(expected, rel=1e-5)
     assert ds["procedures"][0]["volume_ratio"] == pytest.approx(0.4)
     assert np.shape(ds["recovery_lo_pct"]) == (3, len(ds["pH"]), len(ds["volume_ratio"]))
+
+
+def test_design_space_map_is_the_cell_by_cell_recovery():
+    # the map is computed for all cells at once; each cell must be the procedure formula
+    from extractval.procedures import MAP_RATIOS, recovery_pct_from_log_d
+    from extractval.results import clean
+
+    proc = Procedure("P1", "x", 3.0, 25.0, (10.0,))
+    study = simulated_study("MAP", "acid", (LOGK, PKA), PH, (proc,), sigma=0.04, form="recovery",
+                            ratios=(0.05, 0.1, 0.2), targets=Targets(recovery_pct=95.0), rng=3)
+    report = fit_study(study)
+    ds = report.to_dict()["design_space"]
+    for k, n in enumerate(ds["portions"]):
+        for i, lo in enumerate(report.band.lo):
+            for j, r in enumerate(MAP_RATIOS):
+                cell = ds["recovery_lo_pct"][k][i][j]
+                if not np.isfinite(lo):
+                    assert cell is None
+                else:
+                    assert cell == clean(float(recovery_pct_from_log_d(lo, 10.0, [r * 10.0] * n)),
+                                         6)
