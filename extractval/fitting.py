@@ -359,7 +359,7 @@ def _least_squares(fun, x0, lo, hi, max_iter: int = 200, s_tol: float = 0.0,
     solved for the others (an active set): a step projected onto the box after the fact is no
     descent step when parameters are correlated, and the fit then crawls along the bound.
     Stops when the step or the decrease of S becomes negligible, or, with ``s_tol`` > 0, when
-    the nearly undamped model predicts a further decrease below ``s_tol`` (the precision the
+    the Gauss-Newton model predicts a further decrease below ``s_tol`` (the precision the
     caller needs), without evaluating that last step. ``max_step`` caps each step (largest
     component) so that the fit walks down the valley it starts in rather than leaping over a
     ridge into another one.
@@ -392,6 +392,13 @@ def _least_squares(fun, x0, lo, hi, max_iter: int = 200, s_tol: float = 0.0,
                 A, g = A[np.ix_(free, free)], g[free]
             else:
                 held = None
+        if s_tol > 0.0:
+            # the decrease the Gauss-Newton model predicts for the full step, g'A^-1 g / 2
+            try:
+                if -0.5 * float(g @ _solve_small(A, -g)) <= s_tol:
+                    break
+            except np.linalg.LinAlgError:
+                pass
         d = A.diagonal().copy()
         d[d <= 0] = 1e-12
         improved = False
@@ -401,10 +408,6 @@ def _least_squares(fun, x0, lo, hi, max_iter: int = 200, s_tol: float = 0.0,
             except np.linalg.LinAlgError:
                 lam *= 10.0
                 continue
-            if s_tol > 0.0 and lam <= 1e-4:
-                # predicted decrease of the Gauss-Newton model for this (nearly full) step
-                if -float(g @ step) - 0.5 * float(step @ A @ step) <= s_tol:
-                    break
             longest = float(np.abs(step).max())
             if longest > max_step:
                 step = step * (max_step / longest)
@@ -733,17 +736,22 @@ class _Profile:
                 fun, u0, self.lo_b, self.hi_b, MAX_PROFILE_ITER, PROFILE_S_TOL * self.s2,
                 PROFILE_MAX_STEP)
             pt = _Point(float(v), u, s, theta, ok, r, j_u, j_v)
-        self.points.append(pt)
         return pt
 
     def tau(self, pt: _Point) -> float:
         """Signed-root profile statistic in units of s: compare with the t quantile."""
         return float(np.sqrt(max(pt.s - self.fit.rss, 0.0) / self.s2))
 
+    def _inner(self, v: float) -> _Point:
+        """The evaluated point nearest to v between the estimate and v: the profile is traced
+        outward from the estimate, so each fit continues the valley the estimate lies in."""
+        side = np.sign(v - self.v_hat)
+        return min((q for q in self.points if side * (q.v - self.v_hat) <= side * (v - self.v_hat)),
+                   key=lambda q: abs(q.v - v))
+
     def _start(self, v: float) -> np.ndarray:
-        """Where to start the profile fit at v: the nearest evaluated point, moved along its
-        tangent."""
-        near = min(self.points, key=lambda q: abs(q.v - v))
+        """Where to start the profile fit at v: the inner neighbour moved along its tangent."""
+        near = self._inner(v)
         move = self.tangent(near) * (v - near.v)
         longest = float(np.abs(move).max()) if move.size else 0.0
         if longest > PROFILE_MAX_STEP:     # near a singular point the tangent runs away
@@ -767,22 +775,24 @@ class _Profile:
         return float(np.sqrt(max(c, 0.0) / self.s2))
 
     def evaluate(self, v: float, start: np.ndarray | None = None) -> _Point:
-        """The profile at v, from ``start`` (default: the tangent at the nearest point).
+        """The profile at v, from ``start`` (default: the tangent at the inner neighbour).
 
-        S(v) is continuous, so tau far above what the nearest point predicts means the fit
+        S(v) is continuous, so tau far above what the inner neighbour predicts means the fit
         slid into another valley of S (the warm start jumped across a ridge). Then the fit is
-        made again from the nearest point's parameters and from the estimate's, and the lowest
-        S kept: S(v) is a minimum, so no start can give an answer lower than the true one.
+        made again from that neighbour's parameters and from the estimate's, and the lowest S
+        kept: S(v) is a minimum, so no start can give an answer lower than the true one.
         """
-        near = min(self.points, key=lambda q: abs(q.v - v))
+        near = self._inner(v)
         pt = self.at(v, start if start is not None else self._start(v))
         tau = self.tau(pt)
-        predicted = self.tau(near) + self._tau_slope(near) * abs(v - near.v)
-        if tau >= self.t_crit and tau > 2.0 * predicted + 1.0 and self.free:
+        if (tau >= self.t_crit and self.free
+                and tau > 2.0 * (self.tau(near) + self._tau_slope(near) * abs(v - near.v)) + 1.0):
             for u0 in (near.u, self.points[0].u):
                 other = self.at(v, u0)
                 if other.s < pt.s:
                     pt = other
+        # only the lowest S found at each v is kept to start later fits from
+        self.points.append(pt)
         return pt
 
     def _follows_limit(self, pt: _Point) -> str | None:
