@@ -609,8 +609,12 @@ PROFILE_S_TOL = 1e-9
 END_TAU_TOL = 3e-3
 #: profile evaluations allowed per end before the bracketing fallback
 MAX_END_STEPS = 16
+#: tau below this is a flat stretch of the profile (S - S_min at round-off): no Newton step
+TAU_FLAT = 1e-2
 #: iterations allowed to one profile fit
 MAX_PROFILE_ITER = 100
+#: profile fits that do not settle, each closer to the estimate, before an end is left open
+MAX_UNSETTLED = 3
 #: largest step of a profile fit, and of its warm start from a neighbouring point, in the
 #: parameters' units (log units, pH units)
 PROFILE_MAX_STEP = 1.0
@@ -836,6 +840,7 @@ class _Profile:
             self.open_reason[sign] = "limit"
             return None, None
         inside, outside = 0.0, None
+        unsettled = 0
         d = min(max(d0, 1e-9), d_lim)
         for _ in range(MAX_END_STEPS):
             v = v_hat + sign * d
@@ -845,11 +850,17 @@ class _Profile:
             if not pt.converged and tau >= t_c:
                 # a profile fit that does not settle is walking down a valley the runs do not
                 # determine; the minimum it has not reached lies lower, so this point may well
-                # be inside
-                self.open_reason[sign] = "unsettled"
-                return None, pt
-            # d tau / d distance, from dS/dv (tau^2 s^2 = S - S_min)
-            slope = sign * pt.ds / (2.0 * self.s2 * tau) if tau > 0.0 else 0.0
+                # be inside. Look closer in; if the fits there do not settle either, the data
+                # do not close this end.
+                unsettled += 1
+                if unsettled > MAX_UNSETTLED or d - inside <= 1e-6 * (1.0 + d):
+                    self.open_reason[sign] = "unsettled"
+                    return None, pt
+                d = 0.5 * (inside + d) if outside is None else 0.5 * (inside + min(d, outside))
+                continue
+            # d tau / d distance, from dS/dv (tau^2 s^2 = S - S_min); on a flat stretch tau is
+            # round-off of S and its slope is noise
+            slope = sign * pt.ds / (2.0 * self.s2 * tau) if tau > TAU_FLAT else 0.0
             if tau < t_c:
                 if d >= d_lim:
                     self.open_reason[sign] = "limit"
@@ -870,8 +881,10 @@ class _Profile:
                 return v_hat + sign * float(np.clip(d + newton, inside, hi)), pt
             if newton is not None:
                 d_new = d + newton
+            elif tau < t_c:
+                d_new = (4.0 if tau <= TAU_FLAT else 2.0) * d
             else:
-                d_new = 2.0 * d if tau < t_c else 0.5 * (inside + d)
+                d_new = 0.5 * (inside + d)
             # keep the step sane: within a factor of four of the last distance, and inside
             # the bracket once there is one
             d_new = float(np.clip(d_new, 0.25 * d, 4.0 * d))
@@ -879,8 +892,13 @@ class _Profile:
                 d_new = 0.5 * (inside + outside)
             d = min(d_new, d_lim)
         if outside is None:
-            self.open_reason[sign] = "limit"
-            return None, None
+            # the steps ran out before the limit: settle it there
+            pt = self.evaluate(v_hat + sign * d_lim)
+            tau = self.tau(pt)
+            if tau < t_c or not pt.converged:
+                self.open_reason[sign] = "limit" if tau < t_c else "unsettled"
+                return None, pt
+            outside = d_lim
         return self._crossing(v_hat + sign * inside, v_hat + sign * outside, t_c,
                               1e-6 * (outside - inside + 1e-12)), None
 
