@@ -1,7 +1,9 @@
-"""Engine speed: one ~50-run study, and 60 studies through one `extractval fit --json` call.
+"""Engine speed: one ~50-run study, 60 studies through one `extractval fit --json` call, and
+ampholyte studies measured at too few pH values to determine all three parameters.
 
 Run:  python benchmarks/bench_engine.py
-Prints a small table; the README quotes its figures. Timings are wall-clock medians.
+Prints a small table; the README quotes its figures. Timings are wall-clock medians unless
+said otherwise.
 """
 
 from __future__ import annotations
@@ -68,6 +70,38 @@ def time_cli(n_studies: int = 60) -> dict:
             "wall_s_including_startup": wall}
 
 
+def few_pH_ampholyte(i: int, rng):
+    """An ampholyte at 2-4 pH values (three parameters): flat profiles along what the runs do
+    not determine, the slow case of the engine."""
+    n_ph = int(rng.integers(2, 5))
+    pka1 = float(rng.uniform(2, 6))
+    pka2 = pka1 + float(rng.uniform(3, 6))
+    log_k = float(rng.uniform(0, 3))
+    pH = sorted(np.round(rng.uniform(pka1 - 2, pka2 + 2, n_ph), 2).tolist())
+    form = str(rng.choice(["both", "organic", "aqueous", "recovery"]))
+    ratios = (0.5, 1.0, 2.0) if form == "both" else tuple(
+        float(f"{r * 10 ** -log_k:.3g}") for r in (0.5, 1.0, 2.0))
+    procs = (Procedure("P1", "two portions between the pKa values", round((pka1 + pka2) / 2, 1),
+                       25.0, (10.0, 10.0)),)
+    return simulated_study(f"AMPH-{i:03d}", "ampholyte", (log_k, pka1, pka2), pH, procs,
+                           targets=Targets(recovery_pct=95), sigma=0.04, form=form,
+                           ratios=ratios, rng=i)
+
+
+def time_few_pH_ampholytes(n_studies: int = 30) -> dict:
+    rng = np.random.default_rng(7)
+    studies = [few_pH_ampholyte(i, rng) for i in range(n_studies)]
+    times, open_ends = [], 0
+    for s in studies:
+        t0 = time.perf_counter()
+        d = fit_study(s).to_dict()
+        times.append(time.perf_counter() - t0)
+        open_ends += sum(e is None for p in d["parameters"].values() for e in p["ci95"])
+    return {"studies": n_studies, "mean_s": statistics.fmean(times),
+            "median_s": statistics.median(times), "max_s": max(times),
+            "open_parameter_ends": open_ends}
+
+
 def main() -> None:
     one = time_one()
     print(f"one study, {one['runs']} runs: fit + intervals + procedure predictions "
@@ -77,6 +111,10 @@ def main() -> None:
     print(f"`extractval fit --json` on {many['studies']} studies: "
           f"{many['wall_s_including_startup']:.1f} s wall including start-up "
           f"({many['json_lines']} JSON lines, exit {many['exit']})")
+    amph = time_few_pH_ampholytes()
+    print(f"{amph['studies']} ampholyte studies at 2-4 pH values, fit + to_dict: mean "
+          f"{amph['mean_s']:.2f} s, median {amph['median_s']:.2f} s, max {amph['max_s']:.2f} s "
+          f"({amph['open_parameter_ends']} open parameter interval ends)")
 
 
 if __name__ == "__main__":

@@ -21,13 +21,17 @@ Intervals
 95 % intervals are profile-likelihood intervals with the F(1, n - p) threshold (profile t,
 Bates & Watts, Nonlinear Regression Analysis and Its Applications, Wiley 1988, ch. 6): the set
 of values theta_j for which the minimised weighted sum of squares with theta_j held fixed stays
-below S_min (1 + F_{0.95}(1, n - p) / (n - p)). An end the data cannot close (the profile stays
-below the threshold up to the search limit) is reported as open (None) with a warning. The
-symmetric Wald interval from the covariance s^2 (J'WJ)^-1 is reported beside it.
+below S_min (1 + F_{0.95}(1, n - p) / (n - p)). An end the data cannot close is reported as open
+(None) with a warning: the profile stays below the threshold up to the search limit, or it only
+reaches the threshold where another parameter is held at its own search limit (the end would be
+that limit's), or the fits along the profile do not settle (a direction in the parameters that
+the runs do not determine). The symmetric Wald interval from the covariance s^2 (J'WJ)^-1 is
+reported beside it.
 """
 
 from __future__ import annotations
 
+import itertools
 from dataclasses import dataclass, field
 from functools import cached_property, lru_cache
 
@@ -135,6 +139,42 @@ class Observations:
         return log_d, (slope / self.sd_factor) ** 2 + 1e-6
 
 
+class _Residuals:
+    """Weighted residuals of y and their Jacobian, r = (y_model - y) / f, for one model and one
+    set of observations.
+
+    A study evaluates this thousands of times (every step of every profile fit), so the arrays
+    that do not depend on theta are prepared once, and one evaluation of the model gives both
+    the residuals and the Jacobian (a step that is accepted needs the Jacobian anyway).
+    """
+
+    def __init__(self, obs: Observations, model: LogDModel):
+        self.model = model
+        self.pH = obs.pH
+        self.y = obs.y
+        self.f = obs.sd_factor
+        is_d, _, is_q = obs._masks
+        self.is_d = is_d
+        self.all_log_d = bool(is_d.all())
+        self.mixed = bool(is_d.any()) and not self.all_log_d
+        # log E = -log10(1 + 10^-(log D + log r)) and log q = -log10(1 + 10^(log D + log r)):
+        # one expression with the sign of the exponent, as in Observations.predict
+        self.sign = np.where(is_q, 1.0, -1.0)
+        self.log_ratio = obs.log_ratio
+
+    def __call__(self, theta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        log_d, g = self.model.value_and_jacobian(self.pH, theta)
+        if self.all_log_d:
+            return (log_d - self.y) / self.f, g / self.f[:, None]
+        z = self.sign * (log_d + self.log_ratio)
+        y = -chem.log10_one_plus_pow10(z)
+        slope = -self.sign * chem.fraction_of_pow10(z)
+        if self.mixed:
+            y = np.where(self.is_d, log_d, y)
+            slope = np.where(self.is_d, 1.0, slope)
+        return (y - self.y) / self.f, g * (slope / self.f)[:, None]
+
+
 @dataclass
 class FitResult:
     """A fitted D(pH) model with its statistics. Numbers are computed here once."""
@@ -147,7 +187,15 @@ class FitResult:
     bounds: tuple[np.ndarray, np.ndarray]
     parameters: dict[str, Estimate] = field(default_factory=dict)
     warnings: list[str] = field(default_factory=list)
+    residuals: _Residuals | None = field(default=None, repr=False)
     _log_d_memo: dict = field(default_factory=dict, repr=False)
+    _end_memo: dict = field(default_factory=dict, repr=False)       # (pH, side) -> end, theta
+    _wald_memo: dict = field(default_factory=dict, repr=False)      # pH -> value, se
+    _profile_memo: dict = field(default_factory=dict, repr=False)   # pH -> _Profile
+
+    def __post_init__(self):
+        if self.residuals is None:
+            self.residuals = _Residuals(self.obs, self.model)
 
     @property
     def n(self) -> int:
@@ -192,6 +240,11 @@ class FitResult:
         return self.obs.predict(self.model.log_d(self.obs.pH, self.theta))[0]
 
     @cached_property
+    def _r_hat(self) -> np.ndarray:
+        """Residuals r = (y_model - y) / f at the estimate, where every profile starts."""
+        return self.residuals(self.theta)[0]
+
+    @cached_property
     def weighted_residuals(self) -> np.ndarray:
         return (self.obs.y - self.fitted) / self.obs.sd_factor
 
@@ -225,115 +278,233 @@ class FitResult:
 
         Memoised per pH: the plots' band, the design-space map and the procedures share it.
         ``hint`` (distances from the value to each end at a neighbouring pH) only speeds up
-        the search for the ends; it does not change them.
+        the search for the ends; it does not change them. Without it, the search starts from
+        the ends already found at the nearest pH, if any.
         """
         key = round(float(pH0), 9)
         if key not in self._log_d_memo:
-            self._log_d_memo[key] = self._log_d_interval(key, hint)
+            value, se = self._log_d_wald_at(key)
+            wald = Interval(value - self.t95 * se, value + self.t95 * se, "Wald (delta method)")
+            if not self._profiles_log_d:
+                est = Estimate(value, se, wald, wald)
+            else:
+                hint = hint or (None, None)
+                lo = self._log_d_end(key, -1, hint[0])
+                hi = self._log_d_end(key, +1, hint[1])
+                est = Estimate(value, se, Interval(lo, hi, INTERVAL_METHOD), wald)
+            self._log_d_memo[key] = est
         return self._log_d_memo[key]
 
-    def _log_d_interval(self, pH0: float, hint=None) -> Estimate:
-        value, se = (float(a[0]) for a in self.log_d_wald(pH0))
-        wald = Interval(value - self.t95 * se, value + self.t95 * se, "Wald (delta method)")
-        if self.model.h is None or self.rss <= _NOISE_FREE_RSS * self.n:
-            return Estimate(value, se, wald, wald)
-        lo_lim = LOG_D_LIMITS[0]
-        hi_lim = LOG_D_LIMITS[1]
-        prof = _Profiler(self, _logd_reparam(self.model, pH0))
-        lo, hi = prof.interval(value, se, lo_lim, hi_lim, hint)
-        return Estimate(value, se, Interval(lo, hi, INTERVAL_METHOD), wald)
+    def log_d_lower(self, pH0: float) -> float | None:
+        """The lower end of the 95 % interval of log D at pH0 alone (None when open): what a
+        recovery target is judged by, at half the cost of the whole interval."""
+        key = round(float(pH0), 9)
+        if key in self._log_d_memo:
+            return self._log_d_memo[key].ci95.lo
+        if not self._profiles_log_d:
+            value, se = self._log_d_wald_at(key)
+            return value - self.t95 * se
+        return self._log_d_end(key, -1)
+
+    @property
+    def _profiles_log_d(self) -> bool:
+        return self.model.h is not None and self.rss > _NOISE_FREE_RSS * self.n
+
+    def _log_d_wald_at(self, key: float) -> tuple[float, float]:
+        if key not in self._wald_memo:
+            value, se = self.log_d_wald(key)
+            self._wald_memo[key] = (float(value[0]), float(se[0]))
+        return self._wald_memo[key]
+
+    def _log_d_end(self, key: float, sign: int, hint: float | None = None) -> float | None:
+        if (key, sign) in self._end_memo:
+            return self._end_memo[key, sign][0]
+        if key not in self._profile_memo:
+            self._profile_memo[key] = _Profile(self, pH0=key)
+        prof = self._profile_memo[key]
+        d0, start = None, None
+        if hint is not None and np.isfinite(hint):
+            d0 = float(np.clip(hint, 1e-6, 4.0))
+        else:
+            # the end at the nearest pH already profiled lies on the same contour S = S_crit,
+            # so its log D at this pH is inside this interval and close to its end: start there
+            near = [k for (k, s), (_, th) in self._end_memo.items()
+                    if s == sign and th is not None and abs(k - key) <= NEIGHBOUR_PH]
+            if near:
+                theta = self._end_memo[min(near, key=lambda k: abs(k - key)), sign][1]
+                d = sign * (float(self.model.log_d(np.array([key]), theta)[0]) - prof.v_hat)
+                if d > 1e-6:
+                    d0, start = d, theta[1:]
+        if d0 is None:
+            d0 = prof.wald_step(self._log_d_wald_at(key)[1])
+        end, pt = prof.end(sign, LOG_D_LIMITS[(sign + 1) // 2], d0, start)
+        self._end_memo[key, sign] = (end, None if end is None or pt is None else pt.theta)
+        return end
 
 
 #: below this weighted SS per run the data are noise-free (simulations): no profile to trace
 _NOISE_FREE_RSS = 1e-16
 #: Search limits for log D when profiling a prediction.
 LOG_D_LIMITS = (-8.0, 14.0)
+#: the ends at a pH within this distance (pH units) start the search of another pH's ends
+NEIGHBOUR_PH = 1.0
 
 
-def _weighted(obs: Observations, model: LogDModel):
-    """Residual and Jacobian functions of the full parameter vector.
+def _least_squares(fun, x0, lo, hi, max_iter: int = 200, s_tol: float = 0.0,
+                   max_step: float = np.inf):
+    """Levenberg-Marquardt with Marquardt scaling in the box [lo, hi].
 
-    The Jacobian is always asked for at the point whose residuals were computed last, so the
-    model evaluation is shared between the two.
-    """
-    last: dict = {}
-
-    def evaluate(theta):
-        key = theta.tobytes()
-        if last.get("key") != key:
-            y, slope = obs.predict(model.log_d(obs.pH, theta))
-            last.update(key=key, r=(y - obs.y) / obs.sd_factor, slope=slope)
-        return last
-
-    def resid(theta):
-        return evaluate(theta)["r"]
-
-    def jac(theta):
-        slope = evaluate(theta)["slope"]
-        return model.jacobian(obs.pH, theta) * (slope / obs.sd_factor)[:, None]
-
-    return resid, jac
-
-
-def _least_squares(resid, jac, x0, lo, hi, max_iter: int = 200):
-    """Levenberg-Marquardt with Marquardt scaling, steps projected onto the box [lo, hi].
+    ``fun(x)`` returns ``(r, J, ...)``; whatever follows J is handed back for the final point.
+    A parameter at a bound whose gradient pushes it outward is held there and the step is
+    solved for the others (an active set): a step projected onto the box after the fact is no
+    descent step when parameters are correlated, and the fit then crawls along the bound.
+    Stops when the step or the decrease of S becomes negligible, or, with ``s_tol`` > 0, when
+    the Gauss-Newton model predicts a further decrease below ``s_tol`` (the precision the
+    caller needs), without evaluating that last step. ``max_step`` caps each step (largest
+    component) so that the fit walks down the valley it starts in rather than leaping over a
+    ridge into another one.
 
     The problems here have 1-3 parameters and tens of runs; a small dense solver avoids the
     per-call overhead of a general one (scipy's ``least_squares`` gives the same optimum, see
     ``tests/test_fit_reference.py``).
+
+    Returns ``(x, S, the tuple fun gave at x, converged)``.
     """
-    x = np.clip(np.asarray(x0, dtype=float), lo, hi)
-    r = resid(x)
+    x = np.minimum(np.maximum(np.asarray(x0, dtype=float), lo), hi)
+    out = fun(x)
+    r = out[0]
     s = float(r @ r)
     if x.size == 0:
-        return x, s
+        return x, s, out, True
     lam = 1e-3
     for _ in range(max_iter):
-        J = jac(x)
-        g = J.T @ r
+        J = out[1]
+        g = r @ J
         A = J.T @ J
-        d = np.diag(A).copy()
+        at_lo, at_hi = x <= lo, x >= hi
+        held = None
+        if at_lo.any() or at_hi.any():
+            held = (at_lo & (g > 0)) | (at_hi & (g < 0))
+            if held.all():
+                break
+            if held.any():
+                free = ~held
+                A, g = A[np.ix_(free, free)], g[free]
+            else:
+                held = None
+        if s_tol > 0.0:
+            # the decrease the Gauss-Newton model predicts for the full step, g'A^-1 g / 2
+            try:
+                if -0.5 * float(g @ _solve_small(A, -g)) <= s_tol:
+                    break
+            except np.linalg.LinAlgError:
+                pass
+        d = A.diagonal().copy()
         d[d <= 0] = 1e-12
         improved = False
         while lam < 1e16:
             try:
-                step = np.linalg.solve(A + lam * np.diag(d), -g)
+                step = _solve_small(A + np.diag(lam * d), -g)
             except np.linalg.LinAlgError:
                 lam *= 10.0
                 continue
-            x_new = np.clip(x + step, lo, hi)
-            if np.max(np.abs(x_new - x)) <= 1e-11 * (1.0 + np.max(np.abs(x))):
+            longest = float(np.abs(step).max())
+            if longest > max_step:
+                step = step * (max_step / longest)
+            if held is None:
+                x_new = x + step
+            else:
+                x_new = x.copy()
+                x_new[~held] += step
+            x_new = np.minimum(np.maximum(x_new, lo), hi)
+            moved = float(np.abs(x_new - x).max())
+            scale = 1.0 + float(np.abs(x).max())
+            if moved <= 1e-11 * scale:
                 break          # no step left to take: converged (or pinned at a bound)
-            r_new = resid(x_new)
+            out_new = fun(x_new)
+            r_new = out_new[0]
             s_new = float(r_new @ r_new)
             if s_new < s:
                 improved = True
                 break
             lam *= 10.0
         if not improved:
-            break
-        small = np.max(np.abs(x_new - x)) < 1e-10 * (1.0 + np.max(np.abs(x)))
+            break              # no step lowers S any more: a minimum to working precision
+        small = moved < 1e-10 * scale
         flat = s - s_new <= 1e-15 * max(s, 1e-300)
-        x, r, s = x_new, r_new, s_new
+        x, out, r, s = x_new, out_new, r_new, s_new
         lam = max(lam * 0.1, 1e-12)
         if small or flat:
             break
-    return x, s
+    else:
+        return x, s, out, False
+    return x, s, out, True
+
+
+def _solve_small(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Solve a x = b for the 1-3 parameters here; 1 x 1 and 2 x 2 in closed form, which is
+    several times cheaper than a LAPACK call at this size."""
+    if b.size == 1:
+        a00 = float(a[0, 0])
+        if a00 == 0.0 or not np.isfinite(a00):
+            raise np.linalg.LinAlgError("singular")
+        return b / a00
+    if b.size == 2:
+        (a00, a01), (a10, a11) = a.tolist()
+        det = a00 * a11 - a01 * a10
+        if det == 0.0 or not np.isfinite(det):
+            raise np.linalg.LinAlgError("singular")
+        b0, b1 = b.tolist()
+        return np.array([(a11 * b0 - a01 * b1) / det, (a00 * b1 - a10 * b0) / det])
+    return np.linalg.solve(a, b)
 
 
 def _start_values(obs: Observations, model: LogDModel, n_best: int = 3) -> list[np.ndarray]:
-    """Grid over the non-logK parameters, logK from the implied log D per run; best few."""
+    """Grid over the non-logK parameters, logK from the implied log D per run; the lowest grid
+    point of each of the best few valleys of the grid (neighbouring grid points lie in the same
+    valley and lead the fit to the same minimum, so one start per valley is enough)."""
     implied, w = obs.implied_log_d()
     rest = model.start_grid(obs.pH)
     if model.ion_pair:
         raise AssertionError("ion-pair start values come from the simple model")
-    h = np.stack([model.h(obs.pH, *r) for r in rest]) if rest.shape[1] else np.zeros((1, obs.n))
+    if not rest.shape[1]:
+        h = np.zeros((1, obs.n))
+    else:
+        # every grid row at once: h broadcasts over a column of each parameter
+        h = model.h(obs.pH[None, :], *(col[:, None] for col in rest.T))
+        if np.shape(h) != (len(rest), obs.n):
+            h = np.stack([model.h(obs.pH, *r) for r in rest])
     logk = np.sum(w * (implied - h), axis=1) / np.sum(w)
     log_d = logk[:, None] + h
     y, _ = obs.predict(log_d)
     s = np.sum(((y - obs.y) / obs.sd_factor) ** 2, axis=1)
-    order = np.argsort(s)[:n_best]
+    order = _grid_minima(rest, s)[:n_best]
     return [np.concatenate([[logk[i]], rest[i]]) for i in order]
+
+
+def _grid_minima(points: np.ndarray, s: np.ndarray) -> np.ndarray:
+    """Indices of the points of a regular grid (rows of ``points``, any subset of a full grid)
+    whose ``s`` is below that of every neighbouring grid point, diagonals included; lowest
+    first. Ties are broken by position, so a flat stretch gives one point, not many."""
+    order = np.argsort(s, kind="stable")
+    m, k = points.shape
+    if k == 0 or m == 1:
+        return order
+    rank = np.empty(m)
+    rank[order] = np.arange(m)
+    steps = []
+    for col in points.T:
+        gaps = np.diff(np.unique(col))
+        steps.append(gaps.min() if gaps.size else 1.0)
+    idx = np.rint((points - points.min(axis=0)) / np.array(steps)).astype(int) + 1
+    dense = np.full(idx.max(axis=0) + 2, np.inf)    # padded by one on each side
+    dense[tuple(idx.T)] = rank
+    lowest = np.ones(m, dtype=bool)
+    for offset in itertools.product((-1, 0, 1), repeat=k):
+        if any(offset):
+            lowest &= rank < dense[tuple((idx + np.array(offset)).T)]
+    minima = np.flatnonzero(lowest)
+    return minima[np.argsort(rank[minima])]
 
 
 def fit_model(obs: Observations, model: LogDModel, simple_model: LogDModel | None = None,
@@ -345,7 +516,7 @@ def fit_model(obs: Observations, model: LogDModel, simple_model: LogDModel | Non
             f"parameter(s) and needs at least {model.n_params + 1} runs (one residual degree of "
             "freedom to estimate the measurement error)")
     lo, hi = model.bounds(obs.pH)
-    resid, jac = _weighted(obs, model)
+    res = _Residuals(obs, model)
     if model.ion_pair:
         base = fit_model(obs, simple_model, intervals=False)
         starts = [np.concatenate([base.theta, [base.theta[0] + d]]) for d in (-4.0, -2.0, -1.0)]
@@ -353,13 +524,13 @@ def fit_model(obs: Observations, model: LogDModel, simple_model: LogDModel | Non
         starts = _start_values(obs, model)
     best = None
     for x0 in starts:
-        x, s = _least_squares(resid, jac, x0, lo, hi)
+        x, s, (_, jac), _ = _least_squares(res, x0, lo, hi)
         if best is None or s < best[1] - 1e-12:
-            best = (x, s)
-    theta, rss = best
+            best = (x, s, jac)
+    theta, rss, jac = best
     if rss <= 0.0:
         rss = 1e-300   # noise-free data: keep the statistics finite
-    result = FitResult(model, obs, theta, rss, jac(theta), (lo, hi))
+    result = FitResult(model, obs, theta, rss, jac, (lo, hi), residuals=res)
     _fill_parameters(result, intervals)
     _correlation_warnings(result)
     if model.ion_pair and intervals and result.parameters["logK_ion"].ci95.lo is None:
@@ -393,10 +564,12 @@ def _fill_parameters(fit: FitResult, intervals: bool) -> None:
         wald = Interval(value - fit.t95 * se, value + fit.t95 * se, "Wald")
         at_bound = bool(np.isclose(value, lo_b[j], atol=1e-6)
                         or np.isclose(value, hi_b[j], atol=1e-6))
+        reasons: dict[int, str] = {}
         if intervals and fit.rss > _NOISE_FREE_RSS * fit.n:
-            prof = _Profiler(fit, _fix_param(fit.model, j))
-            lo, hi = prof.interval(value, se, float(lo_b[j]), float(hi_b[j]))
+            prof = _Profile(fit, param=j)
+            lo, hi = prof.interval(se, float(lo_b[j]), float(hi_b[j]))
             ci = Interval(lo, hi, INTERVAL_METHOD)
+            reasons = prof.open_reason
         else:
             ci = wald
         fit.parameters[name] = Estimate(value, se, ci, wald, at_bound=at_bound)
@@ -408,127 +581,340 @@ def _fill_parameters(fit: FitResult, intervals: bool) -> None:
             side = " and ".join(s for s, e in (("below", ci.lo), ("above", ci.hi)) if e is None)
             fit.warnings.append(
                 f"{name} is poorly determined: the runs do not bound it from {side} at 95 % "
-                "confidence (e.g. no runs near the pKa, or recoveries all near 100 %)")
+                "confidence (e.g. no runs near the pKa, or recoveries all near 100 %)"
+                + "".join(_open_reason(reasons.get(sign), where)
+                          for sign, where in ((-1, "below"), (+1, "above"))))
+
+
+def _open_reason(reason: str | None, side: str) -> str:
+    """Why an end the search could not close is open, when the search limit is not why."""
+    if reason is None or reason == "limit":
+        return ""
+    if reason == "unsettled":
+        return (f"; {side}, the fits with it held fixed do not settle (the runs leave a "
+                "direction in the parameters undetermined)")
+    other = reason.split(" ", 1)[1]
+    return (f"; {side}, the profile only rises where {other} reaches its search limit, so an "
+            f"end there would be that limit's, not the data's")
 
 
 # -- profiling -----------------------------------------------------------------------------------
-def _fix_param(model: LogDModel, j: int):
-    """(to_theta, free indices, d theta / d u) for profiling parameter j."""
-    free = [k for k in range(model.n_params) if k != j]
-    dtheta = np.eye(model.n_params)[:, free]
-
-    def to_theta(v, u):
-        theta = np.empty(model.n_params)
-        theta[j] = v
-        theta[free] = u
-        return theta
-
-    return to_theta, free, lambda v, u: dtheta
-
-
-def _logd_reparam(model: LogDModel, pH0: float):
-    """The same for log D at pH0 held fixed: logK = logD0 - h(pH0; rest)."""
-    ph0 = np.array([pH0])
-    free = list(range(1, model.n_params))
-
-    def to_theta(v, u):
-        h0 = float(model.h(ph0, *u)[0]) if u.size else 0.0
-        return np.concatenate([[v - h0], u])
-
-    def dtheta(v, u):
-        return np.vstack([-model.dh(ph0, *u)[0], np.eye(len(free))])
-
-    return to_theta, free, dtheta
+#: a profile fit stops when the fitted model predicts less than this share of s^2 still to
+#: gain: tau is then exact to ~1e-9, and the fit does not chase round-off along a flat valley
+PROFILE_S_TOL = 1e-9
+#: an end is taken when tau is within this share of its target, plus the Newton correction
+#: from there (tau is nearly linear in v): on simulated studies that leaves the end exact to
+#: ~1e-7 of its distance from the estimate (taking the point itself, as a plain secant search
+#: would, leaves ~3e-3), and most ends then need one or two profile fits
+END_TAU_TOL = 3e-3
+#: profile evaluations allowed per end before the bracketing fallback
+MAX_END_STEPS = 16
+#: tau below this is a flat stretch of the profile (S - S_min at round-off): no Newton step
+TAU_FLAT = 1e-2
+#: iterations allowed to one profile fit
+MAX_PROFILE_ITER = 100
+#: profile fits that do not settle, each closer to the estimate, before an end is left open
+MAX_UNSETTLED = 3
+#: largest step of a profile fit, and of its warm start from a neighbouring point, in the
+#: parameters' units (log units, pH units)
+PROFILE_MAX_STEP = 1.0
+#: an end that would move by this much (or more) per unit of another parameter's search limit
+#: follows that limit, not the data, and is left open
+LIMIT_FOLLOWING = 0.5
 
 
-class _Profiler:
-    """Minimised weighted SS with one quantity held fixed; finds where it crosses S_crit."""
+class _Point:
+    """One evaluation of a profile: the weighted SS minimised with the quantity held at v."""
 
-    def __init__(self, fit: FitResult, reparam):
+    __slots__ = ("v", "u", "s", "ds", "theta", "converged", "r", "j_u", "j_v", "_tangent")
+
+    def __init__(self, v, u, s, theta, converged, r, j_u, j_v):
+        self.v, self.u, self.s, self.theta, self.converged = v, u, s, theta, converged
+        self.r, self.j_u, self.j_v = r, j_u, j_v
+        self.ds = 2.0 * float(r @ j_v)   # dS/dv along the profile (the gradient in u is 0)
+        self._tangent = None
+
+
+class _Profile:
+    """S(v), the weighted SS minimised over the other parameters u with one quantity held at v,
+    and the two values of v where it crosses S_crit: the ends of the 95 % interval.
+
+    The quantity is parameter ``param`` or, with ``pH0``, log D at pH0 (then logK = v - h(pH0;
+    u), which needs a model of the form log D = logK + h). Each profile fit starts from the
+    nearest one already made, moved along the tangent du/dv, so it needs a step or two; and
+    since the gradient in u vanishes at each minimum, dS/dv = 2 r . dr/dv comes with every
+    evaluation (envelope theorem), so the ends are found by Newton's method on tau(v), which is
+    nearly linear in v.
+
+    An end is left open (None) when tau stays below t_crit up to the search limit, and also
+    when the data cannot settle it: when a profile fit does not converge (it is walking down a
+    valley the runs do not determine, whose bottom may well be inside), or when the end found
+    would follow the search limit of another parameter held at it. ``open_reason`` says which.
+    """
+
+    def __init__(self, fit: FitResult, param: int = 0, pH0: float | None = None):
+        model = fit.model
         self.fit = fit
-        self.to_theta, self.free, self.dtheta = reparam
+        self.res = fit.residuals
+        self.p = model.n_params
+        self.j = param if pH0 is None else 0
+        self.free = [k for k in range(self.p) if k != self.j]
+        self.names = [model.params[k] for k in self.free]
+        self.ph0 = None if pH0 is None else np.array([float(pH0)])
+        self.h, self.dh, self.h_dh = model.h, model.dh, model.h_dh
         self.lo_b = fit.bounds[0][self.free]
         self.hi_b = fit.bounds[1][self.free]
-        self.resid, self.jac = _weighted(fit.obs, fit.model)
-        self.u_hat = fit.theta[self.free]
-        self.u = self.u_hat.copy()
+        self.s2 = fit.rss / fit.dof
+        self.t_crit = float(np.sqrt(f95(fit.dof)))
+        theta = fit.theta
+        u_hat = theta[self.free]
+        self.v_hat = (float(theta[self.j]) if pH0 is None
+                      else float(model.log_d(self.ph0, theta)[0]))
+        self.points = [_Point(self.v_hat, u_hat, fit.rss, theta, True, fit._r_hat,
+                              *self._split(fit.jac, self._theta_dh0(self.v_hat, u_hat)[1]))]
+        self.open_reason: dict[int, str] = {}
 
-    def __call__(self, v: float) -> float:
+    # -- the reparametrisation ------------------------------------------------------------------
+    def theta(self, v: float, u: np.ndarray) -> np.ndarray:
+        return self._theta_dh0(v, u)[0]
+
+    def _theta_dh0(self, v: float, u: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
+        """theta at (v, u) and, for log D held at pH0, d h(pH0; u) / du."""
+        th = np.empty(self.p)
+        if self.ph0 is None:
+            th[self.j] = v
+            th[self.free] = u
+            return th, None
+        if not u.size:
+            th[0] = v
+            return th, None
+        h0, dh0 = (self.h_dh(self.ph0, *u) if self.h_dh is not None
+                   else (self.h(self.ph0, *u), self.dh(self.ph0, *u)))
+        th[0] = v - float(h0[0])
+        th[1:] = u
+        return th, dh0[0]
+
+    def _split(self, jac: np.ndarray, dh0: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
+        """The Jacobian of r in (u, v) from the one in theta."""
+        j_v = jac[:, self.j]
+        if self.ph0 is None:
+            return jac[:, self.free], j_v
+        if dh0 is None:
+            return jac[:, 1:], j_v
+        return jac[:, 1:] - j_v[:, None] * dh0, j_v
+
+    def _held(self, pt: _Point) -> np.ndarray:
+        """Which of u sit at a search limit that the fit pushes against."""
+        g = pt.j_u.T @ pt.r
+        return ((pt.u <= self.lo_b) & (g > 0)) | ((pt.u >= self.hi_b) & (g < 0))
+
+    def tangent(self, pt: _Point) -> np.ndarray:
+        """du/dv along the profile at pt (Gauss-Newton); parameters held at a limit stay."""
+        if pt._tangent is None:
+            t = np.zeros(pt.u.size)
+            free = ~self._held(pt) if pt.u.size else np.zeros(0, dtype=bool)
+            if free.any():
+                a = pt.j_u[:, free]
+                try:
+                    t[free] = -np.linalg.solve(a.T @ a, a.T @ pt.j_v)
+                except np.linalg.LinAlgError:
+                    pass
+            pt._tangent = t if np.all(np.isfinite(t)) else np.zeros(pt.u.size)
+        return pt._tangent
+
+    # -- evaluations -----------------------------------------------------------------------------
+    def at(self, v: float, u0: np.ndarray) -> _Point:
+        """Minimise S over u with the quantity held at v, starting from u0."""
         if not self.free:
-            return float(np.sum(self.resid(self.to_theta(v, np.empty(0))) ** 2))
+            u = np.zeros(0)
+            theta = self.theta(v, u)
+            r, jac = self.res(theta)
+            pt = _Point(float(v), u, float(r @ r), theta, True, r, *self._split(jac, None))
+        else:
+            def fun(u):
+                theta, dh0 = self._theta_dh0(v, u)
+                r, jac = self.res(theta)
+                return (r, *self._split(jac, dh0), theta)
 
-        def r(u):
-            return self.resid(self.to_theta(v, u))
+            u, s, (r, j_u, j_v, theta), ok = _least_squares(
+                fun, u0, self.lo_b, self.hi_b, MAX_PROFILE_ITER, PROFILE_S_TOL * self.s2,
+                PROFILE_MAX_STEP)
+            pt = _Point(float(v), u, s, theta, ok, r, j_u, j_v)
+        return pt
 
-        def j(u):
-            return self.jac(self.to_theta(v, u)) @ self.dtheta(v, u)
-
-        u, s = _least_squares(r, j, self.u, self.lo_b, self.hi_b)
-        self.u = u
-        return s
-
-    def tau(self, v: float) -> float:
+    def tau(self, pt: _Point) -> float:
         """Signed-root profile statistic in units of s: compare with the t quantile."""
-        return float(np.sqrt(max(self(v) - self.fit.rss, 0.0) / (self.fit.rss / self.fit.dof)))
+        return float(np.sqrt(max(pt.s - self.fit.rss, 0.0) / self.s2))
 
-    def interval(self, v_hat, se, lo_lim, hi_lim, hint=None) -> tuple[float | None, float | None]:
-        t_crit = float(np.sqrt(f95(self.fit.dof)))
-        step0 = se * t_crit if np.isfinite(se) and se > 1e-8 else 0.5
-        step0 = float(np.clip(step0, 1e-6, 2.0))
-        steps = [step0, step0]
-        if hint is not None:
-            steps = [float(np.clip(h, 1e-6, 4.0)) if h is not None and np.isfinite(h) else step0
-                     for h in hint]
-        lo = self._end(v_hat, -1, lo_lim, steps[0], t_crit)
-        hi = self._end(v_hat, +1, hi_lim, steps[1], t_crit)
-        # tau(v_hat) = 0, so an end on the wrong side of the estimate is round-off in a
-        # degenerate (flat) profile: the estimate itself bounds it
-        return (None if lo is None else min(lo, v_hat), None if hi is None else max(hi, v_hat))
+    def _inner(self, v: float) -> _Point:
+        """The evaluated point nearest to v between the estimate and v: the profile is traced
+        outward from the estimate, so each fit continues the valley the estimate lies in."""
+        side = np.sign(v - self.v_hat)
+        return min((q for q in self.points if side * (q.v - self.v_hat) <= side * (v - self.v_hat)),
+                   key=lambda q: abs(q.v - v))
 
-    def _end(self, v_hat, sign, limit, step0, t_crit) -> float | None:
-        """One end: secant iteration on tau(v) = t_crit from the Wald end (tau is nearly
-        linear in v, so two or three profile fits usually suffice); bracketing as fallback."""
-        self.u = self.u_hat.copy()
-        v_prev, tau_prev = v_hat, 0.0
-        v = v_hat + sign * step0
-        inside, outside = v_hat, None
-        for _ in range(12):
-            if sign * (v - limit) >= 0:
-                v = limit
-            tau = self.tau(v)
-            if abs(tau - t_crit) <= 1e-3 * t_crit:
-                return v
-            if tau < t_crit:
-                inside = v
-                if v == limit:
-                    return None            # the data do not close this end
-            else:
-                outside = v
-            dist = abs(v - v_hat)
-            if tau > tau_prev + 1e-12:
-                v_new = v + (t_crit - tau) * (v - v_prev) / (tau - tau_prev)
-            else:
-                v_new = v_hat + sign * 2.0 * dist
-            # keep the step sane: stay on our side, within a factor of four of the last distance
-            d_new = float(np.clip(sign * (v_new - v_hat), 0.25 * dist, 4.0 * dist))
-            v_prev, tau_prev, v = v, tau, v_hat + sign * d_new
-            if outside is not None and sign * (v - outside) > 0:
-                v = 0.5 * (inside + outside)
-        if outside is None:
+    def _start(self, v: float) -> np.ndarray:
+        """Where to start the profile fit at v: the inner neighbour moved along its tangent."""
+        near = self._inner(v)
+        move = self.tangent(near) * (v - near.v)
+        longest = float(np.abs(move).max()) if move.size else 0.0
+        if longest > PROFILE_MAX_STEP:     # near a singular point the tangent runs away
+            move *= PROFILE_MAX_STEP / longest
+        return near.u + move
+
+    def _tau_slope(self, pt: _Point) -> float:
+        """|d tau / d v| at an evaluated point; at the estimate, from the curvature of S."""
+        tau = self.tau(pt)
+        if tau > 0.0:
+            return abs(pt.ds) / (2.0 * self.s2 * tau)
+        # S - S_min ~ c dv^2 near the estimate, c the Schur complement of J'J for v
+        c = float(pt.j_v @ pt.j_v)
+        if pt.u.size:
+            a = pt.j_u.T @ pt.j_u
+            b = pt.j_u.T @ pt.j_v
+            try:
+                c -= float(b @ np.linalg.solve(a, b))
+            except np.linalg.LinAlgError:
+                pass
+        return float(np.sqrt(max(c, 0.0) / self.s2))
+
+    def evaluate(self, v: float, start: np.ndarray | None = None) -> _Point:
+        """The profile at v, from ``start`` (default: the tangent at the inner neighbour).
+
+        S(v) is continuous, so tau far above what the inner neighbour predicts means the fit
+        slid into another valley of S (the warm start jumped across a ridge). Then the fit is
+        made again from that neighbour's parameters and from the estimate's, and the lowest S
+        kept: S(v) is a minimum, so no start can give an answer lower than the true one.
+        """
+        near = self._inner(v)
+        pt = self.at(v, start if start is not None else self._start(v))
+        tau = self.tau(pt)
+        if (tau >= self.t_crit and self.free
+                and tau > 2.0 * (self.tau(near) + self._tau_slope(near) * abs(v - near.v)) + 1.0):
+            for u0 in (near.u, self.points[0].u):
+                other = self.at(v, u0)
+                if other.s < pt.s:
+                    pt = other
+        # only the lowest S found at each v is kept to start later fits from
+        self.points.append(pt)
+        return pt
+
+    def _follows_limit(self, pt: _Point) -> str | None:
+        """The parameter held at its search limit that this end would follow, if any.
+
+        Moving that limit outward by one unit moves the end by g_k / |dS/dv| (from S(v, limit)
+        = S_crit); when that is half a unit or more, the end is the limit's, not the data's.
+        """
+        if not pt.u.size or pt.ds == 0.0:
             return None
-        return self._crossing(inside, outside, t_crit, 1e-3 * step0)
+        held = self._held(pt)
+        if not held.any():
+            return None
+        g = 2.0 * (pt.j_u.T @ pt.r)
+        moves = np.abs(g) / abs(pt.ds)
+        worst = int(np.argmax(np.where(held, moves, -1.0)))
+        return self.names[worst] if moves[worst] >= LIMIT_FOLLOWING else None
 
-    def _crossing(self, inside: float, outside: float, t_crit: float, xtol: float) -> float:
+    # -- the ends ----------------------------------------------------------------------------
+    def wald_step(self, se: float) -> float:
+        """First distance to try: the Wald half-width."""
+        step = self.t_crit * se if np.isfinite(se) and se > 1e-8 else 0.5
+        return float(np.clip(step, 1e-6, 2.0))
+
+    def interval(self, se: float, lo_lim: float, hi_lim: float) -> tuple[float | None,
+                                                                            float | None]:
+        step = self.wald_step(se)
+        return self.end(-1, lo_lim, step)[0], self.end(+1, hi_lim, step)[0]
+
+    def end(self, sign: int, limit: float, d0: float,
+            start: np.ndarray | None = None) -> tuple[float | None, _Point | None]:
+        """The end on side ``sign`` (-1 lower, +1 upper) and the profile point there (None when
+        the end is open, see the class).
+
+        ``d0`` is the first distance from the estimate to try, ``start`` the parameters u to
+        start that profile fit from (default: the tangent at the nearest evaluated point).
+        """
+        t_c, v_hat = self.t_crit, self.v_hat
+        d_lim = sign * (limit - v_hat)
+        if d_lim <= 0.0:
+            self.open_reason[sign] = "limit"
+            return None, None
+        inside, outside = 0.0, None
+        unsettled = 0
+        d = min(max(d0, 1e-9), d_lim)
+        for _ in range(MAX_END_STEPS):
+            v = v_hat + sign * d
+            pt = self.evaluate(v, start)
+            start = None
+            tau = self.tau(pt)
+            if not pt.converged and tau >= t_c:
+                # a profile fit that does not settle is walking down a valley the runs do not
+                # determine; the minimum it has not reached lies lower, so this point may well
+                # be inside. Look closer in; if the fits there do not settle either, the data
+                # do not close this end.
+                unsettled += 1
+                if unsettled > MAX_UNSETTLED or d - inside <= 1e-6 * (1.0 + d):
+                    self.open_reason[sign] = "unsettled"
+                    return None, pt
+                d = 0.5 * (inside + d) if outside is None else 0.5 * (inside + min(d, outside))
+                continue
+            # d tau / d distance, from dS/dv (tau^2 s^2 = S - S_min); on a flat stretch tau is
+            # round-off of S and its slope is noise
+            slope = sign * pt.ds / (2.0 * self.s2 * tau) if tau > TAU_FLAT else 0.0
+            if tau < t_c:
+                if d >= d_lim:
+                    self.open_reason[sign] = "limit"
+                    return None, pt
+                if d > inside:
+                    inside = d
+                    if outside is not None and outside <= inside:
+                        outside = None         # not monotone: keep searching outward
+            elif outside is None or d < outside:
+                outside = d
+            newton = (t_c - tau) / slope if slope > 0.0 and np.isfinite(slope) else None
+            if newton is not None and abs(tau - t_c) <= END_TAU_TOL * t_c:
+                follows = self._follows_limit(pt)
+                if follows is not None:
+                    self.open_reason[sign] = f"follows {follows}"
+                    return None, pt
+                hi = d_lim if outside is None else outside
+                return v_hat + sign * float(np.clip(d + newton, inside, hi)), pt
+            if newton is not None:
+                d_new = d + newton
+            elif tau < t_c:
+                d_new = (4.0 if tau <= TAU_FLAT else 2.0) * d
+            else:
+                d_new = 0.5 * (inside + d)
+            # keep the step sane: within a factor of four of the last distance, and inside
+            # the bracket once there is one
+            d_new = float(np.clip(d_new, 0.25 * d, 4.0 * d))
+            if outside is not None and not inside < d_new < outside:
+                d_new = 0.5 * (inside + outside)
+            d = min(d_new, d_lim)
+        if outside is None:
+            # the steps ran out before the limit: settle it there
+            pt = self.evaluate(v_hat + sign * d_lim)
+            tau = self.tau(pt)
+            if tau < t_c or not pt.converged:
+                self.open_reason[sign] = "limit" if tau < t_c else "unsettled"
+                return None, pt
+            outside = d_lim
+        return self._crossing(v_hat + sign * inside, v_hat + sign * outside, t_c,
+                              1e-6 * (outside - inside + 1e-12)), None
+
+    def _crossing(self, inside: float, outside: float, t_c: float, xtol: float) -> float:
         """Where tau crosses t_crit between a point inside and one outside the interval."""
-        f = lambda x: self.tau(x) - t_crit  # noqa: E731
+        def f(x):
+            return self.tau(self.evaluate(x)) - t_c
+
         a, b = min(inside, outside), max(inside, outside)
         if np.sign(f(a)) == np.sign(f(b)):
-            # the warm-started inner fits disagree at the inside point (flat profile):
+            # the warm-started profile fits disagree at the inside point (flat profile):
             # take the outer point, which is conservative
             return outside
         try:
             return optimize.brentq(f, a, b, xtol=xtol, rtol=1e-9)
         except ValueError:
             # brentq evaluates both points again, and on a flat profile the warm-started
-            # inner fits can disagree once more: the same conservative choice
+            # profile fits can disagree once more: the same conservative choice
             return outside

@@ -40,6 +40,7 @@ class LogDModel:
     h: Callable[..., np.ndarray] | None = None  # h(pH, *rest) when log D = logK + h
     dh: Callable[..., np.ndarray] | None = None  # d h / d rest, shape (n, p - 1)
     ion_pair: bool = False
+    h_dh: Callable[..., tuple] | None = None    # (h, dh) in one pass, sharing their terms
 
     @property
     def n_params(self) -> int:
@@ -51,6 +52,17 @@ class LogDModel:
     def jacobian(self, pH, theta) -> np.ndarray:
         """d log D / d theta, shape (n, p)."""
         return self.jac_fn(np.atleast_1d(np.asarray(pH, dtype=float)), *theta)
+
+    def value_and_jacobian(self, pH: np.ndarray, theta) -> tuple[np.ndarray, np.ndarray]:
+        """log D and d log D / d theta at a 1-d float array of pH (the fit's inner loop)."""
+        if self.h_dh is None:
+            return self.log_d_fn(pH, *theta), self.jac_fn(pH, *theta)
+        logK, *rest = theta
+        h, dh = self.h_dh(pH, *rest)
+        jac = np.empty((pH.size, len(theta)))
+        jac[:, 0] = 1.0
+        jac[:, 1:] = dh
+        return logK + h, jac
 
     def bounds(self, pH) -> tuple[np.ndarray, np.ndarray]:
         lo, hi = [LOGK_LIMITS[0]], [LOGK_LIMITS[1]]
@@ -71,7 +83,10 @@ def _additive(h, dh):
         return logK + h(pH, *rest)
 
     def jac_fn(pH, logK, *rest):
-        return np.column_stack([np.ones(pH.size), dh(pH, *rest)])
+        out = np.empty((pH.size, 1 + len(rest)))
+        out[:, 0] = 1.0
+        out[:, 1:] = dh(pH, *rest)
+        return out
 
     return log_d_fn, jac_fn
 
@@ -106,6 +121,24 @@ def _dh_base(pH, pKa):
 
 def _h_ampholyte(pH, pKa1, pKa2):
     return chem.log_d_ampholyte(pH, 0.0, pKa1, pKa2)
+
+
+def _h_dh_acid(pH, pKa):
+    x = pH - pKa
+    return -chem.log10_one_plus_pow10(x), chem.fraction_of_pow10(x)[:, None]
+
+
+def _h_dh_base(pH, pKa):
+    x = pKa - pH
+    return -chem.log10_one_plus_pow10(x), -chem.fraction_of_pow10(x)[:, None]
+
+
+def _h_dh_ampholyte(pH, pKa1, pKa2):
+    # the terms of _h_ampholyte and _dh_ampholyte, computed once
+    ln_a = (pKa1 - pH) * chem.LN10
+    ln_b = (pH - pKa2) * chem.LN10
+    ln_t = np.logaddexp.reduce(np.stack([np.zeros_like(pH), ln_a, ln_b]), axis=0)
+    return 0.0 - ln_t / chem.LN10, np.column_stack([-np.exp(ln_a - ln_t), np.exp(ln_b - ln_t)])
 
 
 def _dh_ampholyte(pH, pKa1, pKa2):
@@ -143,9 +176,9 @@ def _grid_ion_pair(pH):
     return np.column_stack([a.ravel(), b.ravel()])
 
 
-def _simple(name, params, h, dh, grid, description):
+def _simple(name, params, h, dh, grid, description, h_dh=None):
     log_d_fn, jac_fn = _additive(h, dh)
-    return LogDModel(name, params, log_d_fn, jac_fn, grid, description, h=h, dh=dh)
+    return LogDModel(name, params, log_d_fn, jac_fn, grid, description, h=h, dh=dh, h_dh=h_dh)
 
 
 MODELS: dict[str, LogDModel] = {
@@ -154,13 +187,14 @@ MODELS: dict[str, LogDModel] = {
                        "D = K (IUPAC Gold Book D01817)"),
     "acid": _simple("acid", ("logK", "pKa"), _h_acid, _dh_acid,
                     lambda pH: _pka_grid(pH)[:, None],
-                    "D = K / (1 + 10^(pH - pKa)) (monoprotic acid)"),
+                    "D = K / (1 + 10^(pH - pKa)) (monoprotic acid)", _h_dh_acid),
     "base": _simple("base", ("logK", "pKa"), _h_base, _dh_base,
                     lambda pH: _pka_grid(pH)[:, None],
-                    "D = K / (1 + 10^(pKa - pH)) (monoprotic base, pKa of BH+)"),
+                    "D = K / (1 + 10^(pKa - pH)) (monoprotic base, pKa of BH+)", _h_dh_base),
     "ampholyte": _simple("ampholyte", ("logK", "pKa1", "pKa2"), _h_ampholyte, _dh_ampholyte,
                          _grid_ampholyte,
-                         "D = K / (1 + 10^(pKa1 - pH) + 10^(pH - pKa2)) (ampholyte)"),
+                         "D = K / (1 + 10^(pKa1 - pH) + 10^(pH - pKa2)) (ampholyte)",
+                         _h_dh_ampholyte),
     "acid+ion_pair": LogDModel("acid+ion_pair", ("logK", "pKa", "logK_ion"), *_ion_pair(+1),
                                _grid_ion_pair,
                                "D = (K_N + K_I 10^(pH - pKa)) / (1 + 10^(pH - pKa)) "

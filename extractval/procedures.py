@@ -18,10 +18,6 @@ from .results import Estimate, Interval, clean
 from .study import Procedure
 
 
-def _map(f, x: float | None) -> float | None:
-    return None if x is None else float(f(x))
-
-
 def _ratio(log_d) -> np.ndarray:
     """D = 10^log D. An interval end beyond the float range (a Wald end of a barely bounded
     fit) gives D = inf, complete extraction, instead of an OverflowError."""
@@ -110,41 +106,50 @@ def predict_procedure(fit: FitResult, procedure: Procedure,
     p = procedure
     est = fit.log_d_interval(p.pH)
     method = f"{est.ci95.method}, mapped from log D at pH {p.pH:g}"
-    lo, hi = est.ci95.lo, est.ci95.hi
-
-    def rec(x):
-        return recovery_pct_from_log_d(x, p.aqueous_mL, p.organic_mL)
 
     def rem(x):
         return chem.remaining_fraction(_ratio(x), p.aqueous_mL, p.organic_mL)
 
-    recovery = ValueInterval(float(rec(est.value)), Interval(_map(rec, lo), _map(rec, hi), method))
-    remaining = ValueInterval(float(rem(est.value)),
-                              Interval(_map(rem, hi), _map(rem, lo), method))
+    def rec(x):
+        return recovery_pct_from_log_d(x, p.aqueous_mL, p.organic_mL)
+
+    value, lo, hi = _at_ends(rec, est)
+    recovery = ValueInterval(value, Interval(lo, hi, method))
+    # the remaining fractions fall as log D rises: the upper end of log D gives their lower end
+    value, lo, hi = _at_ends(rem, est)
+    remaining = ValueInterval(value, Interval(hi, lo, method))
     after = []
     for n in range(1, len(p.organic_mL) + 1):
         def rem_n(x, n=n):
             return chem.remaining_fraction(_ratio(x), p.aqueous_mL, p.organic_mL[:n])
-        after.append(ValueInterval(float(rem_n(est.value)),
-                                   Interval(_map(rem_n, hi), _map(rem_n, lo), method)))
+        value, lo, hi = _at_ends(rem_n, est)
+        after.append(ValueInterval(value, Interval(hi, lo, method)))
 
     def split(x):
         return chem.split_limit_remaining(_ratio(x), p.aqueous_mL, p.total_organic_mL)
 
-    split_limit = ValueInterval(float(split(est.value)),
-                                Interval(_map(split, hi), _map(split, lo), method))
-    return ProcedurePrediction(p, est, recovery, remaining, _single_run(fit, est, rec),
+    value, lo, hi = _at_ends(split, est)
+    split_limit = ValueInterval(value, Interval(hi, lo, method))
+    return ProcedurePrediction(p, est, recovery, remaining, _single_run(fit, est, recovery.value),
                                tuple(after), split_limit, target_recovery_pct)
 
 
-def _single_run(fit: FitResult, est: Estimate, rec) -> ValueInterval:
+def _at_ends(f, est: Estimate) -> tuple[float, float | None, float | None]:
+    """f at the value and at the two ends of est's interval, in one call (None where open)."""
+    lo, hi = est.ci95.lo, est.ci95.hi
+    out = f(np.array([est.value, np.nan if lo is None else lo, np.nan if hi is None else hi]))
+    return (float(out[0]), None if lo is None else float(out[1]),
+            None if hi is None else float(out[2]))
+
+
+def _single_run(fit: FitResult, est: Estimate, recovery_pct: float) -> ValueInterval:
     """95 % range of one future run's measured recovery: model uncertainty plus assay error.
 
     In log10 E space the assay adds sd sigma / ln 10 (the fit's error model); the model part is
     the delta-method sd of log E from log D. The two are combined in quadrature, with the t
     quantile of the fit's degrees of freedom (common practice for prediction intervals).
     """
-    e = float(rec(est.value)) / 100.0
+    e = recovery_pct / 100.0
     slope = 1.0 - e                        # d log10 E / d log10 D
     sd = np.hypot(slope * est.se, fit.residual_sd / chem.LN10)
     t = fit.t95
@@ -185,12 +190,8 @@ def log_d_band(fit: FitResult, step: float = BAND_STEP) -> LogDBand:
     lo_ph = max(0.0, np.floor((fit.obs.pH.min() - BAND_MARGIN) / step) * step)
     hi_ph = min(14.0, np.ceil((fit.obs.pH.max() + BAND_MARGIN) / step) * step)
     grid = np.round(np.arange(lo_ph, hi_ph + step / 2, step), 6)
-    ests, hint = [], None
-    for x in grid:          # warm-start each point's end search from its neighbour's ends
-        e = fit.log_d_interval(float(x), hint)
-        ests.append(e)
-        hint = (None if e.ci95.lo is None else e.value - e.ci95.lo,
-                None if e.ci95.hi is None else e.ci95.hi - e.value)
+    # in order, so that each point's end search starts from its neighbour's ends
+    ests = [fit.log_d_interval(float(x)) for x in grid]
 
     def arr(get):
         return np.array([np.nan if get(e) is None else get(e) for e in ests], dtype=float)
@@ -241,11 +242,10 @@ def worst_case(fit: FitResult, band: LogDBand, p: Procedure) -> dict:
     candidates += [float(x) for x in band.pH[inside]]
     best = None
     for x in candidates:
-        est = fit.log_d_interval(x)
-        rec_lo = _recovery_lower(est.ci95.lo, aq, org)
+        rec_lo = _recovery_lower(fit.log_d_lower(x), aq, org)
         key = -np.inf if rec_lo is None else rec_lo
         if best is None or key < best[0]:
-            best = (key, x, rec_lo, float(recovery_pct_from_log_d(est.value, aq, org)))
+            best = (key, x, rec_lo, float(recovery_pct_from_log_d(fit.log_d(x), aq, org)))
     _, x, rec_lo, rec = best
     return {"recovery_pct": clean(rec_lo), "predicted_recovery_pct": clean(rec),
             "pH": clean(x, 6), "aqueous_mL": clean(aq), "organic_mL": [clean(v) for v in org]}
@@ -293,7 +293,7 @@ def pH_window(fit: FitResult, band: LogDBand, p: Procedure, target_pct: float):
     bound (profile likelihood) to 0.001 pH.
     """
     def rec_lo_at(x: float) -> float:
-        r = _recovery_lower(fit.log_d_interval(x).ci95.lo, p.aqueous_mL, p.organic_mL)
+        r = _recovery_lower(fit.log_d_lower(x), p.aqueous_mL, p.organic_mL)
         return -1.0 if r is None else r      # an open lower end meets no target
 
     rec = np.array([rec_lo_at(float(x)) for x in band.pH])
@@ -371,14 +371,15 @@ def design_space(band: LogDBand, procedures, target_pct: float | None,
     ``measured_pH`` is the pH span of the runs in the fit: the map beyond it (the band is
     traced BAND_MARGIN further on each side) is an extrapolation of the model.
     """
+    # all cells at once: the same operations as recovery_pct_from_log_d, cell by cell
+    D = _ratio(np.where(np.isfinite(band.lo), band.lo, 0.0))
     table = []
     for n in MAP_PORTIONS:
-        grid = []
-        for lo in band.lo:
-            row = [clean(_recovery_lower(lo, aqueous_mL, [r * aqueous_mL] * n), 6)
-                   if np.isfinite(lo) else None for r in MAP_RATIOS]
-            grid.append(row)
-        table.append(grid)
+        portions = np.repeat(np.array(MAP_RATIOS)[:, None] * aqueous_mL, n, axis=1)
+        q = np.exp(-np.sum(np.log1p(D[:, None, None] * portions / aqueous_mL), axis=-1))
+        rec = 100.0 * (1.0 - q)
+        table.append([[clean(x, 6) for x in row] if np.isfinite(lo) else [None] * len(row)
+                      for lo, row in zip(band.lo, rec.tolist())])
     span = (float(band.pH[0]), float(band.pH[-1]))
     return {
         "pH": [clean(x, 6) for x in band.pH],

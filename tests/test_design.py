@@ -127,3 +127,24 @@ def test_design_space_places_each_procedure_or_says_why_not():
     i = ds["pH"].index(3.5)
     own = next(p for p in report["procedures"] if p["id"] == "UNEQ")["recovery_pct"]["ci95"][0]
     assert ds["recovery_lo_pct"][1][i][j] > own
+
+
+def test_design_space_map_is_the_cell_by_cell_recovery():
+    # the map is computed for all cells at once; each cell must be the procedure formula
+    from extractval.procedures import MAP_RATIOS, recovery_pct_from_log_d
+    from extractval.results import clean
+
+    proc = Procedure("P1", "x", 3.0, 25.0, (10.0,))
+    study = simulated_study("MAP", "acid", (LOGK, PKA), PH, (proc,), sigma=0.04, form="recovery",
+                            ratios=(0.05, 0.1, 0.2), targets=Targets(recovery_pct=95.0), rng=3)
+    report = fit_study(study)
+    ds = report.to_dict()["design_space"]
+    for k, n in enumerate(ds["portions"]):
+        for i, lo in enumerate(report.band.lo):
+            for j, r in enumerate(MAP_RATIOS):
+                cell = ds["recovery_lo_pct"][k][i][j]
+                if not np.isfinite(lo):
+                    assert cell is None
+                else:
+                    assert cell == clean(float(recovery_pct_from_log_d(lo, 10.0, [r * 10.0] * n)),
+                                         6)

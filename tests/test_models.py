@@ -32,3 +32,17 @@ def test_additive_form_matches_log_d(name):
     assert np.allclose(model.log_d(pH, theta), theta[0] + model.h(pH, *theta[1:]))
     dh = model.dh(pH, *theta[1:])
     assert np.allclose(dh, model.jacobian(pH, theta)[:, 1:])
+
+
+@pytest.mark.parametrize("name", [n for n in sorted(MODELS) if MODELS[n].h_dh is not None])
+def test_one_pass_h_and_dh_equal_the_separate_ones(name):
+    # the fit's inner loop uses the one-pass form; the profile and the reports use h and dh
+    model = MODELS[name]
+    theta = np.array(THETA[name])
+    pH = np.linspace(0.5, 13.5, 27)
+    h, dh = model.h_dh(pH, *theta[1:])
+    assert np.array_equal(h, model.h(pH, *theta[1:]))
+    assert np.array_equal(dh, model.dh(pH, *theta[1:]))
+    value, jac = model.value_and_jacobian(pH, theta)
+    assert np.array_equal(value, model.log_d(pH, theta))
+    assert np.array_equal(jac, model.jacobian(pH, theta))
