@@ -282,16 +282,24 @@ class _Yaml:
         self.problems.append(Problem(f"missing key {name!r}", file=self.file, line=line,
                                      key=f"{key}.{name}" if key else name, expected=expected))
 
-    def text(self, entries, node, key: str, name: str, *, required: bool = True,
-             expected: str = "text") -> str | None:
-        """A text value exactly as written (``title: 2026`` is the text '2026')."""
-        path = f"{key}.{name}" if key else name
+    def value_node(self, entries, node, key: str, name: str, required: bool,
+                   expected: str):
+        """The value node of ``name``, or None when it is absent or null (then reported as
+        missing where ``required``)."""
         if name not in entries or _is_null(entries[name][1]):
             if required:
                 self.missing(node if name not in entries else entries[name][1], key, name,
                              expected)
             return None
-        v_node = entries[name][1]
+        return entries[name][1]
+
+    def text(self, entries, node, key: str, name: str, *, required: bool = True,
+             expected: str = "text") -> str | None:
+        """A text value exactly as written (``title: 2026`` is the text '2026')."""
+        path = f"{key}.{name}" if key else name
+        v_node = self.value_node(entries, node, key, name, required, expected)
+        if v_node is None:
+            return None
         if not isinstance(v_node, yaml.ScalarNode):
             self.report(f"{name!r} must be text", v_node, path, found=_node_kind(v_node),
                         expected=expected)
@@ -306,12 +314,9 @@ class _Yaml:
                check=None, expected: str = "a number") -> float | None:
         """A finite number; ``check(value)`` returns None or the expectation it misses."""
         path = f"{key}.{name}" if key else name
-        if name not in entries or _is_null(entries[name][1]):
-            if required:
-                self.missing(node if name not in entries else entries[name][1], key, name,
-                             expected)
+        v_node = self.value_node(entries, node, key, name, required, expected)
+        if v_node is None:
             return None
-        v_node = entries[name][1]
         return self._number_node(v_node, path, name, check, expected)
 
     def _number_node(self, v_node, path: str, name: str, check, expected: str) -> float | None:

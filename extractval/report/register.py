@@ -47,6 +47,11 @@ def pointer(*parts) -> str:
 
 
 # -- how numbers are written --------------------------------------------------------------------
+#: digits of each plain number style (format specifications)
+_FORMAT_SPECS = {"log": ".3f", "pH": ".2f", "r": ".3f", "se": ".2g", "frac": ".3g",
+                 "f2": ".2f", "mL": "g", "g": ".4g"}
+
+
 def fmt_number(value, style: str) -> str:
     """A reported number as people read it; the style fixes the digits, nothing is computed.
 
@@ -61,26 +66,12 @@ def fmt_number(value, style: str) -> str:
         return "yes" if value else "no"
     if style == "int":
         return f"{int(value)}"
-    if style == "log":
-        return f"{value:.3f}"
-    if style == "pH":
-        return f"{value:.2f}"
-    if style == "r":
-        return f"{value:.3f}"
-    if style == "se":
-        return f"{value:.2g}"
-    if style == "frac":
-        return f"{value:.3g}"
     if style == "pct":                      # a percentage; the unit is written beside it
         return fmt_pct(value)
-    if style == "f2":
-        return f"{value:.2f}"
     if style == "rel":                      # a relative SD held as a fraction, shown in percent
         return format(value, ".2%").replace("%", " %")
-    if style == "mL":
-        return f"{value:g}"
-    if style == "g":
-        return f"{value:.4g}"
+    if style in _FORMAT_SPECS:
+        return format(value, _FORMAT_SPECS[style])
     raise ValueError(f"unknown number style {style!r}")
 
 
