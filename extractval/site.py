@@ -94,13 +94,19 @@ def inputs_key(study) -> str:
     return "sv-" + _sha(text)[:12]
 
 
-def _folder_key(folder: Path | None, errors) -> str:
-    """For a study that could not be read: its files' bytes (and what went wrong)."""
-    parts: list[bytes | str] = list(errors)
+def folder_files(folder: Path | None) -> list[bytes | str]:
+    """Each file below ``folder`` as (relative name, bytes), flattened, in name order; what
+    a study folder's keys are made of."""
+    parts: list[bytes | str] = []
     if folder is not None and folder.is_dir():
         for f in sorted(p for p in folder.rglob("*") if p.is_file()):
             parts += [f.relative_to(folder).as_posix(), f.read_bytes()]
-    return "sv-" + _sha(*parts)[:12]
+    return parts
+
+
+def _folder_key(files: list[bytes | str], errors) -> str:
+    """For a study that could not be read: its files' bytes (and what went wrong)."""
+    return "sv-" + _sha(*errors, *files)[:12]
 
 
 # -- sources of studies ---------------------------------------------------------------------------
@@ -147,7 +153,7 @@ def compute(study) -> tuple[str, dict[str, bytes]]:
 class Cache:
     """Per study, the fitted dict and the plots, under a key of study content and software.
 
-    Layout: ``<root>/v1/<study-id>/<key>/report.json``, ``meta.json`` (the study's inputs key
+    Layout: ``<root>/v2/<study-id>/<key>/report.json``, ``meta.json`` (the study's inputs key
     and run count) and ``plots/*.svg``. A study folder is keyed by its files' bytes, a study
     made in memory by its record. The folder is safe to delete at any time; only the newest
     entry of each study is kept.
@@ -159,14 +165,11 @@ class Cache:
     def key(self, study) -> str:
         return _sha(software_fingerprint(), _record(study))[:24]
 
-    def folder_key(self, folder: Path, shown_as: str) -> str:
-        """The key of a study folder by its files' bytes, without reading it as a study: a
-        warm rebuild then skips parsing too. ``shown_as`` is the folder as the messages and
-        pages name it (part of what the pages say)."""
-        parts: list[bytes | str] = [software_fingerprint(), "folder", shown_as]
-        for f in sorted(p for p in folder.rglob("*") if p.is_file()):
-            parts += [f.relative_to(folder).as_posix(), f.read_bytes()]
-        return _sha(*parts)[:24]
+    def folder_key(self, files: list[bytes | str], shown_as: str) -> str:
+        """The key of a study folder by its files (:func:`folder_files`), without reading it
+        as a study: a warm rebuild then skips parsing too. ``shown_as`` is the folder as the
+        messages and pages name it (part of what the pages say)."""
+        return _sha(software_fingerprint(), "folder", shown_as, *files)[:24]
 
     def get(self, study_id: str, key: str) -> tuple[str, dict[str, bytes], dict] | None:
         """(report JSON text, plots, meta) of an entry, or None."""
@@ -321,10 +324,11 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
     for src in sources:
         t0 = time.perf_counter()
         key = None
+        files = folder_files(src.folder)      # read once: the cache key, or the error key
         if src.folder is not None and cache.root is not None and src.folder.is_dir():
             shown = (os.path.relpath(src.folder, display_root) if display_root is not None
                      else str(src.folder))
-            key = cache.folder_key(src.folder, shown)
+            key = cache.folder_key(files, shown)
             hit = cache.get(src.study_id, key)
             if hit is not None:
                 report(from_cache(src, *hit))
@@ -337,7 +341,7 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
                                    f"({type(exc).__name__}: {exc}); this is a fault in "
                                    "extractval, please report it"]
         if study is None:
-            report(Outcome(src.study_id, None, {}, errors, _folder_key(src.folder, errors),
+            report(Outcome(src.study_id, None, {}, errors, _folder_key(files, errors),
                            seconds=time.perf_counter() - t0))
             continue
         if key is None:
@@ -484,7 +488,7 @@ def _alive(pid: int) -> bool:
     except ProcessLookupError:
         return False
     except PermissionError:
-        return True
+        pass                    # it runs, as another user
     return True
 
 
@@ -534,7 +538,7 @@ class BuildResult:
     site_dir: Path
     prepared: Prepared
     seconds: float
-    #: wall seconds of the steps: "read and fit" (with plots and pages), "generator"
+    #: wall seconds of the steps: "studies and pages" (read, fit, plots, pages), "site generator"
     steps: dict[str, float] = field(default_factory=dict)
 
 
