@@ -91,10 +91,16 @@ class Observations:
     kind: tuple[str, ...]      # LOG_D, LOG_E or LOG_Q
     y: np.ndarray
     replicate_key: tuple[str, ...] = ()   # group label for replicate runs (same pH and ratio)
+    #: extra variance of y per run in units of sigma^2 (e.g. a calibration's share, divided by
+    #: the current estimate of sigma^2); None leaves the weights exactly as the error model says
+    extra_var: np.ndarray | None = None
 
     @cached_property
     def sd_factor(self) -> np.ndarray:
-        return np.array([_SD_FACTOR[k] for k in self.kind])
+        f = np.array([_SD_FACTOR[k] for k in self.kind])
+        if self.extra_var is None or not np.any(self.extra_var):
+            return f
+        return np.sqrt(f ** 2 + np.asarray(self.extra_var, dtype=float))
 
     @cached_property
     def _code(self) -> np.ndarray:

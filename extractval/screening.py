@@ -62,7 +62,8 @@ def screen(fit: FitResult) -> list[Flag]:
 def _subset(obs: Observations, keep: np.ndarray) -> Observations:
     return Observations(tuple(np.array(obs.run_ids, dtype=object)[keep]), obs.pH[keep],
                         obs.log_ratio[keep], tuple(np.array(obs.kind, dtype=object)[keep]),
-                        obs.y[keep], tuple(np.array(obs.replicate_key, dtype=object)[keep]))
+                        obs.y[keep], tuple(np.array(obs.replicate_key, dtype=object)[keep]),
+                        None if obs.extra_var is None else obs.extra_var[keep])
 
 
 def refit_without(fit: FitResult, flags: list[Flag], simple_model=None):
