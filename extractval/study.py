@@ -42,8 +42,8 @@ import yaml
 from .errors import Problem, StudyError
 from .tables import EXTENSIONS, Location, Table, TableRow, decode_text, parse_number, read_table
 
-__all__ = ["MODELS", "InputFile", "Location", "Procedure", "Run", "Study", "Targets",
-           "check_study", "discover_studies", "display_path", "load_study"]
+__all__ = ["MODELS", "AdviceRequest", "InputFile", "Location", "Procedure", "Run", "Study",
+           "Targets", "check_study", "discover_studies", "display_path", "load_study"]
 
 MODELS = ("neutral", "acid", "base", "ampholyte", "auto")
 
@@ -123,6 +123,18 @@ class Targets:
 
 
 @dataclass(frozen=True)
+class AdviceRequest:
+    """What ``advice:`` asks of the next-run advice; None where the study leaves the default.
+
+    ``target`` is ``pKa`` (``pKa1``/``pKa2`` for an ampholyte), ``logK`` or a procedure id;
+    ``pH_range`` the pH span the lab's buffers cover, which bounds the advised runs.
+    """
+
+    target: str | None = None
+    pH_range: tuple[float, float] | None = None
+
+
+@dataclass(frozen=True)
 class InputFile:
     """An input file with its SHA-256, for provenance."""
 
@@ -147,6 +159,7 @@ class Study:
     system: dict = field(default_factory=dict)   # aqueous, organic, temperature_C (text/number)
     inputs: tuple[InputFile, ...] = ()
     warnings: tuple[Problem, ...] = ()            # located warnings found while reading
+    advice: AdviceRequest = field(default_factory=AdviceRequest)
 
     @property
     def used_runs(self) -> tuple[Run, ...]:
@@ -174,13 +187,14 @@ MASS_BALANCE_BAND_PCT = (90.0, 110.0)
 ONE_PHASE_HIGH_PCT = 110.0
 
 _KEYS = {
-    "": ("title", "analyte", "system", "runs", "sheet", "targets", "procedures"),
+    "": ("title", "analyte", "system", "runs", "sheet", "targets", "procedures", "advice"),
     "analyte": ("name", "model", "ion_pair", "level"),
     "system": ("aqueous", "organic", "temperature_C"),
     "targets": ("recovery_pct", "max_rsd_pct", "mass_balance_pct", "ratio_agreement_log",
                 "level"),
     "procedure": ("id", "label", "pH", "aqueous_mL", "organic_mL", "pH_tolerance",
                   "volume_tolerance_pct"),
+    "advice": ("target", "pH_range"),
 }
 
 #: Runs-table columns: normalised name -> the spelling used in messages and in this contract.
@@ -881,6 +895,51 @@ def _plausible(reader: _RowReader, row: TableRow, run, column: str, pct: float, 
 
 # -- the study -------------------------------------------------------------------------------------
 
+#: what ``advice.target`` may name besides a procedure id
+ADVICE_PARAMETERS = ("pKa", "pKa1", "pKa2", "logK")
+
+
+def _advice(doc: _Yaml, entries, procedures: list[Procedure]) -> AdviceRequest:
+    """``advice:``: the quantity whose interval the next runs should narrow, and the pH the
+    lab's buffers cover."""
+    if "advice" not in entries or _is_null(entries["advice"][1]):
+        return AdviceRequest()
+    node = entries["advice"][1]
+    a = doc.mapping(node, "advice", _KEYS["advice"], "advice")
+    if a is None:
+        return AdviceRequest()
+    ids = [p.id for p in procedures]
+    allowed = list(ADVICE_PARAMETERS) + ids
+    expected = "pKa, logK or a procedure id" + (f" ({', '.join(ids)})" if ids else "")
+    target = doc.text(a, node, "advice", "target", required=False, expected=expected)
+    if target is not None and target not in allowed:
+        doc.report(f"unknown advice target{_suggest(target, allowed)}", a["target"][1],
+                   "advice.target", found=target, expected=expected)
+        target = None
+    band = None
+    if "pH_range" in a and not _is_null(a["pH_range"][1]):
+        band = _ph_range(doc, a["pH_range"][1])
+    return AdviceRequest(target, band)
+
+
+def _ph_range(doc: _Yaml, node) -> tuple[float, float] | None:
+    key = "advice.pH_range"
+    expected = "two pH values [low, high] from 0 to 14 with low < high, e.g. [2, 10]"
+    if not isinstance(node, yaml.SequenceNode) or len(node.value) != 2:
+        doc.report("'pH_range' must be a pair of pH values", node, key,
+                   found=_node_kind(node) if not isinstance(node, yaml.SequenceNode)
+                   else f"a list of {len(node.value)}", expected=expected)
+        return None
+    lo, hi = (doc._number_node(n, key, "pH_range", _ph, expected) for n in node.value)
+    if lo is None or hi is None:
+        return None
+    if not lo < hi:
+        doc.report("'pH_range' must go from low to high", node, key, found=f"[{lo:g}, {hi:g}]",
+                   expected=expected)
+        return None
+    return lo, hi
+
+
 def check_study(path) -> tuple[Study | None, list[Problem]]:
     """Read and validate a study folder; never raises for bad input.
 
@@ -942,6 +1001,7 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
         targets = Targets(targets.recovery_pct, targets.max_rsd_pct, targets.mass_balance_pct,
                           targets.ratio_agreement_log, level)
     procedures = _procedures(doc, entries)
+    advice = _advice(doc, entries, procedures)
     sheet = doc.text(entries, root, "", "sheet", required=False,
                      expected="the name of the sheet holding the runs")
     runs_path = _runs_path(doc, entries, root, folder)
@@ -972,7 +1032,7 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
                         "runs"))
     warnings = tuple(p for p in problems if p.severity == "warning")
     study = Study(study_id, folder, title, name, model, tuple(runs), tuple(procedures),
-                  targets, ion_pair, system, inputs, warnings)
+                  targets, ion_pair, system, inputs, warnings, advice)
     return study, problems
 
 
