@@ -429,12 +429,15 @@ class _Simulator:
         new = self.cands.observations(idx)
         y_mean, _ = new.predict(fit.model.log_d(new.pH, fit.theta))
         widths = []
+        # new runs carry the error model's variance alone (no calibration share is known yet)
+        extra = (None if obs.extra_var is None
+                 else np.concatenate([obs.extra_var, np.zeros(len(idx))]))
         for z in self.z:
             y = y_mean + fit.residual_sd * new.sd_factor * z[:len(idx)]
             both = Observations(obs.run_ids + new.run_ids, np.concatenate([obs.pH, new.pH]),
                                 np.concatenate([obs.log_ratio, new.log_ratio]),
                                 obs.kind + new.kind, np.concatenate([obs.y, y]),
-                                tuple(obs.replicate_key) + new.replicate_key)
+                                tuple(obs.replicate_key) + new.replicate_key, extra)
             try:
                 refit = fit_model(both, fit.model, self.simple, intervals=False)
             except (FitImpossible, np.linalg.LinAlgError, ValueError):
