@@ -12,6 +12,7 @@ from functools import cached_property
 import numpy as np
 
 from . import __version__
+from .advice import NextRuns, advise
 from .fitting import (ERROR_MODEL, INTERVAL_METHOD, LOG_D, LOG_E, LOG_Q, WEIGHTING,
                       FitImpossible, FitResult, Observations, fit_model)
 from .models import MODELS, get_model
@@ -218,6 +219,11 @@ class StudyReport:
             out["without_flagged"] = side
         return out
 
+    @cached_property
+    def next_runs(self) -> NextRuns | None:
+        """Next-run advice: the runs that would most narrow the target's interval (advice.py)."""
+        return None if self.fit is None else advise(self.fit, self.study, self.predictions)
+
     @property
     def curve(self) -> dict | None:
         """The fitted log D(pH) with its 95 % band, as plain lists for the plots."""
@@ -308,6 +314,7 @@ class StudyReport:
                 "chosen": fit.model.name if fit else None,
                 "candidates": [vars(c) for c in self.candidates],
             }
+        out["next_runs"] = None if self.next_runs is None else self.next_runs.to_dict()
         out["run_table"] = self.run_rows()
         return out
 

@@ -1,4 +1,4 @@
-"""The ``extractval`` command line: check, fit, build, serve, new.
+"""The ``extractval`` command line: check, fit, advise, build, serve, new.
 
 Errors in the input are printed as located messages on stderr with exit status 1; no traceback
 reaches the user for bad input. Exit status 2 is a usage error.
@@ -29,9 +29,10 @@ def _discover(paths: list[str]) -> tuple[list[Path], list[Problem]]:
     return folders, problems
 
 
-def _print_problems(problems, stream=sys.stderr) -> None:
+def _print_problems(problems, stream=None) -> None:
+    # sys.stderr looked up at call time, not bound at import (a test or caller may swap it)
     for p in problems:
-        print(str(p), file=stream)
+        print(str(p), file=stream or sys.stderr)
 
 
 def cmd_check(args) -> int:
@@ -77,6 +78,30 @@ def cmd_fit(args) -> int:
     return status
 
 
+def cmd_advise(args) -> int:
+    from .batch import analyse_folder, map_ordered
+    from .report.next_runs import render_next_runs
+
+    folders, problems = _discover(args.paths)
+    _print_problems(problems)
+    status = 1 if problems else 0
+    for folder, (found, data) in zip(folders, map_ordered(analyse_folder, folders, args.jobs)):
+        if data is None:
+            _print_problems(found)
+            print(f"{folder.name}: no advice, the input has errors (see above)", file=sys.stderr)
+            status = 1
+            continue
+        if data["problems"]:
+            status = 1
+        if args.json:
+            line = {"study": data["study"], "next_runs": data["next_runs"]}
+            sys.stdout.write(json.dumps(line, allow_nan=False) + "\n")
+        else:
+            sys.stdout.write(render_next_runs(data) + "\n")
+        sys.stdout.flush()
+    return status
+
+
 def cmd_build(args) -> int:
     from .site import build_command
 
@@ -114,6 +139,15 @@ def make_parser() -> argparse.ArgumentParser:
     p.add_argument("--jobs", type=int, default=0,
                    help="worker processes (default: one per core)")
     p.set_defaults(func=cmd_fit)
+
+    p = sub.add_parser("advise", help="which runs to make next to narrow the key interval")
+    p.add_argument("paths", nargs="+", metavar="PATH",
+                   help="a study folder or a folder holding study folders")
+    p.add_argument("--json", action="store_true",
+                   help="print JSON Lines: the study id and its next_runs")
+    p.add_argument("--jobs", type=int, default=0,
+                   help="worker processes (default: one per core)")
+    p.set_defaults(func=cmd_advise)
 
     p = sub.add_parser("build", help="check, fit and build the dossier site")
     p.add_argument("--studies", default=None, help="folder of study folders (default studies/)")

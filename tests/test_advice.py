@@ -259,3 +259,51 @@ def test_bad_advice_block_is_a_located_error(tmp_path, block, message):
     assert len(errors) == 1
     assert message in errors[0].message
     assert errors[0].file.endswith("study.yaml") and errors[0].line == line
+
+
+# -- the command line and fit --json ------------------------------------------------------------
+def _weak_folder(root):
+    from extractval.simulate import write_study_folder
+    study = _study(WEAK_PH, WEAK_THETA, ratios=(1.0,), procedures=[PROC])
+    return write_study_folder(study, root / "ADV-1")
+
+
+def test_advise_prints_the_next_run_table(tmp_path, capsys):
+    from extractval.cli import main
+    folder = _weak_folder(tmp_path)
+    assert main(["advise", str(folder), "--jobs", "1"]) == 0
+    out = capsys.readouterr().out
+    assert out.startswith("== ADV-1: next runs")
+    assert "lower recovery bound of P1" in out and "too weakly determined" in out
+    rows = [ln.split() for ln in out.splitlines() if ln.strip()[:2] in ("1 ", "3 ", "6 ")]
+    assert [r[0] for r in rows] == ["1", "3", "6"]
+    assert "SDS" in out
+
+
+def test_advise_json_and_fit_json_carry_the_same_next_runs(tmp_path, capsys):
+    import json
+
+    from extractval.cli import main
+    folder = _weak_folder(tmp_path)
+    assert main(["advise", str(folder), "--json", "--jobs", "1"]) == 0
+    advised = json.loads(capsys.readouterr().out)
+    assert main(["fit", str(folder), "--json", "--jobs", "1"]) == 0
+    fitted = json.loads(capsys.readouterr().out)
+    assert advised["next_runs"] == fitted["next_runs"]
+    batches = fitted["next_runs"]["batches"]
+    assert [len(b["runs"]) for b in batches] == list(BATCH_SIZES)
+    for b in batches:
+        assert b["width_after"] < b["width_before"]
+        assert b["recovery_lower_pct_after"] >= b["recovery_lower_pct_before"]
+
+
+def test_advise_on_bad_input_gives_located_errors_and_no_traceback(tmp_path, capsys):
+    from extractval.cli import main
+    text = STUDY_YAML.format(runs="runs.csv") + "advice:\n  target: P7\n"
+    folder = write_study(tmp_path, yaml_text=text)
+    assert main(["advise", str(folder), "--jobs", "1"]) == 1
+    err = capsys.readouterr().err
+    assert "study.yaml" in err and "unknown advice target" in err and "P7" in err
+    assert "Traceback" not in err
+    assert main(["advise", str(tmp_path / "missing"), "--jobs", "1"]) == 1
+    assert "no such" in capsys.readouterr().err
