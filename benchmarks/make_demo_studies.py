@@ -281,6 +281,83 @@ def make_neutral() -> None:
     _write(OUT / sid / "study.yaml", NEUTRAL_YAML.encode("utf-8"))
 
 
+# -- HPA-2026-021/-022: amine product with an acidic impurity, two solvents --------------------
+
+#: truth of the work-up studies: the amine KRV-402 (a base) and its phenolic (weakly acidic)
+#: by-product KRV-402-A, in two solvents (invented values)
+WORKUP_TRUTH = {
+    "HPA-2026-021": {"solvent": "ethyl acetate, pre-saturated with buffer",
+                     "amine": (2.3, 9.1), "acid": (2.0, 8.0), "seed": 21_2026},
+    "HPA-2026-022": {"solvent": "toluene, pre-saturated with buffer",
+                     "amine": (1.8, 9.1), "acid": (1.2, 8.0), "seed": 22_2026},
+}
+
+WORKUP_YAML = """\
+title: Isolation of amine KRV-402 from its acidic by-product, {solvent_name} (demo data)
+analyte:
+  name: KRV-402
+  model: base
+system:
+  aqueous: 0.05 M citrate, phosphate and borate buffers, ionic strength 0.1 M
+  organic: {solvent}
+  temperature_C: 22
+runs: runs.csv
+targets:
+  recovery_pct: 90
+impurities:
+  - name: KRV-402-A
+    model: acid
+    amount_ratio: 0.05
+procedures:
+  - id: P1
+    label: Two 20 mL portions at pH 11.5, no wash
+    pH: 11.5
+    aqueous_mL: 40
+    organic_mL: [20, 20]
+  - id: P2
+    label: Extract at pH 11.5, wash at pH 11.5, back-extract into pH 3 water
+    steps:
+      - kind: extract
+        pH: 11.5
+        aqueous_mL: 40
+        organic_mL: [20, 20]
+      - kind: wash
+        pH: 11.5
+        aqueous_mL: [10]
+      - kind: back-extract
+        pH: 3.0
+        aqueous_mL: [20, 20]
+"""
+
+
+def make_workup(sid: str) -> None:
+    """Both phases of the amine and of the by-product in every run."""
+    t = WORKUP_TRUTH[sid]
+    rng = np.random.default_rng(t["seed"])
+    lines = ["run,pH,aqueous_mL,organic_mL,spiked,found_aqueous,found_organic,"
+             "spiked:KRV-402-A,found_aqueous:KRV-402-A,found_organic:KRV-402-A,replicate,note"]
+    k = 0
+    for nominal in (2.0, 3.5, 5.0, 6.5, 8.0, 9.5, 11.0, 12.0):
+        for v_org in ORGANIC_ML:
+            for _ in range(REPLICATES):
+                k += 1
+                pH = round(nominal + PH_SCATTER * rng.standard_normal(), 2)
+                d_a = 10.0 ** log_d("base", pH, *t["amine"])
+                d_i = 10.0 ** log_d("acid", pH, *t["acid"])
+                q_a = 1.0 / (1.0 + d_a * v_org / AQUEOUS_ML)
+                q_i = 1.0 / (1.0 + d_i * v_org / AQUEOUS_ML)
+                e = 1.0 + REL_ERROR * rng.standard_normal(4)
+                lines.append(",".join([
+                    f"W{sid[-2:]}-{k:02d}", f"{pH:.2f}", _sig(AQUEOUS_ML, 3), _sig(v_org, 3),
+                    "50.00", _sig(50.0 * q_a * e[0]), _sig(50.0 * (1 - q_a) * e[1]),
+                    "2.500", _sig(2.5 * q_i * e[2]), _sig(2.5 * (1 - q_i) * e[3]),
+                    f"pH{nominal:g}-{v_org / AQUEOUS_ML:g}", ""]))
+    _write(OUT / sid / "runs.csv", ("\n".join(lines) + "\n").encode("utf-8"))
+    name = t["solvent"].split(",")[0]
+    _write(OUT / sid / "study.yaml",
+           WORKUP_YAML.format(solvent=t["solvent"], solvent_name=name).encode("utf-8"))
+
+
 README = """\
 # Demo studies
 
@@ -293,6 +370,8 @@ of three invented intermediates. The numbers are simulated from a known model by
 | HPA-2026-014 | KRV-118 | base | 2.6 | 8.3 | `runs.csv`, `;` and decimal commas, UTF-8 BOM |
 | HPA-2026-015 | KRV-204 | acid | 2.1 | 4.6 | `runs.xlsx`, sheet `Runs`, recovery only |
 | HPA-2026-016 | KRV-311 | neutral | 0.9 | - | `runs.csv`, organic phase only |
+| HPA-2026-021 | KRV-402 in ethyl acetate, by-product KRV-402-A | base / acid | 2.3 / 2.0 | 9.1 / 8.0 | `runs.csv`, impurity columns, work-up steps |
+| HPA-2026-022 | KRV-402 in toluene, by-product KRV-402-A | base / acid | 1.8 / 1.2 | 9.1 / 8.0 | `runs.csv`, impurity columns, work-up steps |
 """
 
 
@@ -300,6 +379,8 @@ def main() -> None:
     make_base()
     make_acid()
     make_neutral()
+    for sid in WORKUP_TRUTH:
+        make_workup(sid)
     _write(OUT / "README.md", README.encode("utf-8"))
     print(f"demo studies written to {OUT}")
 

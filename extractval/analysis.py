@@ -224,6 +224,54 @@ class StudyReport:
         """Next-run advice: the runs that would most narrow the target's interval (advice.py)."""
         return None if self.fit is None else advise(self.fit, self.study, self.predictions)
 
+    @cached_property
+    def impurity_fits(self) -> tuple[dict, ...]:
+        """Each impurity: its fit (measured ones) or declared constants, as a work-up solute."""
+        return tuple(_impurity_fit(imp) for imp in self.study.impurities) if self.fit else ()
+
+    @cached_property
+    def selectivity(self) -> dict | None:
+        """Impurities, separation factors against pH and each procedure's work-up prediction."""
+        if self.fit is None or not (self.study.impurities
+                                    or any(p.steps for p in self.study.procedures)):
+            return None
+        from . import workup
+        analyte = workup.Solute.fitted(self.study.analyte_name or "analyte", self.fit)
+        solutes = [f["solute"] for f in self.impurity_fits if f["solute"] is not None]
+        lo, hi = float(self.fit.obs.pH.min()), float(self.fit.obs.pH.max())
+        curves = {}
+        for sol in solutes:
+            a, b = lo, hi
+            if sol.fit is not None:
+                a, b = max(a, float(sol.fit.obs.pH.min())), min(b, float(sol.fit.obs.pH.max()))
+            curves[sol.name] = (workup.separation_curve(analyte, sol, a, b) if a <= b else
+                                {"pH": [], "note": "the analyte's and the impurity's measured "
+                                                   "pH ranges do not overlap"})
+        target = self.study.targets.recovery_pct
+        procs = []
+        for p in self.study.procedures:
+            steps = p.steps or (workup.Step("extract", p.pH, (p.aqueous_mL,), p.organic_mL),)
+            pred = workup.predict_workup(analyte, solutes, steps)
+            entry = {"id": p.id, **pred.to_dict()}
+            spans = [(lo, hi)] + [(float(s.fit.obs.pH.min()), float(s.fit.obs.pH.max()))
+                                  for s in solutes if s.fit is not None]
+            outside = sorted({s.pH for s in steps for a, b in spans if not a <= s.pH <= b})
+            if outside:
+                entry["notes"].append(
+                    "extrapolated: step pH " + ", ".join(f"{x:g}" for x in outside)
+                    + " lies outside the measured runs")
+            if len(steps) > 1 and target is not None:
+                entry["best_pH_pair"] = workup.best_pH_pair(analyte, solutes, steps, target,
+                                                            (lo, hi))
+            procs.append(entry)
+        return {
+            "impurities": [{k: v for k, v in f.items() if k != "solute"}
+                           for f in self.impurity_fits],
+            "separation": curves,
+            "procedures": procs,
+            "method": workup.REGION_METHOD,
+        }
+
     @property
     def curve(self) -> dict | None:
         """The fitted log D(pH) with its 95 % band, as plain lists for the plots."""
@@ -308,6 +356,8 @@ class StudyReport:
                 measured_pH=(float(fit.obs.pH.min()), float(fit.obs.pH.max())))
             out.update(self.assessment["details"])
             out["outlier_screen"] = self.outlier_screen
+            if self.selectivity is not None:
+                out["selectivity"] = self.selectivity
         if self.candidates:
             out["model_selection"] = {
                 "criterion": "AICc",
@@ -317,6 +367,38 @@ class StudyReport:
         out["next_runs"] = None if self.next_runs is None else self.next_runs.to_dict()
         out["run_table"] = self.run_rows()
         return out
+
+
+def _impurity_fit(imp) -> dict:
+    """An impurity as a work-up solute: declared constants, or fitted from its own runs with
+    the same error model, weights and intervals as the analyte."""
+    from . import workup
+    out = {"name": imp.name, "model": imp.model, "amount_ratio": clean(imp.amount_ratio),
+           "source": imp.source, "declared": imp.declared, "parameters": {}, "runs": None,
+           "problem": None, "solute": None}
+    if imp.declared:
+        model = MODELS[imp.model]
+        out["parameters"] = {k: {"value": clean(v)} for k, v in zip(model.params, imp.theta)}
+        out["solute"] = workup.Solute(imp.name, model, np.asarray(imp.theta, dtype=float),
+                                      None, imp.source, imp.amount_ratio)
+        return out
+    obs, outcomes = build_observations(imp.runs)
+    out["runs"] = {k.replace(" ", "_"): sum(o.status == k for o in outcomes)
+                   for k in ("used", "excluded", "not usable")}
+    try:
+        if imp.model == "auto":
+            fit, _ = choose_model(None, obs)
+        else:
+            fit = fit_model(obs, MODELS[imp.model], MODELS.get(imp.model))
+    except FitImpossible as exc:
+        out["problem"] = str(exc)
+        return out
+    out["model"] = fit.model.name
+    out["parameters"] = {k: e.to_dict() for k, e in fit.parameters.items()}
+    out["residual_sd"] = clean(fit.residual_sd)
+    out["warnings"] = list(fit.warnings)
+    out["solute"] = workup.Solute.fitted(imp.name, fit, imp.amount_ratio)
+    return out
 
 
 def fit_study(study: Study) -> StudyReport:

@@ -93,9 +93,36 @@ class Run:
         return 100.0 * (self.found_aqueous + self.found_organic) / self.spiked
 
 
+STEP_KINDS = ("extract", "wash", "back-extract")
+
+
+@dataclass(frozen=True)
+class WorkupStep:
+    """One step of a multi-step work-up at one pH; volumes in mL.
+
+    ``extract``: ``aqueous_mL`` is the feed (one volume), ``organic_mL`` the fresh portions.
+    ``wash`` / ``back-extract``: ``aqueous_mL`` are fresh aqueous portions shaken in turn with
+    the pooled organic phase (``organic_mL`` empty); a back-extraction is the last step and
+    holds the product.
+    """
+
+    kind: str
+    pH: float
+    aqueous_mL: tuple[float, ...]
+    organic_mL: tuple[float, ...] = ()
+
+    def __post_init__(self):
+        if self.kind not in STEP_KINDS:
+            raise ValueError(f"step kind must be one of {STEP_KINDS}, got {self.kind!r}")
+
+
 @dataclass(frozen=True)
 class Procedure:
-    """A proposed extraction: one aqueous volume at one pH, then fresh organic portions in turn."""
+    """A proposed extraction: one aqueous volume at one pH, then fresh organic portions in turn.
+
+    With ``steps`` it is a multi-step work-up whose first step (the extraction) gives pH,
+    aqueous_mL and organic_mL.
+    """
 
     id: str
     label: str
@@ -105,6 +132,7 @@ class Procedure:
     pH_tolerance: float = 0.2
     volume_tolerance_pct: float = 2.0
     line: int | None = None
+    steps: tuple[WorkupStep, ...] = ()
 
     @property
     def total_organic_mL(self) -> float:
@@ -135,6 +163,25 @@ class AdviceRequest:
 
 
 @dataclass(frozen=True)
+class Impurity:
+    """An impurity followed through the work-ups: measured in its own runs-table columns
+    (``runs``, fitted like the analyte) or with declared constants (``theta`` of ``model``,
+    with their ``source``). ``amount_ratio``: its amount in the feed relative to the analyte."""
+
+    name: str
+    model: str
+    runs: tuple["Run", ...] = ()
+    theta: tuple[float, ...] | None = None
+    source: str | None = None
+    amount_ratio: float | None = None
+    line: int | None = None
+
+    @property
+    def declared(self) -> bool:
+        return self.theta is not None
+
+
+@dataclass(frozen=True)
 class InputFile:
     """An input file with its SHA-256, for provenance."""
 
@@ -160,6 +207,7 @@ class Study:
     inputs: tuple[InputFile, ...] = ()
     warnings: tuple[Problem, ...] = ()            # located warnings found while reading
     advice: AdviceRequest = field(default_factory=AdviceRequest)
+    impurities: tuple[Impurity, ...] = ()
 
     @property
     def used_runs(self) -> tuple[Run, ...]:
@@ -187,14 +235,17 @@ MASS_BALANCE_BAND_PCT = (90.0, 110.0)
 ONE_PHASE_HIGH_PCT = 110.0
 
 _KEYS = {
-    "": ("title", "analyte", "system", "runs", "sheet", "targets", "procedures", "advice"),
+    "": ("title", "analyte", "system", "runs", "sheet", "targets", "procedures", "advice",
+         "impurities"),
     "analyte": ("name", "model", "ion_pair", "level"),
     "system": ("aqueous", "organic", "temperature_C"),
     "targets": ("recovery_pct", "max_rsd_pct", "mass_balance_pct", "ratio_agreement_log",
                 "level"),
     "procedure": ("id", "label", "pH", "aqueous_mL", "organic_mL", "pH_tolerance",
-                  "volume_tolerance_pct"),
+                  "volume_tolerance_pct", "steps"),
     "advice": ("target", "pH_range"),
+    "step": ("kind", "pH", "aqueous_mL", "organic_mL"),
+    "impurity": ("name", "model", "logK", "pKa", "pKa1", "pKa2", "source", "amount_ratio"),
 }
 
 #: Runs-table columns: normalised name -> the spelling used in messages and in this contract.
@@ -608,10 +659,16 @@ def _procedures(doc: _Yaml, entries) -> list[Procedure]:
         elif pid is not None:
             seen[pid] = doc.line(p["id"][1])
         label = doc.text(p, item, key, "label", expected="a short description")
-        pH = doc.number(p, item, key, "pH", check=_ph, expected="a pH from 0 to 14")
-        aq = doc.number(p, item, key, "aqueous_mL", check=_positive,
-                        expected="the aqueous volume in mL, greater than 0")
-        org = _portions(doc, p, item, key)
+        steps: tuple[WorkupStep, ...] = ()
+        if "steps" in p and not _is_null(p["steps"][1]):
+            steps = _steps(doc, p, key)
+            pH, aq, org = ((steps[0].pH, steps[0].aqueous_mL[0], steps[0].organic_mL)
+                           if steps else (None, None, None))
+        else:
+            pH = doc.number(p, item, key, "pH", check=_ph, expected="a pH from 0 to 14")
+            aq = doc.number(p, item, key, "aqueous_mL", check=_positive,
+                            expected="the aqueous volume in mL, greater than 0")
+            org = _portions(doc, p, item, key)
         tol_pH = doc.number(p, item, key, "pH_tolerance", required=False, check=_non_negative,
                             expected="pH units, at least 0")
         tol_v = doc.number(p, item, key, "volume_tolerance_pct", required=False,
@@ -620,8 +677,224 @@ def _procedures(doc: _Yaml, entries) -> list[Procedure]:
         if after == before:
             out.append(Procedure(pid, label, pH, aq, org,
                                  0.2 if tol_pH is None else tol_pH,
-                                 2.0 if tol_v is None else tol_v, line=doc.line(item)))
+                                 2.0 if tol_v is None else tol_v, line=doc.line(item),
+                                 steps=steps))
     return out
+
+
+# -- multi-step work-ups and impurities ------------------------------------------------------------
+
+def workup_problem(steps) -> str | None:
+    """Why a sequence of steps is not a work-up the engine can follow, or None if it is."""
+    if not steps:
+        return "a work-up needs at least one step"
+    if steps[0].kind != "extract":
+        return f"the first step must be 'extract', found {steps[0].kind!r}"
+    if any(s.kind == "extract" for s in steps[1:]):
+        return "only the first step can be 'extract' (the organic phase is then carried on)"
+    backs = [i for i, s in enumerate(steps) if s.kind == "back-extract"]
+    if backs and backs != [len(steps) - 1]:
+        return "'back-extract' can only be the last step (the product is then in the water)"
+    first = steps[0]
+    if len(first.aqueous_mL) != 1 or not first.organic_mL:
+        return "'extract' needs one aqueous (feed) volume and at least one organic portion"
+    for s in steps[1:]:
+        if not s.aqueous_mL or s.organic_mL:
+            return f"'{s.kind}' needs fresh aqueous portions and no organic volume of its own"
+    if any(v <= 0 for s in steps for v in (*s.aqueous_mL, *s.organic_mL)):
+        return "every volume must be positive"
+    return None
+
+
+_STEPS_EXPECTED = ("a list of steps, e.g. [{kind: extract, pH: 11, aqueous_mL: 50, organic_mL: "
+                   "[25, 25]}, {kind: back-extract, pH: 2, aqueous_mL: [30]}]")
+
+
+def _volumes(doc: _Yaml, s, node, key: str, name: str, required: bool) -> tuple[float, ...]:
+    """One volume or a list of volumes (mL, each above 0); () when absent or wrong."""
+    path = f"{key}.{name}"
+    expected = "a volume in mL above 0, or a list of them, e.g. [20, 20]"
+    v_node = doc.value_node(s, node, key, name, required, expected)
+    if v_node is None:
+        return ()
+    items = v_node.value if isinstance(v_node, yaml.SequenceNode) else [v_node]
+    if isinstance(v_node, yaml.MappingNode) or not items:
+        doc.report(f"'{name}' must be a volume or a list of volumes", v_node, path,
+                   found=_node_kind(v_node) if items else "[]", expected=expected)
+        return ()
+    vols = [doc._number_node(n, path, name, _positive, expected) for n in items]
+    return () if any(v is None for v in vols) else tuple(vols)
+
+
+def _steps(doc: _Yaml, p, key: str) -> tuple[WorkupStep, ...]:
+    """``steps:`` of a procedure: extract, then washes, then at most one back-extraction."""
+    node = p["steps"][1]
+    path = f"{key}.steps"
+    for name in ("pH", "aqueous_mL", "organic_mL"):
+        if name in p:
+            doc.report(f"'{name}' is given on a procedure that has steps", p[name][0],
+                       f"{key}.{name}", found=name,
+                       expected="pH and volumes inside the steps only (the first step, the "
+                                "extraction, gives them)")
+    if not isinstance(node, yaml.SequenceNode) or not node.value:
+        doc.report("'steps' must be a list of steps", node, path, found=_node_kind(node),
+                   expected=_STEPS_EXPECTED)
+        return ()
+    before = _n_errors(doc.problems)
+    out = []
+    for i, item in enumerate(node.value, start=1):
+        k = f"{path}[{i}]"
+        s = doc.mapping(item, k, _KEYS["step"], f"step {i}")
+        if s is None:
+            continue
+        kind = doc.text(s, item, k, "kind", expected="extract, wash or back-extract")
+        if kind is not None and kind not in STEP_KINDS:
+            doc.report(f"unknown step kind{_suggest(kind, STEP_KINDS)}", s["kind"][1],
+                       f"{k}.kind", found=kind, expected="extract, wash or back-extract")
+            kind = None
+        pH = doc.number(s, item, k, "pH", check=_ph, expected="a pH from 0 to 14")
+        aq = _volumes(doc, s, item, k, "aqueous_mL", True)
+        org = _volumes(doc, s, item, k, "organic_mL", kind == "extract")
+        if kind is not None and pH is not None and aq:
+            out.append(WorkupStep(kind, pH, aq, org))
+    if _n_errors(doc.problems) > before:
+        return ()
+    why = workup_problem(out)
+    if why:
+        doc.report(f"these steps are not a work-up: {why}", node, path,
+                   found=", ".join(s.kind for s in out), expected=_STEPS_EXPECTED)
+        return ()
+    return tuple(out)
+
+
+#: the measurement columns an impurity may have, suffixed ':<impurity name>' in the runs table
+IMPURITY_COLUMNS = ("spiked", "found_aqueous", "found_organic", "recovery_pct")
+_IMPURITY_PARAMS = {"neutral": ("logK",), "acid": ("logK", "pKa"), "base": ("logK", "pKa"),
+                    "ampholyte": ("logK", "pKa1", "pKa2")}
+
+
+def _impurities(doc: _Yaml, entries) -> list[tuple[str, str, tuple | None, str | None,
+                                                   float | None, int]]:
+    """``impurities:`` entries as (name, model, declared theta or None, source, ratio, line)."""
+    if "impurities" not in entries or _is_null(entries["impurities"][1]):
+        return []
+    node = entries["impurities"][1]
+    if not isinstance(node, yaml.SequenceNode):
+        doc.report("'impurities' must be a list", node, "impurities", found=_node_kind(node),
+                   expected="a list of '- name: ...' entries")
+        return []
+    out, seen = [], set()
+    for i, item in enumerate(node.value, start=1):
+        key = f"impurities[{i}]"
+        m = doc.mapping(item, key, _KEYS["impurity"], f"impurity {i}")
+        if m is None:
+            continue
+        name = doc.text(m, item, key, "name", expected="the impurity's name (letters, digits, "
+                                                        "'.', '-', '_'), used in column names")
+        if name is not None and not PROCEDURE_ID.match(name):
+            doc.report("an impurity name may hold only letters, digits, '.', '-' and '_' (it "
+                       "becomes part of column names and number identifiers)", m["name"][1],
+                       f"{key}.name", found=name, expected="e.g. acid-impurity")
+            name = None
+        elif name is not None and name.lower() in seen:
+            doc.report("duplicate impurity name", m["name"][1], f"{key}.name", found=name,
+                       expected="a unique name per impurity")
+            name = None
+        model = doc.text(m, item, key, "model", expected="one of " + ", ".join(MODELS))
+        if model is not None and model not in MODELS:
+            doc.report(f"unknown model{_suggest(model, MODELS)}", m["model"][1],
+                       f"{key}.model", found=model, expected="one of " + ", ".join(MODELS))
+            model = None
+        given = [k for k in ("logK", "pKa", "pKa1", "pKa2") if k in m]
+        theta = None
+        if given and model is not None:
+            need = _IMPURITY_PARAMS.get(model)
+            if need is None or set(given) != set(need):
+                doc.report("declared constants do not match the model", m[given[0]][0],
+                           f"{key}.{given[0]}", found=", ".join(given) + f" for {model}",
+                           expected=", ".join(need) if need else
+                           "a model other than auto for declared constants")
+            else:
+                vals = [doc.number(m, item, key, k, expected="a number") for k in need]
+                theta = tuple(vals) if all(v is not None for v in vals) else None
+        source = doc.text(m, item, key, "source", required=bool(given),
+                          expected="where the declared constants come from (handbook, paper)")
+        ratio = doc.number(m, item, key, "amount_ratio", required=False, check=_non_negative,
+                           expected="the impurity's amount in the feed relative to the "
+                                    "analyte's, e.g. 0.05")
+        if name is not None and model is not None:
+            seen.add(name.lower())
+            out.append((name, model, theta, source, ratio, doc.line(item)))
+    return out
+
+
+def _impurity_records(doc: _Yaml, specs, table: Table | None, runs: list[Run],
+                      problems: list[Problem]) -> list[Impurity]:
+    """Impurity records from their ``impurities:`` entries and their runs-table columns."""
+    if not specs:
+        return []
+    cols = _impurity_columns(table, {x[0].lower() for x in specs}) if table is not None else {}
+    out = []
+    for name, model, theta, source, ratio, line in specs:
+        mine = cols.get(name.lower(), {})
+        where = dict(file=doc.file, line=line, key="impurities")
+        if theta is not None and mine:
+            problems.append(Problem(f"impurity {name!r} has declared constants and measured "
+                                    "columns", **where, found=", ".join(
+                                        table.header(c) for c in mine.values()),
+                                    expected="either declared constants (logK, pKa, source) "
+                                             "or measured columns, not both"))
+            continue
+        if theta is not None:
+            out.append(Impurity(name, model, (), theta, source, ratio, line))
+            continue
+        if not mine:
+            problems.append(Problem(f"impurity {name!r} has neither declared constants nor "
+                                    "measured columns", **where,
+                                    expected=f"logK (and pKa) with a source, or runs-table "
+                                             f"columns such as found_organic:{name} or "
+                                             f"recovery_pct:{name}"))
+            continue
+        imp_runs = _impurity_runs(table, runs, mine, problems)
+        out.append(Impurity(name, model, imp_runs, None, source, ratio, line))
+    return out
+
+
+def _impurity_columns(table: Table, names) -> dict[str, dict[str, str]]:
+    """{impurity (lower case): {base column: suffixed column}} present in the table."""
+    out: dict[str, dict[str, str]] = {}
+    for c in table.columns:
+        base, sep, imp = c.partition(":")
+        if sep and base in IMPURITY_COLUMNS and imp.strip() in names:
+            out.setdefault(imp.strip(), {})[base] = c
+    return out
+
+
+def _impurity_runs(table: Table, runs: list[Run], cols: dict[str, str],
+                   problems: list[Problem]) -> tuple[Run, ...]:
+    """The impurity's runs: the analyte runs' pH and volumes with the impurity's own cells,
+    read under the same one-complete-form rule and plausibility limits as the analyte's."""
+    headers = {base: table.header(col) for base, col in cols.items()}
+    view = Table(table.file, tuple(cols), (), table.header_location, headers, table.kind,
+                 table.separator, table.decimal_comma, table.sheet, table.sha256)
+    reader = _RowReader(view, problems)
+    by_location = {r.location: r for r in runs}
+    out = []
+    for row in table.rows:
+        run = by_location.get(row.location)
+        if run is None:
+            continue
+        cells = {base: row.cells.get(col) for base, col in cols.items()}
+        text = {base: row.raw(col) for base, col in cols.items()}
+        if not any(text.values()):
+            continue        # the impurity was not measured in this run
+        sub = TableRow(cells, row.location, text)
+        amounts = _measurement(reader, sub, run.run_id, run.excluded, True)
+        if amounts is not None:
+            out.append(Run(run.run_id, run.pH, run.aqueous_mL, run.organic_mL, run.location,
+                           **amounts, replicate=run.replicate, excluded=run.excluded,
+                           note=run.note))
+    return tuple(out)
 
 
 def _portions(doc: _Yaml, p, item, key: str) -> tuple[float, ...] | None:
@@ -687,8 +960,9 @@ class _RowReader:
         return value
 
 
-def _check_header(table: Table, problems: list[Problem]) -> bool:
-    """Missing and unknown columns; True when the table has a measurement form."""
+def _check_header(table: Table, problems: list[Problem], known=frozenset()) -> bool:
+    """Missing and unknown columns; True when the table has a measurement form. ``known``:
+    further columns the study declares (an impurity's measurement columns)."""
     where = table.header_location.where()
     present = ", ".join(table.header(c) for c in table.columns)
     for c in REQUIRED_COLUMNS:
@@ -707,7 +981,7 @@ def _check_header(table: Table, problems: list[Problem]) -> bool:
                                 expected="spiked with found_aqueous and/or found_organic, or "
                                          "recovery_pct"))
     for c in table.columns:
-        if c in COLUMNS:
+        if c in COLUMNS or c in known:
             continue
         close = difflib.get_close_matches(c, list(COLUMNS), n=1, cutoff=0.8)
         if close:
@@ -1002,6 +1276,7 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
                           targets.ratio_agreement_log, level)
     procedures = _procedures(doc, entries)
     advice = _advice(doc, entries, procedures)
+    impurity_specs = _impurities(doc, entries)
     sheet = doc.text(entries, root, "", "sheet", required=False,
                      expected="the name of the sheet holding the runs")
     runs_path = _runs_path(doc, entries, root, folder)
@@ -1017,13 +1292,17 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
                 problems.append(Problem("the runs table has a header but no runs",
                                         **table.header_location.where(),
                                         expected="one row per run below the header"))
-            forms = _check_header(table, problems)
+            imp_cols = _impurity_columns(table, {x[0].lower() for x in impurity_specs})
+            forms = _check_header(table, problems,
+                                  frozenset(c for m in imp_cols.values() for c in m.values()))
             runs = _runs(table, problems, forms)
             if runs and not any(not r.excluded for r in runs) and not _n_errors(problems):
                 problems.append(Problem("every run is excluded: nothing is left to fit",
                                         file=table.file, severity="warning",
                                         expected="at least one run without an exclusion"))
 
+    impurities = _impurity_records(doc, impurity_specs, table if runs_path else None,
+                                   runs, problems)
     problems = _in_file_order(problems)
     if _n_errors(problems):
         return None, problems
@@ -1032,7 +1311,7 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
                         "runs"))
     warnings = tuple(p for p in problems if p.severity == "warning")
     study = Study(study_id, folder, title, name, model, tuple(runs), tuple(procedures),
-                  targets, ion_pair, system, inputs, warnings, advice)
+                  targets, ion_pair, system, inputs, warnings, advice, tuple(impurities))
     return study, problems
 
 

@@ -45,8 +45,8 @@ from . import chemistry as chem
 from .fitting import FitResult
 from .models import LogDModel
 from .results import Interval, clean
+from .study import WorkupStep, workup_problem
 
-STEP_KINDS = ("extract", "wash", "back-extract")
 #: pH grid spacing of separation-factor curves and of the pH-pair search, pH units
 PH_STEP = 0.25
 REGION_METHOD = "range over the joint 95 % confidence region (profile-likelihood threshold)"
@@ -54,51 +54,14 @@ PRODUCT_METHOD = ("range over the product of the solutes' confidence regions, ea
                   "0.95^(1/k) for k fitted solutes (Sidak; at least 95 % jointly, conservative)")
 
 
-# -- the steps ----------------------------------------------------------------------------------
-@dataclass(frozen=True)
-class Step:
-    """One step of a work-up at one pH; volumes in mL.
-
-    ``extract``: ``aqueous_mL`` is the feed (one volume), ``organic_mL`` the fresh portions.
-    ``wash`` / ``back-extract``: ``aqueous_mL`` are the fresh aqueous portions; the organic
-    phase is the pooled one from the extraction (``organic_mL`` is empty).
-    """
-
-    kind: str
-    pH: float
-    aqueous_mL: tuple[float, ...]
-    organic_mL: tuple[float, ...] = ()
-
-    def __post_init__(self):
-        if self.kind not in STEP_KINDS:
-            raise ValueError(f"step kind must be one of {STEP_KINDS}, got {self.kind!r}")
-
-    def to_dict(self) -> dict:
-        return {"kind": self.kind, "pH": clean(self.pH),
-                "aqueous_mL": [clean(v) for v in self.aqueous_mL],
-                "organic_mL": [clean(v) for v in self.organic_mL]}
+# -- the steps (records and their check live with the study's other records) -----------------
+Step = WorkupStep
+check_steps = workup_problem
 
 
-def check_steps(steps: Sequence[Step]) -> str | None:
-    """Why a sequence of steps is not a work-up this module can follow, or None if it is."""
-    if not steps:
-        return "a work-up needs at least one step"
-    if steps[0].kind != "extract":
-        return f"the first step must be 'extract', found {steps[0].kind!r}"
-    if any(s.kind == "extract" for s in steps[1:]):
-        return "only the first step can be 'extract' (the organic phase is then carried on)"
-    backs = [i for i, s in enumerate(steps) if s.kind == "back-extract"]
-    if backs and backs != [len(steps) - 1]:
-        return "'back-extract' can only be the last step (the product is then in the water)"
-    first = steps[0]
-    if len(first.aqueous_mL) != 1 or not first.organic_mL:
-        return "'extract' needs one aqueous (feed) volume and at least one organic portion"
-    for s in steps[1:]:
-        if not s.aqueous_mL or s.organic_mL:
-            return f"'{s.kind}' needs fresh aqueous portions and no organic volume of its own"
-    if any(v <= 0 for s in steps for v in (*s.aqueous_mL, *s.organic_mL)):
-        return "every volume must be positive"
-    return None
+def step_dict(s: Step) -> dict:
+    return {"kind": s.kind, "pH": clean(s.pH), "aqueous_mL": [clean(v) for v in s.aqueous_mL],
+            "organic_mL": [clean(v) for v in s.organic_mL]}
 
 
 def _log10_one_minus_pow10(x):
@@ -305,6 +268,12 @@ def _level(solutes: Sequence[Solute]) -> float:
     return 0.95 ** (1.0 / max(1, sum(s.fit is not None for s in solutes)))
 
 
+def pH_grid(lo: float, hi: float, step: float = PH_STEP) -> np.ndarray:
+    """Multiples of ``step`` from ``lo`` to ``hi`` (both inside), e.g. 2.0, 2.25, ..."""
+    return np.round(np.arange(np.ceil(lo / step - 1e-9), np.floor(hi / step + 1e-9) + 1)
+                    * step, 6)
+
+
 def log_separation_factor(analyte: Solute, impurity: Solute, pH: float) -> Quantity:
     """log10 beta = log10 D_analyte - log10 D_impurity at one pH, with its interval."""
     pair = _Pair([analyte, impurity], _level([analyte, impurity]))
@@ -317,7 +286,7 @@ def log_separation_factor(analyte: Solute, impurity: Solute, pH: float) -> Quant
 def separation_curve(analyte: Solute, impurity: Solute, pH_lo: float, pH_hi: float,
                      step: float = PH_STEP) -> dict:
     """log10 beta against pH on a grid, with the interval at each point."""
-    grid = np.round(np.arange(pH_lo, pH_hi + step / 2, step), 6)
+    grid = pH_grid(pH_lo, pH_hi, step)
     rows = [log_separation_factor(analyte, impurity, float(x)) for x in grid]
     return {"pH": [clean(x) for x in grid],
             "log_beta": [clean(q.value, 6) for q in rows],
@@ -333,17 +302,31 @@ class WorkupPrediction:
     steps: tuple[Step, ...]
     recovery_pct: Quantity
     carry_over_pct: dict[str, Quantity]
-    purity_pct: Quantity | None
+    impurity_content_pct: Quantity | None    # impurities' share of the product; purity = 100 - it
     log_beta: dict[str, list[Quantity]]     # impurity -> log10 beta at each step's pH
     notes: tuple[str, ...] = ()
 
+    @property
+    def purity_pct(self) -> dict | None:
+        """Purity, 100 minus the impurity content (the same interval, ends swapped)."""
+        c = self.impurity_content_pct
+        if c is None:
+            return None
+        lo, hi = c.ci95.lo, c.ci95.hi
+        return {"value": clean(100.0 - c.value),
+                "ci95": [clean(None if hi is None else 100.0 - hi),
+                         clean(None if lo is None else 100.0 - lo)],
+                "ci95_method": c.ci95.method}
+
     def to_dict(self) -> dict:
         return {
-            "steps": [s.to_dict() for s in self.steps],
+            "steps": [step_dict(s) for s in self.steps],
             "product_phase": product_phase(self.steps),
             "recovery_pct": self.recovery_pct.to_dict(),
             "carry_over_pct": {k: v.to_dict() for k, v in self.carry_over_pct.items()},
-            "purity_pct": None if self.purity_pct is None else self.purity_pct.to_dict(),
+            "impurity_content_pct": (None if self.impurity_content_pct is None
+                                     else self.impurity_content_pct.to_dict()),
+            "purity_pct": self.purity_pct,
             "log_separation_factor": {k: [dict(step=i + 1, **q.to_dict())
                                           for i, q in enumerate(v)]
                                       for k, v in self.log_beta.items()},
@@ -355,10 +338,15 @@ def _pct(log_f) -> float:
     return float(100.0 * 10.0 ** log_f)
 
 
-def _log_purity(log_fa: float, log_fi: Sequence[float], ratios: Sequence[float]) -> float:
-    """log10 of purity, analyte / (analyte + sum of impurities), from log fractions."""
-    terms = [log_fa] + [lf + np.log10(r) for lf, r in zip(log_fi, ratios) if r > 0]
-    return float(log_fa - np.logaddexp.reduce(np.array(terms) * chem.LN10) / chem.LN10)
+def _log_impurity_content(log_fa: float, log_fi: Sequence[float],
+                          ratios: Sequence[float]) -> float:
+    """log10 of the impurities' share of the product, sum r_i f_i / (f_a + sum r_i f_i), from
+    log fractions (exact where the purity itself would round to 100 %)."""
+    imp = [lf + np.log10(r) for lf, r in zip(log_fi, ratios) if r > 0]
+    if not imp:
+        return -np.inf
+    log_imp = np.logaddexp.reduce(np.array(imp) * chem.LN10) / chem.LN10
+    return float(log_imp - np.logaddexp(log_fa * chem.LN10, log_imp * chem.LN10) / chem.LN10)
 
 
 def predict_workup(analyte: Solute, impurities: Sequence[Solute],
@@ -379,7 +367,7 @@ def predict_workup(analyte: Solute, impurities: Sequence[Solute],
     for imp in impurities:
         carry[imp.name] = _Pair([imp], 0.95).quantity(lambda th, imp=imp: _pct(frac(imp, th[0])))
         betas[imp.name] = [log_separation_factor(analyte, imp, float(p)) for p in pHs]
-    purity, notes = None, []
+    content, notes = None, []
     with_ratio = [imp for imp in impurities if imp.amount_ratio is not None]
     if impurities and len(with_ratio) == len(impurities):
         all_sol = [analyte, *impurities]
@@ -389,12 +377,12 @@ def predict_workup(analyte: Solute, impurities: Sequence[Solute],
         def g(th):
             fa = frac(analyte, th[0])
             fi = [frac(imp, t) for imp, t in zip(impurities, th[1:])]
-            return 100.0 * 10.0 ** _log_purity(fa, fi, ratios)
-        purity = pair.quantity(g)
+            return 100.0 * 10.0 ** _log_impurity_content(fa, fi, ratios)
+        content = pair.quantity(g)
     elif impurities:
         missing = ", ".join(imp.name for imp in impurities if imp.amount_ratio is None)
         notes.append(f"purity not computed: no amount in the feed is given for {missing}")
-    return WorkupPrediction(steps, recovery, carry, purity, betas, tuple(notes))
+    return WorkupPrediction(steps, recovery, carry, content, betas, tuple(notes))
 
 
 # -- the pH pair that maximises purity ----------------------------------------------------------
@@ -415,9 +403,8 @@ def best_pH_pair(analyte: Solute, impurities: Sequence[Solute], steps: Sequence[
     if any(imp.amount_ratio is None for imp in impurities) or not impurities:
         return {"pair": None, "note": "needs impurities with their amounts in the feed",
                 "map": None}
-    grid = np.round(np.arange(pH_span[0], pH_span[1] + step / 2, step), 6)
+    grid = pH_grid(pH_span[0], pH_span[1], step)
     last = len(steps) - 1
-    ratios = [imp.amount_ratio for imp in impurities]
 
     def with_pHs(a: float, c: float) -> tuple[Step, ...]:
         out = list(steps)
@@ -425,28 +412,39 @@ def best_pH_pair(analyte: Solute, impurities: Sequence[Solute], steps: Sequence[
         out[last] = Step(steps[last].kind, c, steps[last].aqueous_mL, steps[last].organic_mL)
         return tuple(out)
 
-    n = grid.size
-    purity = np.full((n, n), np.nan)
-    rec_lo = np.full((n, n), np.nan)
-    fit = analyte.fit
-    t = fit.t95 if fit is not None else 0.0
-    for i, a in enumerate(grid):
-        for j, c in enumerate(grid):
-            s = with_pHs(float(a), float(c))
-            pHs = np.array([x.pH for x in s])
+    # every (extraction pH, last-step pH) cell at once: log D of each solute at each step
+    pHs = np.broadcast_to(np.array([x.pH for x in steps]), (grid.size, grid.size, len(steps)))
+    pHs = pHs.copy()
+    pHs[..., 0] = grid[:, None]
+    pHs[..., last] = grid[None, :]
 
-            def la(th, s=s, pHs=pHs):
-                return float(log_fraction_to_product(analyte.log_d(pHs, th), s))
-            fa = la(analyte.theta)
-            fi = [float(log_fraction_to_product(imp.log_d(pHs), s)) for imp in impurities]
-            purity[i, j] = 100.0 * 10.0 ** _log_purity(fa, fi, ratios)
-            if fit is not None:
-                gr = _num_grad(la, analyte.theta)
-                se = float(np.sqrt(max(gr @ fit.covariance @ gr, 0.0)))
-                rec_lo[i, j] = _pct(min(fa - t * se, 0.0))
-            else:
-                rec_lo[i, j] = _pct(fa)
-    order = np.argsort(-np.where(rec_lo >= target_recovery_pct, purity, -np.inf), axis=None)
+    def log_frac(sol: Solute, th=None) -> np.ndarray:
+        log_d = sol.log_d(pHs.ravel(), th).reshape(pHs.shape)
+        return log_fraction_to_product(log_d, steps)
+
+    fa = log_frac(analyte)
+    fi = np.stack([log_frac(imp) + np.log10(imp.amount_ratio) for imp in impurities
+                   if imp.amount_ratio > 0] or [np.full_like(fa, -np.inf)])
+    log_imp = np.logaddexp.reduce(fi * chem.LN10, axis=0) / chem.LN10
+    log_all = np.logaddexp(fa * chem.LN10, log_imp * chem.LN10) / chem.LN10
+    log_content = log_imp - log_all           # log10 of the impurities' share of the product
+    purity = 100.0 * (1.0 - 10.0 ** log_content)
+    fit = analyte.fit
+    if fit is not None:
+        # delta-method sd of log10 of the fraction recovered, by central differences in theta
+        h = 1e-6 * np.maximum(1.0, np.abs(analyte.theta))
+        grads = []
+        for k in range(analyte.theta.size):
+            e = np.zeros_like(analyte.theta)
+            e[k] = h[k]
+            grads.append((log_frac(analyte, analyte.theta + e)
+                          - log_frac(analyte, analyte.theta - e)) / (2 * h[k]))
+        g = np.stack(grads, axis=-1)
+        se = np.sqrt(np.clip(np.einsum("...i,ij,...j->...", g, fit.covariance, g), 0, None))
+        rec_lo = 100.0 * 10.0 ** np.minimum(fa - fit.t95 * se, 0.0)
+    else:
+        rec_lo = 100.0 * 10.0 ** fa
+    order = np.argsort(np.where(rec_lo >= target_recovery_pct, log_content, np.inf), axis=None)
     chosen, note = None, "no pH pair on the grid meets the recovery target at the lower end"
     for flat in order[:10]:
         i, j = np.unravel_index(flat, purity.shape)
@@ -463,4 +461,6 @@ def best_pH_pair(analyte: Solute, impurities: Sequence[Solute], steps: Sequence[
     return {"pair": chosen, "note": note, "target_recovery_pct": clean(target_recovery_pct),
             "map": {"pH": [clean(x) for x in grid], "last_step": steps[last].kind,
                     "purity_pct": [[clean(v, 6) for v in row] for row in purity],
+                    "log10_impurity_content": [[clean(v, 6) for v in row]
+                                               for row in log_content],
                     "recovery_lower_pct": [[clean(v, 6) for v in row] for row in rec_lo]}}

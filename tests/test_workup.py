@@ -67,7 +67,8 @@ def test_extract_wash_back_extract_by_hand():
     fi2 = 1 / 3 * 2 / 3
     assert pred.recovery_pct.value == pytest.approx(100 * fa2, rel=1e-6)
     assert pred.carry_over_pct["impurity"].value == pytest.approx(100 * fi2, rel=1e-12)
-    assert pred.purity_pct.value == pytest.approx(100 * fa2 / (fa2 + fi2), rel=1e-6)
+    assert pred.purity_pct["value"] == pytest.approx(100 * fa2 / (fa2 + fi2), rel=1e-6)
+    assert pred.impurity_content_pct.value == pytest.approx(100 * fi2 / (fa2 + fi2), rel=1e-6)
     # separation factor at the extraction pH: 10 / 1
     assert pred.log_beta["impurity"][0].value == pytest.approx(1.0, abs=1e-6)
 
@@ -146,11 +147,13 @@ def test_best_pair_puts_an_amine_and_an_acid_apart():
     assert pair["extract_pH"] >= 10.0 and pair["last_step_pH"] <= 6.0
     assert pair["prediction"]["recovery_pct"]["ci95"][0] >= 95.0
     grid = out["map"]
-    pur = np.array(grid["purity_pct"], dtype=float)
+    content = np.array(grid["log10_impurity_content"], dtype=float)
     lo = np.array(grid["recovery_lower_pct"], dtype=float)
     i = grid["pH"].index(pair["extract_pH"])
     j = grid["pH"].index(pair["last_step_pH"])
-    assert pur[i, j] == pytest.approx(np.nanmax(np.where(lo >= 95.0, pur, np.nan)), rel=1e-9)
+    assert content[i, j] == pytest.approx(np.nanmin(np.where(lo >= 95.0, content, np.nan)),
+                                          abs=1e-9)
     # and the purity beats a single extraction at the same pH (no back-extraction)
     single = predict_workup(amine, [acid], [steps[0]])
-    assert pair["prediction"]["purity_pct"]["value"] > single.purity_pct.value
+    assert (pair["prediction"]["impurity_content_pct"]["value"]
+            < single.impurity_content_pct.value)
