@@ -92,8 +92,9 @@ def test_declared_impurity_and_selectivity_in_the_dict(tmp_path):
     co = p2["carry_over_pct"]["benzoic-acid"]
     assert co["ci95"] == [co["value"], co["value"]]
     assert "benzoic-acid" in sel["separation"]
-    # one step at pH 7 is inside the runs (7-10), every step is: no extrapolation note
-    assert not any("extrapolated" in n for n in p2["notes"])
+    # the runs span pH 7-9: the extraction at pH 10 is named as extrapolated, the others not
+    note, = [n for n in p2["notes"] if "extrapolated" in n]
+    assert "pH 10 " in note and "9" not in note.split("pH 10")[1].split("lies")[0]
 
 
 def test_fitted_impurity_gets_its_own_parameters(tmp_path):
