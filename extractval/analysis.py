@@ -6,7 +6,7 @@ the dossier all render :meth:`StudyReport.to_dict`.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import cached_property
 
 import numpy as np
@@ -89,10 +89,12 @@ def build_observations(runs) -> tuple[Observations, tuple[RunOutcome, ...]]:
             continue
         got = _observation(run)
         if isinstance(got, str):
-            outcomes.append(RunOutcome(run, "not usable", got))
+            # a run whose responses fell outside the calibration says so, not "nothing found"
+            censored = run.censored if run.censored and run.measurement == "none" else None
+            outcomes.append(RunOutcome(run, "not usable", censored or got))
             continue
         kind, y = got
-        note = None
+        note = run.censored     # one phase outside the calibration: fitted from the other
         if run.measurement == "both" and kind != LOG_D:
             phase = "aqueous" if kind == LOG_E else "organic"
             note = (f"nothing found in the {phase} phase: fitted as a one-phase measurement "
@@ -170,6 +172,7 @@ class StudyReport:
     candidates: tuple[Candidate, ...] = ()
     problems: tuple[str, ...] = ()          # why there is no fit, when fit is None
     warnings: list[str] = field(default_factory=list)
+    calibration_uncertainty: dict | None = None   # negligible or in the weights (fit_study)
 
     @cached_property
     def band(self) -> LogDBand | None:
@@ -191,6 +194,7 @@ class StudyReport:
             return {"study": [], "procedures": [], "details": {}, "status": "not assessed"}
         targets = self.study.targets
         study_v, details = study_verdicts(self.fit, self.outcomes, targets)
+        study_v = study_v + calibration_verdicts(self.study)
         proc_v = [procedure_verdicts(p, d, targets)
                   for p, d in zip(self.predictions, self.designs)]
         status = overall_status(study_v + [v for vs in proc_v for v in vs])
@@ -303,6 +307,8 @@ class StudyReport:
                     row["residual"] = clean(self.fit.weighted_residuals[i])
                     row["studentized_residual"] = clean(self.fit.studentized_residuals[i])
                 row["fitted_log_d"] = clean(float(self.fit.log_d(r.pH)))
+            if self.study.calibration is not None:
+                row.update(calibration_run_fields(r))
             rows.append(row)
         return rows
 
@@ -365,8 +371,24 @@ class StudyReport:
                 "candidates": [vars(c) for c in self.candidates],
             }
         out["next_runs"] = None if self.next_runs is None else self.next_runs.to_dict()
+        if s.calibration is not None:
+            out["calibration"] = self.calibration_dict()
         out["run_table"] = self.run_rows()
         return out
+
+    def calibration_dict(self) -> dict:
+        """The study's curves, their verdicts, the runs read off them and whether their
+        uncertainty matters to the fit."""
+        d = self.study.calibration.to_dict()
+        counts: dict[str, int] = {}
+        for r in self.study.runs:
+            for q in r.quantities:
+                counts[q.status] = counts.get(q.status, 0) + 1
+        d["readings"] = {"quantified": counts.get("quantified", 0),
+                         "below_lloq": counts.get("below LLOQ", 0),
+                         "above_range": counts.get("above range", 0)}
+        d["uncertainty"] = self.calibration_uncertainty
+        return d
 
 
 def _impurity_fit(imp) -> dict:
@@ -425,7 +447,82 @@ def fit_study(study: Study) -> StudyReport:
             fit = fit_model(obs, model, MODELS.get(study.model))
     except FitImpossible as exc:
         return StudyReport(study, None, outcomes, problems=(str(exc),), warnings=warnings)
+    uncertainty = None
+    if study.calibration is not None:
+        fit, uncertainty = calibration_weighted_fit(fit, outcomes)
+        warnings.extend(f"calibration {c.id!r} fails ICH M10 acceptance: amounts read off it are "
+                        "used but the curve does not meet the criteria"
+                        for c in study.calibration.curves if not c.passes)
     warnings.extend(fit.warnings)
     target = study.targets.recovery_pct
     preds = tuple(predict_procedure(fit, p, target) for p in study.procedures)
-    return StudyReport(study, fit, outcomes, preds, tuple(candidates), warnings=warnings)
+    return StudyReport(study, fit, outcomes, preds, tuple(candidates), warnings=warnings,
+                       calibration_uncertainty=uncertainty)
+
+
+# -- calibration (calibration.py, calibration_input.py) ----------------------------------------
+
+#: the refit with calibration variance stops when sigma moves less than this, relatively
+_SIGMA_RTOL = 1e-4
+
+
+def calibration_weighted_fit(fit: FitResult, outcomes) -> tuple[FitResult, dict]:
+    """The fit with each run's calibration variance in its weight when that variance is not
+    negligible (calibration_input.NEGLIGIBLE_RULE), and the statement saying which.
+
+    The calibration variance v_i of a run's log10 value is known; sigma (the rest of the
+    scatter) is estimated: weights 1 / (f_i^2 + v_i / s^2), refitted until s settles. Runs are
+    treated as independent (the shared curve's correlation between runs is not modelled).
+    """
+    from .calibration_input import log10_variance, uncertainty_statement
+
+    var = np.zeros(fit.n)
+    for o in outcomes:
+        if o.index is not None:
+            var[o.index] = log10_variance(o.run, o.kind) or 0.0
+    s0 = fit.residual_sd
+    read = var > 0
+    ratios = list(np.sqrt(var[read]) / (fit.obs.sd_factor[read] * s0))
+    statement = uncertainty_statement(ratios, False, s0, None)
+    if not ratios or statement["negligible"]:
+        return fit, statement
+    simple = MODELS.get(fit.model.name.split("+")[0])
+    s = s0
+    for _ in range(50):
+        trial = fit_model(replace(fit.obs, extra_var=var / s ** 2), fit.model, simple,
+                          intervals=False)
+        s_new = max(trial.residual_sd, 0.05 * s0)   # the curve cannot explain all the scatter
+        if abs(s_new - s) <= _SIGMA_RTOL * s:
+            s = s_new
+            break
+        s = s_new
+    final = fit_model(replace(fit.obs, extra_var=var / s ** 2), fit.model, simple)
+    return final, uncertainty_statement(ratios, True, s0, final.residual_sd)
+
+
+def calibration_verdicts(study: Study) -> list:
+    """One ICH M10 verdict per calibration curve (none without a calibration)."""
+    if study.calibration is None:
+        return []
+    from .acceptance import Verdict
+
+    out = []
+    for c in study.calibration.curves:
+        acc = c.fit.acceptance()
+        detail = (f"{acc['standards_passing']} of {acc['standards']} standards within +/-15 % "
+                  f"(+/-20 % at the LLOQ), {acc['levels_passing']} of {acc['levels']} levels "
+                  "passing (at least 75 % and 6 levels needed, ICH M10)")
+        out.append(Verdict(f"calibration {c.id} (ICH M10)", acc["status"],
+                           100.0 * acc["standards_passing"] / acc["standards"], 75.0, detail))
+    return out
+
+
+def calibration_run_fields(run: Run) -> dict:
+    """A run's responses, the amounts read off the calibration and their sd, for run_table."""
+    return {"sequence": run.sequence,
+            "response_aqueous": clean(run.response_aqueous),
+            "response_organic": clean(run.response_organic),
+            "is_response_aqueous": clean(run.is_response_aqueous),
+            "is_response_organic": clean(run.is_response_organic),
+            "quantitation": [q.to_dict() for q in run.quantities],
+            "censored": run.censored}

@@ -106,7 +106,7 @@ class InversePrediction:
                 "sd_total": clean(self.sd_total)}
 
 
-@dataclass
+@dataclass(eq=False)
 class CalibrationFit:
     """One fitted calibration curve, with everything a reviewer checks. Computed once."""
 

@@ -36,9 +36,12 @@ import os
 import re
 from dataclasses import dataclass, field
 from pathlib import Path, PurePosixPath, PureWindowsPath
+from typing import TYPE_CHECKING
 
 import yaml
 
+if TYPE_CHECKING:
+    from .calibration_input import CalibrationSet
 from .errors import Problem, StudyError
 from .tables import EXTENSIONS, Location, Table, TableRow, decode_text, parse_number, read_table
 
@@ -69,6 +72,15 @@ class Run:
     replicate: str | None = None
     excluded: str | None = None      # the reason, when the run is excluded from the fit
     note: str | None = None
+    # instrument responses in place of found amounts (calibration_input.py); found_* then hold
+    # the amounts read off the calibration, ``quantities`` how, ``censored`` why one is missing
+    response_aqueous: float | None = None
+    response_organic: float | None = None
+    is_response_aqueous: float | None = None
+    is_response_organic: float | None = None
+    sequence: str | None = None
+    quantities: tuple = ()
+    censored: str | None = None
 
     @property
     def measurement(self) -> str:
@@ -208,6 +220,7 @@ class Study:
     warnings: tuple[Problem, ...] = ()            # located warnings found while reading
     advice: AdviceRequest = field(default_factory=AdviceRequest)
     impurities: tuple[Impurity, ...] = ()
+    calibration: CalibrationSet | None = None   # curves, when runs give responses
 
     @property
     def used_runs(self) -> tuple[Run, ...]:
@@ -236,7 +249,7 @@ ONE_PHASE_HIGH_PCT = 110.0
 
 _KEYS = {
     "": ("title", "analyte", "system", "runs", "sheet", "targets", "procedures", "advice",
-         "impurities"),
+         "impurities", "calibration"),
     "analyte": ("name", "model", "ion_pair", "level"),
     "system": ("aqueous", "organic", "temperature_C"),
     "targets": ("recovery_pct", "max_rsd_pct", "mass_balance_pct", "ratio_agreement_log",
@@ -254,6 +267,10 @@ COLUMNS = {
     "spiked": "spiked", "found_aqueous": "found_aqueous", "found_organic": "found_organic",
     "recovery_pct": "recovery_pct", "replicate": "replicate", "excluded": "excluded",
     "note": "note",
+    # instrument responses in place of found amounts, and the sequence whose calibration applies
+    "response_aqueous": "response_aqueous", "response_organic": "response_organic",
+    "is_response_aqueous": "is_response_aqueous", "is_response_organic": "is_response_organic",
+    "sequence": "sequence",
 }
 REQUIRED_COLUMNS = ("run", "ph", "aqueous_ml", "organic_ml")
 AMOUNT_COLUMNS = ("spiked", "found_aqueous", "found_organic")
@@ -489,38 +506,43 @@ def _runs_path(doc: _Yaml, entries, root, folder: Path) -> Path | None:
                     expected="the runs table's file name inside the study folder, e.g. runs.csv")
     if text is None:
         return None
-    node = entries["runs"][1]
+    return _table_path(doc, text, entries["runs"][1], "runs", folder)
+
+
+def _table_path(doc: _Yaml, text: str, node, key: str, folder: Path,
+                what: str = "runs") -> Path | None:
+    """A table's path inside the study folder (``key`` names the YAML key in messages)."""
     expected = "a relative path inside the study folder, ending in " + ", ".join(EXTENSIONS)
     posix = text.strip().replace("\\", "/")
     if PurePosixPath(posix).is_absolute() or PureWindowsPath(text).drive or posix.startswith("~"):
-        doc.report("the runs path must be relative to the study folder", node, "runs",
+        doc.report(f"the {what} path must be relative to the study folder", node, key,
                    found=text, expected=expected)
         return None
     if ".." in PurePosixPath(posix).parts:
-        doc.report("the runs path must not leave the study folder ('..')", node, "runs",
+        doc.report(f"the {what} path must not leave the study folder ('..')", node, key,
                    found=text, expected=expected)
         return None
     if PurePosixPath(posix).suffix.lower() not in EXTENSIONS:
-        doc.report("unsupported runs table type", node, "runs", found=text, expected=expected)
+        doc.report(f"unsupported {what} table type", node, key, found=text, expected=expected)
         return None
     path = folder / posix
     inside = folder.resolve()
     try:
         resolved = path.resolve()
     except (OSError, RuntimeError) as exc:   # a symlink loop
-        doc.report(f"the runs path cannot be resolved ({exc})", node, "runs", found=text,
+        doc.report(f"the {what} path cannot be resolved ({exc})", node, key, found=text,
                    expected=expected)
         return None
     if resolved != inside and inside not in resolved.parents:
-        doc.report("the runs path leads outside the study folder (through a symbolic link)",
-                   node, "runs", found=text, expected=expected)
+        doc.report(f"the {what} path leads outside the study folder (through a symbolic link)",
+                   node, key, found=text, expected=expected)
         return None
     if not path.exists():
-        doc.report("the runs table does not exist", node, "runs", found=display_path(path),
+        doc.report(f"the {what} table does not exist", node, key, found=display_path(path),
                    expected=expected)
         return None
     if not path.is_file():
-        doc.report("the runs path is not a file", node, "runs", found=display_path(path),
+        doc.report(f"the {what} path is not a file", node, key, found=display_path(path),
                    expected=expected)
         return None
     return path
@@ -971,8 +993,9 @@ def _check_header(table: Table, problems: list[Problem], known=frozenset()) -> b
                                     found=present, expected="columns " + ", ".join(
                                         COLUMNS[x] for x in REQUIRED_COLUMNS) + " and a "
                                     "measurement form"))
-    has_amounts = "spiked" in table.headers and (
-        "found_aqueous" in table.headers or "found_organic" in table.headers)
+    has_amounts = "spiked" in table.headers and any(
+        c in table.headers for c in ("found_aqueous", "found_organic", "response_aqueous",
+                                     "response_organic"))
     has_recovery = "recovery_pct" in table.headers
     if not (has_amounts or has_recovery):
         missing = [c for c in AMOUNT_COLUMNS if c not in table.headers] or ["recovery_pct"]
@@ -1080,7 +1103,8 @@ def _measurement(reader: _RowReader, row: TableRow, run, excluded: str | None,
     org = reader.number(row, run, "found_organic", required=False, what=amount_what)
     rec = reader.number(row, run, "recovery_pct", required=False,
                         what="the recovery in the organic phase, in %")
-    ok = all(v is not _BAD for v in (spiked, aq, org, rec))
+    responses = _responses(reader, row, run)
+    ok = all(v is not _BAD for v in (spiked, aq, org, rec)) and responses is not None
     if isinstance(spiked, float) and spiked <= 0:
         reader.report(row, run, "spiked", "negative spiked amount" if spiked < 0 else
                       "spiked amount is 0", found=row.raw("spiked"),
@@ -1103,11 +1127,20 @@ def _measurement(reader: _RowReader, row: TableRow, run, excluded: str | None,
             return None
         if rec is not None:
             return {"recovery_pct": rec, "spiked": spiked, "found_aqueous": aq,
-                    "found_organic": org}
-        return {"spiked": spiked, "found_aqueous": aq, "found_organic": org}
+                    "found_organic": org, **responses}
+        return {"spiked": spiked, "found_aqueous": aq, "found_organic": org, **responses}
 
     filled = {c for c in ("spiked", "found_aqueous", "found_organic", "recovery_pct")
               if c in headers and row.raw(c) != ""}
+    for phase in ("aqueous", "organic"):
+        if responses is not None and responses.get(f"response_{phase}") is not None:
+            if f"found_{phase}" in filled:
+                reader.report(row, run, f"response_{phase}", f"both a found amount and a "
+                              f"response for the {phase} phase", found=f"found_{phase} and "
+                              f"response_{phase}", expected="one of the two (the response is "
+                              "converted through the calibration)")
+                return None
+            filled.add(f"found_{phase}")     # a response stands for the found amount
     amount_cols = filled & set(AMOUNT_COLUMNS)
     found_cols = [c for c in ("found_aqueous", "found_organic") if c in headers]
     if "recovery_pct" in filled and amount_cols:
@@ -1142,12 +1175,42 @@ def _measurement(reader: _RowReader, row: TableRow, run, excluded: str | None,
         _plausible(reader, row, run, "recovery_pct", rec, one_phase=True,
                    found=row.raw("recovery_pct") + " %")
         return {"recovery_pct": rec}
+    if any(v is not None for v in responses.values()):
+        # amounts come from the calibration later (calibration_input.quantify_runs)
+        return {"spiked": spiked, "found_aqueous": aq, "found_organic": org, **responses}
     pct = 100.0 * ((aq or 0.0) + (org or 0.0)) / spiked
     both = aq is not None and org is not None
     col = "found_aqueous + found_organic" if both else (
         "found_aqueous" if aq is not None else "found_organic")
     _plausible(reader, row, run, col, pct, one_phase=not both, found=f"{pct:.1f} % of spiked")
     return {"spiked": spiked, "found_aqueous": aq, "found_organic": org}
+
+
+def _responses(reader: _RowReader, row: TableRow, run) -> dict | None:
+    """Instrument responses and the run's sequence (calibration_input.py); None if wrong."""
+    out: dict = {}
+    ok = True
+    for phase in ("aqueous", "organic"):
+        for col, what in ((f"response_{phase}", "the analyte's response, at least 0"),
+                          (f"is_response_{phase}", "the internal standard's response, "
+                                                   "greater than 0")):
+            v = reader.number(row, run, col, required=False, what=what)
+            if v is _BAD:
+                ok = False
+                v = None
+            elif isinstance(v, float) and (v < 0 or (v == 0 and col.startswith("is_"))):
+                reader.report(row, run, col, "negative response" if v < 0 else
+                              "internal-standard response is 0", found=row.raw(col),
+                              expected=what)
+                ok = False
+            out[col] = v
+        if out[f"is_response_{phase}"] is not None and out[f"response_{phase}"] is None:
+            reader.report(row, run, f"response_{phase}", "an internal-standard response "
+                          "without the analyte's response", found="",
+                          expected=f"response_{phase} beside is_response_{phase}")
+            ok = False
+    out["sequence"] = row.raw("sequence").strip() or None
+    return out if ok else None
 
 
 def _plausible(reader: _RowReader, row: TableRow, run, column: str, pct: float, *,
@@ -1303,16 +1366,55 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
 
     impurities = _impurity_records(doc, impurity_specs, table if runs_path else None,
                                    runs, problems)
+    calibration, runs = _calibration(doc, entries, folder, runs, problems)
+
     problems = _in_file_order(problems)
     if _n_errors(problems):
         return None, problems
     inputs = (InputFile(f"{study_id}/{STUDY_FILE}", _sha256(data), "study"),
               InputFile(f"{study_id}/{runs_path.relative_to(folder).as_posix()}", runs_digest,
                         "runs"))
+    if calibration is not None:
+        inputs += (InputFile(f"{study_id}/"
+                             f"{calibration.settings.table.relative_to(folder).as_posix()}",
+                             calibration.sha256, "calibration"),)
     warnings = tuple(p for p in problems if p.severity == "warning")
     study = Study(study_id, folder, title, name, model, tuple(runs), tuple(procedures),
-                  targets, ion_pair, system, inputs, warnings, advice, tuple(impurities))
+                  targets, ion_pair, system, inputs, warnings, advice, tuple(impurities),
+                  calibration=calibration)
     return study, problems
+
+
+def _calibration(doc: _Yaml, entries, folder: Path, runs: list[Run],
+                 problems: list[Problem]) -> tuple[CalibrationSet | None, list[Run]]:
+    """The calibration table (calibration_input.py) and the runs' amounts read off it."""
+    from . import calibration_input as cal_in   # numpy and the curve fit: only when needed
+
+    uses = [r for r in runs if r.response_aqueous is not None or r.response_organic is not None]
+    if "calibration" not in entries or _is_null(entries["calibration"][1]):
+        if uses:
+            first = uses[0]
+            problems.append(Problem(
+                f"{len(uses)} run(s) give instrument responses but study.yaml names no "
+                "calibration table", **first.location.where(), run=first.run_id,
+                column="response_aqueous, response_organic", found="responses",
+                expected="'calibration: <file>' in study.yaml, or found amounts"))
+        return None, runs
+    settings = cal_in.read_settings(
+        doc, entries, folder,
+        lambda text, node, key: _table_path(doc, text, node, key, folder, "calibration"))
+    if settings is None:
+        return None, runs
+    curves, digest = cal_in.read_curves(settings, problems)
+    if not curves or any(c.fit is None for c in curves):
+        return None, runs
+    if not uses:
+        problems.append(Problem("a calibration table is given but no run gives responses: the "
+                                "curves are reported, no amount is read off them",
+                                file=settings.shown, severity="warning",
+                                expected="response_aqueous / response_organic in the runs"))
+    runs = cal_in.quantify_runs(runs, curves, settings, problems)
+    return cal_in.CalibrationSet(settings, curves, digest), runs
 
 
 def _in_file_order(problems: list[Problem]) -> list[Problem]:

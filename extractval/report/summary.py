@@ -35,6 +35,28 @@ def render_summary(d: dict) -> str:
         lo, hi = rec["ci95"]
         lines.append(f"   {pr['id']}: recovery {fmt_pct(rec['value'])} % "
                      f"[{fmt_pct(lo)}, {fmt_pct(hi)}]  ({pr['label']})")
+    lines.extend(calibration_lines(d.get("calibration")))
     for w in d["warnings"]:
         lines.append(f"   warning: {w}")
     return "\n".join(lines)
+
+
+def calibration_lines(cal: dict | None) -> list[str]:
+    """One line per calibration curve: model, weighting, slope, r and the ICH M10 verdict."""
+    if not cal:
+        return []
+    out = []
+    for c in cal["curves"]:
+        if "acceptance" not in c:
+            out.append(f"   calibration {c['id']}: not fitted ({c['problem']})")
+            continue
+        acc, lin = c["acceptance"], c["linearity"]
+        r = lin["correlation_coefficient"]
+        out.append(f"   calibration {c['id']}: {c['model']}, weighting {c['weighting']}, "
+                   f"slope {c['parameters']['slope']['value']:.4g}, "
+                   + (f"r {r:.4f}, " if r is not None else "")
+                   + f"{acc['standards_passing']}/{acc['standards']} standards and "
+                   f"{acc['levels_passing']}/{acc['levels']} levels pass: {acc['status']}")
+    if cal.get("uncertainty"):
+        out.append(f"   {cal['uncertainty']['statement']}")
+    return out
