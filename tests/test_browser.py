@@ -1,8 +1,10 @@
 """The demo dossier in a real browser: Debian's Chromium driven by Playwright, on 127.0.0.1.
 
-Locally these tests skip, saying why, when no Chromium is installed; in CI (``CI=true``) a
-missing browser is a failure. Playwright's own browser downloads are never used: the system
-Chromium is launched through ``executable_path``. Screenshots go to test-artifacts/.
+Locally these tests skip, saying why, when no Chromium is installed; in CI (``CI`` set to
+anything but empty, ``false`` or ``0``) a missing browser is a failure. Playwright's own
+browser downloads are never used: the system Chromium is launched through
+``executable_path``. Screenshots go to the folder named by ``EXTRACTVAL_TEST_ARTIFACTS``, else
+to a temporary folder (never into the working tree).
 """
 
 from __future__ import annotations
@@ -10,29 +12,30 @@ from __future__ import annotations
 import functools
 import http.server
 import os
+import tempfile
 import threading
 from pathlib import Path
 from urllib.parse import urlsplit
 
 import pytest
 
+from ci_env import in_ci
 from extractval import site
 from extractval.study import load_study
 
 ROOT = Path(__file__).resolve().parent.parent
-ARTIFACTS = ROOT / "test-artifacts"
 CANDIDATES = (os.environ.get("EXTRACTVAL_CHROMIUM"), "/usr/bin/chromium",
               "/usr/bin/chromium-browser")
 LAUNCH_ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking",
                "--disable-component-update", "--disable-sync", "--no-first-run"]
-IN_CI = os.environ.get("CI", "").lower() == "true"
+IN_CI = in_ci()
 #: the site is served from a sub-folder, as on an intranet server that hosts many things
 PREFIX = "/qa/dossiers/extraction/"
 
 
 def _unavailable(reason: str):
     if IN_CI:
-        pytest.fail(f"CI=true and {reason}: the browser tests must run in CI", pytrace=False)
+        pytest.fail(f"CI is set and {reason}: the browser tests must run in CI", pytrace=False)
     pytest.skip(f"{reason}; install Debian's chromium (apt-get install chromium) to run the "
                 "browser tests")
 
@@ -97,9 +100,16 @@ def browser_context(chromium_path):
         browser.close()
 
 
+_ARTIFACTS: list[Path] = []
+
+
 def shot(page, name: str) -> None:
-    ARTIFACTS.mkdir(exist_ok=True)
-    page.screenshot(path=str(ARTIFACTS / f"{name}.png"), full_page=False)
+    if not _ARTIFACTS:
+        named = os.environ.get("EXTRACTVAL_TEST_ARTIFACTS")
+        _ARTIFACTS.append(Path(named) if named else
+                          Path(tempfile.mkdtemp(prefix="extractval-screenshots-")))
+    _ARTIFACTS[0].mkdir(parents=True, exist_ok=True)
+    page.screenshot(path=str(_ARTIFACTS[0] / f"{name}.png"), full_page=False)
 
 
 def test_home_page_lists_every_demo_study(served, browser_context, demo_ids):
