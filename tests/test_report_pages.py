@@ -12,6 +12,7 @@ import csv
 import html
 import io
 import json
+import math
 import os
 import re
 from pathlib import Path
@@ -49,6 +50,15 @@ def gold_study():
                            excluded={"R02": "emulsion"}, procedures=GOLD_PROCEDURES)
 
 
+def read_golden(path: Path) -> str:
+    """A golden file's text; a missing one fails (it is never made up on the spot)."""
+    if not path.is_file():
+        pytest.fail(f"{path} is missing; create it deliberately with EXTRACTVAL_UPDATE_GOLDEN=1 "
+                    "python -m pytest tests/test_report_pages.py, then read it before "
+                    "committing it", pytrace=False)
+    return path.read_text(encoding="utf-8")
+
+
 def as_json(d: dict) -> dict:
     """The dict as the site layer sees it (JSON round trip, as from the cache)."""
     return json.loads(json.dumps(d, allow_nan=False))
@@ -57,11 +67,11 @@ def as_json(d: dict) -> dict:
 @pytest.fixture(scope="module")
 def gold_dict() -> dict:
     path = GOLDEN / "SYN-GOLD.report.json"
-    if UPDATE or not path.exists():
+    if UPDATE:
         d = as_json(fit_study(gold_study()).to_dict())
         GOLDEN.mkdir(exist_ok=True)
         path.write_text(json.dumps(d, indent=1, sort_keys=False) + "\n", encoding="utf-8")
-    return json.loads(path.read_text(encoding="utf-8"))
+    return json.loads(read_golden(path))
 
 
 @pytest.fixture(scope="module")
@@ -88,28 +98,68 @@ def test_golden_markdown(gold_dict, page):
     files = gold_files(gold_dict)
     golden = GOLDEN / "pages" / page
     text = files[page].decode("utf-8")
-    if UPDATE or not golden.exists():
+    if UPDATE:
         golden.parent.mkdir(parents=True, exist_ok=True)
         golden.write_text(text, encoding="utf-8")
-    assert text == golden.read_text(encoding="utf-8"), f"{page} differs from {golden.name}"
+    assert text == read_golden(golden), f"{page} differs from {golden.name}"
+
+
+def golden_differences(golden, fresh, path: str = "") -> list[str]:
+    """Where ``fresh`` differs from ``golden``: keys, strings, booleans and nulls exactly,
+    numbers within a tolerance.
+
+    Numbers agree within 2e-5 relative (1e-12 absolute): the dict gives some quantities (the
+    design space) to 6 significant digits, one unit of which is up to 1e-5, and the profile
+    interval ends are found to about 1e-6 of their distance from the estimate; a change beyond
+    that is a change of result. Positive numbers below 1e-6 (fractions left in the water, the
+    split limit exp(-D V/V_aq)) are the exponential of a fitted quantity, which magnifies
+    that accuracy; they are compared by their logarithm, with the same relative tolerance.
+    """
+    where = path or "/"
+    if isinstance(golden, dict) and isinstance(fresh, dict):
+        out = [f"{where}: key {k!r} {'missing' if k in golden else 'new'}"
+               for k in sorted(set(golden) ^ set(fresh))]
+        for k in golden:
+            if k in fresh:
+                out += golden_differences(golden[k], fresh[k], f"{path}/{k}")
+        return out
+    if isinstance(golden, list) and isinstance(fresh, list):
+        if len(golden) != len(fresh):
+            return [f"{where}: {len(fresh)} items, golden {len(golden)}"]
+        return [d for i, (g, f) in enumerate(zip(golden, fresh))
+                for d in golden_differences(g, f, f"{path}/{i}")]
+    numbers = (int, float)
+    if (isinstance(golden, numbers) and isinstance(fresh, numbers)
+            and not isinstance(golden, bool) and not isinstance(fresh, bool)):
+        if 0 < golden < 1e-6 and 0 < fresh < 1e-6:
+            same = math.isclose(math.log(golden), math.log(fresh), rel_tol=2e-5)
+        else:
+            same = math.isclose(golden, fresh, rel_tol=2e-5, abs_tol=1e-12)
+        return [] if same else [f"{where}: {fresh!r}, golden {golden!r}"]
+    if type(golden) is not type(fresh) or golden != fresh:
+        return [f"{where}: {fresh!r}, golden {golden!r}"]
+    return []
+
+
+def test_golden_differences_finds_each_kind_of_change():
+    golden = {"a": 1.0, "b": [1, "x"], "c": None, "d": True, "tiny": 1e-80}
+    assert golden_differences(golden, dict(golden, a=1.0 + 1e-6, tiny=1e-80 * (1 + 1e-4))) == []
+    changed = dict(golden, a=1.001, b=[1, "y"], c=0, d=1, tiny=2e-80, e=1)
+    assert golden_differences(golden, changed) == [
+        "/: key 'e' new", "/a: 1.001, golden 1.0", "/b/1: 'y', golden 'x'",
+        "/c: 0, golden None", "/d: 1, golden True", "/tiny: 2e-80, golden 1e-80"]
+    assert golden_differences(golden, {"a": 1.0}) == [f"/: key {k!r} missing"
+                                                      for k in ("b", "c", "d", "tiny")]
 
 
 def test_stored_dict_still_matches_the_engine(gold_dict):
-    """Every key the golden dict has (and so the templates may use) is still produced."""
+    """The engine still gives the golden dict, value by value (so the golden pages show
+    what the engine gives), and the templates still render it."""
     fresh = as_json(fit_study(gold_study()).to_dict())
-
-    def keys(d, prefix=""):
-        out = set()
-        if isinstance(d, dict):
-            for k, v in d.items():
-                out.add(prefix + "/" + k)
-                out |= keys(v, prefix + "/" + k)
-        elif isinstance(d, list) and d and isinstance(d[0], dict):
-            out |= keys(d[0], prefix + "/0")
-        return out
-
-    missing = keys(gold_dict) - keys(fresh)
-    assert not missing, f"the engine no longer gives {sorted(missing)}; update the templates"
+    found = golden_differences(gold_dict, fresh)
+    assert not found, (f"{len(found)} differences from tests/golden/SYN-GOLD.report.json; if "
+                       "the change is deliberate, regenerate it with EXTRACTVAL_UPDATE_GOLDEN=1 "
+                       "and read the diff:\n  " + "\n  ".join(found[:30]))
     Pages(TEMPLATES).study_page(StudyInput("SYN-GOLD", fresh), DOSSIER)   # renders
 
 
