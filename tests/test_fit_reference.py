@@ -5,6 +5,8 @@ threshold as ours), scipy.optimize.curve_fit (absolute_sigma=False), statsmodels
 where the model is linear.
 """
 
+import dataclasses
+
 import lmfit
 import numpy as np
 import pytest
@@ -94,15 +96,38 @@ def test_linear_case_matches_statsmodels_t_interval():
 
 
 def test_weighted_mixture_matches_statsmodels_wls():
-    # log D (two amounts) and one-phase runs deep in the extracted regime where log E ~ 0 and
-    # log q ~ -(log D + log r): with the aqueous-only runs and log D runs of a neutral compound,
-    # log q + log r = -log D - log10(1 + 1/(rD)) is nearly linear; use log D runs with two
-    # different weights instead: duplicate the design as two sub-studies measured differently
-    runs_d = simulate_runs("neutral", (2.0,), [7.0], ratios=(1.0,), replicates=8, sigma=0.05,
-                           form="both", rng=1)
-    obs, _ = build_observations(runs_d)
-    ours = fit_model(obs, MODELS["neutral"])
+    """Runs of two kinds carry different weights: log D runs (two amounts, f = sqrt(2)/ln 10)
+    and organic-phase runs (one amount, f = 1/ln 10), so weighted and ordinary least squares
+    differ. At the optimum, statsmodels WLS of the model linearised there (Jacobian by central
+    differences, weights 1/f^2) must give our estimate and standard errors: the normal
+    equations and the covariance s^2 (J' W J)^-1 of weighted nonlinear least squares."""
+    theta = (ref.LOGP_BENZOIC_ACID, ref.PKA_BENZOIC_ACID)
+    both = simulate_runs("acid", theta, PH, ratios=(1.0,), sigma=0.05, form="both", rng=1)
+    # small ratios keep the organic-phase runs away from 100 % extracted, where they carry
+    # little weight on D
+    one = simulate_runs("acid", theta, PH, ratios=(0.005, 0.05), sigma=0.05, form="organic",
+                        rng=2)
+    one = tuple(dataclasses.replace(r, run_id="O" + r.run_id) for r in one)
+    obs, _ = build_observations(both + one)
+    model = MODELS["acid"]
+    ours = fit_model(obs, model)
     w = 1.0 / obs.sd_factor ** 2
-    wls = sm.WLS(obs.y, np.ones((obs.n, 1)), weights=w).fit()
-    assert ours.parameters["logK"].value == pytest.approx(wls.params[0], abs=1e-10)
-    assert ours.parameters["logK"].se == pytest.approx(wls.bse[0], rel=1e-8)
+    assert set(np.round(w / w.max(), 12)) == {0.5, 1.0}          # two kinds, two weights
+
+    def f(theta):
+        return obs.predict(model.log_d(obs.pH, np.asarray(theta, dtype=float)))[0]
+
+    est = ours.theta
+    h = 1e-6
+    jac = np.column_stack([(f(est + h * e) - f(est - h * e)) / (2 * h) for e in np.eye(2)])
+    y_lin = obs.y - f(est) + jac @ est
+    wls = sm.WLS(y_lin, jac, weights=w).fit()
+    se = np.sqrt(np.diag(ours.covariance))
+    assert est == pytest.approx(wls.params, abs=1e-6 * se.min())
+    assert se == pytest.approx(wls.bse, rel=1e-6)
+    for i, name in enumerate(("logK", "pKa")):
+        assert ours.parameters[name].se == pytest.approx(wls.bse[i], rel=1e-6)
+    # the weights matter here: unweighted least squares of the same linearised model is
+    # another estimate, so a fit that ignored them would fail the checks above
+    ols = sm.OLS(y_lin, jac).fit()
+    assert np.max(np.abs(ols.params - wls.params) / se) > 0.1
