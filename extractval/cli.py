@@ -120,6 +120,19 @@ def cmd_new(args) -> int:
     return new_command(args)
 
 
+def _site_options(p: argparse.ArgumentParser) -> None:
+    """Where `build` and `serve` find the studies, the site configuration and templates."""
+    p.add_argument("--studies", default=None,
+                   help="folder of study folders (default studies/ in the project folder, "
+                        "else here)")
+    p.add_argument("--config", default=None,
+                   help="the site's mkdocs.yml (default: the one in the project folder, i.e. "
+                        "here or above; else the one extractval carries)")
+    p.add_argument("--templates", default=None,
+                   help="folder of page templates and CSS, in place of the configuration's "
+                        "docs_dir (default: site_templates/ beside it)")
+
+
 def make_parser() -> argparse.ArgumentParser:
     ap = argparse.ArgumentParser(
         prog="extractval",
@@ -150,24 +163,22 @@ def make_parser() -> argparse.ArgumentParser:
     p.set_defaults(func=cmd_advise)
 
     p = sub.add_parser("build", help="check, fit and build the dossier site")
-    p.add_argument("--studies", default=None, help="folder of study folders (default studies/)")
-    p.add_argument("--site", default=None, help="output folder (default site/)")
+    _site_options(p)
+    p.add_argument("--site", default=None,
+                   help="output folder (default site/ in the project folder, else here)")
     p.add_argument("--keep-going", action="store_true",
                    help="publish the good studies; a broken one gets a page listing its errors")
-    p.add_argument("--config", default=None,
-                   help="the site's mkdocs.yml (default: the one in the project folder)")
     p.add_argument("--cache-dir", default=None,
-                   help="cache of fitted studies and plots (default .extractval-cache/ beside "
-                        "mkdocs.yml; safe to delete)")
+                   help="cache of fitted studies and plots (default: $EXTRACTVAL_CACHE_DIR, "
+                        "else the user's cache folder, e.g. ~/.cache/extractval; safe to "
+                        "delete)")
     p.add_argument("--jobs", type=int, default=0,
                    help="worker processes for fitting (default: one per core)")
     p.set_defaults(func=cmd_build)
 
     p = sub.add_parser("serve", help="live preview of the dossier")
-    p.add_argument("--studies", default=None, help="folder of study folders (default studies/)")
+    _site_options(p)
     p.add_argument("--addr", default="127.0.0.1:8000", help="address to serve on")
-    p.add_argument("--config", default=None,
-                   help="the site's mkdocs.yml (default: the one in the project folder)")
     p.set_defaults(func=cmd_serve)
 
     p = sub.add_parser("new", help="scaffold a new study folder")

@@ -168,13 +168,16 @@ class _Collect(logging.Handler):
 _ANSI = re.compile(r"\x1b\[[0-9;]*m")
 
 
-def build_site(config_file: Path, site_dir: Path, prepared: site.Prepared) -> None:
-    """Build the site from ``prepared`` into ``site_dir`` with MkDocs in strict mode."""
+def build_site(config_file: Path, site_dir: Path, prepared: site.Prepared,
+               docs_dir: Path | None = None) -> None:
+    """Build the site from ``prepared`` into ``site_dir`` with MkDocs in strict mode
+    (``docs_dir``, when given, in place of the configuration's)."""
     logger = logging.getLogger("mkdocs")
     collect = _Collect()
     logger.addHandler(collect)
     try:
-        cfg = _load_config(config_file=str(config_file), site_dir=str(site_dir), strict=True)
+        cfg = _load_config(config_file=str(config_file), site_dir=str(site_dir), strict=True,
+                           **_docs_dir_option(docs_dir))
         plugin = cfg.plugins.get(PLUGIN)
         if plugin is None:
             raise site.SiteBuildError(f"{config_file}: the '{PLUGIN}' plugin is not listed "
@@ -188,11 +191,18 @@ def build_site(config_file: Path, site_dir: Path, prepared: site.Prepared) -> No
         logger.removeHandler(collect)
 
 
-def serve(config_file: Path, studies: Path, addr: str) -> None:
+def _docs_dir_option(docs_dir: Path | None) -> dict[str, str]:
+    return {} if docs_dir is None else {"docs_dir": str(docs_dir)}
+
+
+def serve(config_file: Path, studies: Path, addr: str, docs_dir: Path | None = None,
+          cache_dir: Path | None = None) -> None:
     """Live preview: rebuild whenever a study file, template or the CSS changes."""
     from mkdocs.commands.serve import serve as _serve
 
     os.environ[ENV_STUDIES] = str(studies)
+    if cache_dir is not None:
+        os.environ[site.ENV_CACHE] = str(cache_dir)
     os.environ[ENV_KEEP_GOING] = "1"      # a broken study shows its errors page while editing
     logging.getLogger("mkdocs").setLevel(logging.INFO)
     if not logging.getLogger("mkdocs").handlers:
@@ -201,7 +211,7 @@ def serve(config_file: Path, studies: Path, addr: str) -> None:
         logging.getLogger("mkdocs").addHandler(handler)
     try:
         _serve(config_file=str(config_file), dev_addr=addr, livereload=True,
-               watch=[str(studies)])
+               watch=[str(studies)], **_docs_dir_option(docs_dir))
     except MkDocsException as exc:
         raise site.SiteBuildError(f"the preview server stopped: {exc}") from None
     except OSError as exc:

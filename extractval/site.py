@@ -39,11 +39,17 @@ from .report.plots import study_plots
 from .report.register import Dossier
 
 SOFTWARE = f"extractval {__version__}"
-CACHE_DIR = ".extractval-cache"
 CACHE_FORMAT = "v2"
 #: written into every site this tool publishes; a folder without it is never replaced
 MARKER = ".extractval-dossier"
 CONFIG = "mkdocs.yml"
+#: the package's own folder, where no build ever writes
+PACKAGE = Path(__file__).resolve().parent
+#: the site configuration and templates the package carries: in a source checkout links to
+#: the project's mkdocs.yml and site_templates/ (one copy of each), in a wheel their copies
+PACKAGED = PACKAGE / "dossier"
+#: names the cache folder for every build (also `extractval serve` and `mkdocs build`)
+ENV_CACHE = "EXTRACTVAL_CACHE_DIR"
 
 
 class SiteBuildError(Exception):
@@ -448,8 +454,8 @@ def prepare(studies_dir: Path | None, templates_dir: Path, config_file: Path | N
         studies_dir = Path(studies_dir).resolve()
         sources = discover(studies_dir)
         display_root = studies_dir.parent
-    if cache_dir is None and config_file is not None:
-        cache_dir = Path(config_file).resolve().parent / CACHE_DIR
+    if cache_dir is None:
+        cache_dir = default_cache_dir(studies_dir)
     outcomes = collect(sources, Cache(cache_dir), jobs, progress, display_root)
     failed = [o for o in outcomes if o.problems]
     if failed and not keep_going:
@@ -462,6 +468,9 @@ def prepare(studies_dir: Path | None, templates_dir: Path, config_file: Path | N
 # -- publishing -----------------------------------------------------------------------------------
 def _check_target(site_dir: Path, protected: list[Path]) -> None:
     site_dir = site_dir.resolve()
+    if site_dir.is_relative_to(PACKAGE):
+        raise SiteBuildError(f"{site_dir}: the site folder would be inside the extractval "
+                             "package; choose another --site")
     for p in protected:
         p = p.resolve()
         if site_dir == p or p.is_relative_to(site_dir):
@@ -545,8 +554,12 @@ class BuildResult:
 def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
           keep_going: bool = False, cache_dir: Path | None = None, jobs: int = 0,
           progress: Callable[[str], None] | None = None,
-          sources: list[Source] | None = None) -> BuildResult:
-    """The whole build; on any failure the published ``site_dir`` is left as it was."""
+          sources: list[Source] | None = None,
+          templates_dir: Path | None = None) -> BuildResult:
+    """The whole build; on any failure the published ``site_dir`` is left as it was.
+
+    ``templates_dir`` replaces the configuration's ``docs_dir`` (the templates and CSS).
+    """
     from . import mkdocs_plugin
 
     t0 = time.perf_counter()
@@ -554,8 +567,11 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
     if not config_file.is_file():
         raise SiteBuildError(f"{config_file}: no such file; expected the site's mkdocs.yml")
     site_dir = Path(site_dir).resolve()
-    templates_dir = mkdocs_plugin.docs_dir(config_file)
-    protected = [config_file.parent, templates_dir]
+    if templates_dir is not None:
+        templates_dir = check_templates(Path(templates_dir))
+    else:
+        templates_dir = mkdocs_plugin.docs_dir(config_file)
+    protected = [config_file.parent, templates_dir, PACKAGE]
     if studies_dir is not None:
         protected.append(Path(studies_dir))
     _check_target(site_dir, protected)
@@ -570,7 +586,7 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
         saved = os.environ.get("SOURCE_DATE_EPOCH")
         os.environ["SOURCE_DATE_EPOCH"] = str(epoch)   # the generator's dates match ours
         try:
-            mkdocs_plugin.build_site(config_file, tmp, prepared)
+            mkdocs_plugin.build_site(config_file, tmp, prepared, docs_dir=templates_dir)
         finally:
             if saved is None:
                 os.environ.pop("SOURCE_DATE_EPOCH", None)
@@ -587,39 +603,128 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
                        {"studies and pages": t1 - t0, "site generator": t2 - t1})
 
 
-# -- the commands ---------------------------------------------------------------------------------
-def project_root(start: Path | None = None) -> Path:
+# -- where a build reads and writes --------------------------------------------------------------
+def user_cache_dir(environ: dict[str, str] | None = None,
+                   platform: str = sys.platform) -> Path | None:
+    """The user's cache folder for extractval: ``$XDG_CACHE_HOME/extractval``, else
+    ``~/.cache/extractval`` (``%LOCALAPPDATA%\\extractval\\cache`` on Windows); None when the
+    environment names no home.
+
+    >>> user_cache_dir({"XDG_CACHE_HOME": "/c", "HOME": "/h"}, "linux").as_posix()
+    '/c/extractval'
+    >>> user_cache_dir({"XDG_CACHE_HOME": "relative", "HOME": "/h"}, "linux").as_posix()
+    '/h/.cache/extractval'
+    >>> user_cache_dir({}, "linux") is None
+    True
+    """
+    env = os.environ if environ is None else environ
+    if platform == "win32":
+        base = env.get("LOCALAPPDATA")
+        return Path(base) / "extractval" / "cache" if base else None
+    xdg = env.get("XDG_CACHE_HOME", "")
+    if xdg and os.path.isabs(xdg):          # the XDG rule: a relative value is ignored
+        return Path(xdg) / "extractval"
+    home = env.get("HOME")
+    return Path(home) / ".cache" / "extractval" if home else None
+
+
+def default_cache_dir(studies_dir: Path | None, site_dir: Path | None = None) -> Path | None:
+    """Where a build keeps its cache when no ``--cache-dir`` is given: the folder named by
+    ``EXTRACTVAL_CACHE_DIR``; else one folder per studies folder in the user's cache folder
+    (so two projects never evict each other's entries); else, with no user cache folder,
+    beside the site. Never the package's folder, nor the working folder. None: no cache."""
+    named = os.environ.get(ENV_CACHE, "").strip()
+    if named:
+        return Path(named)
+    base = user_cache_dir()
+    if base is not None:
+        if studies_dir is None:
+            return base / "in-memory"
+        where = Path(studies_dir).resolve()
+        return base / f"{where.name}-{_sha(str(where))[:12]}"
+    if site_dir is not None:
+        site_dir = Path(site_dir).resolve()
+        return site_dir.parent / f".{site_dir.name}.extractval-cache"
+    return None
+
+
+def check_templates(folder: Path) -> Path:
+    """``folder`` resolved, when it holds the dossier's templates; else a clear error."""
+    folder = folder.resolve()
+    if not (folder / "study.md.j2").is_file():
+        raise SiteBuildError(f"{folder}: no study.md.j2 there; expected a folder of dossier "
+                             f"templates like {PACKAGED / 'site_templates'}")
+    return folder
+
+
+def find_project(start: Path | None = None) -> Path | None:
     """The nearest folder at or above ``start`` (default: the working folder) holding
-    mkdocs.yml; else the working folder."""
+    mkdocs.yml: a project folder with its own site configuration; None when there is none."""
     here = Path(start or Path.cwd()).resolve()
     for p in (here, *here.parents):
-        if (p / CONFIG).is_file():
+        if (p / CONFIG).is_file() and not p.is_relative_to(PACKAGE):
             return p
-    return here
+    return None
 
 
-def _paths(args) -> tuple[Path, Path, Path]:
-    root = project_root()
-    config = Path(getattr(args, "config", None) or root / CONFIG)
-    if not config.is_file():
-        raise SiteBuildError(f"{config}: no such file; run the command in the project folder "
-                             "(the one holding mkdocs.yml) or pass --config")
-    base = config.resolve().parent
-    studies = Path(args.studies) if getattr(args, "studies", None) else base / "studies"
-    site_dir = Path(args.site) if getattr(args, "site", None) else base / "site"
-    return config, studies, site_dir
+@dataclass(frozen=True)
+class BuildPaths:
+    """What a build or preview reads and where it writes, from the command's options."""
+
+    config: Path
+    templates: Path | None     # None: the configuration's docs_dir
+    studies: Path
+    site: Path
+    cache: Path | None
+    packaged: bool             # the configuration is the one the package carries
 
 
+def build_paths(args, cwd: Path | None = None) -> BuildPaths:
+    """The options of `build` / `serve` resolved against the working folder.
+
+    The configuration is ``--config``, else the mkdocs.yml of the project folder at or above
+    the working folder, else the one the package carries. Studies and site default to
+    ``studies/`` and ``site/`` beside the project's mkdocs.yml, or in the working folder when
+    the package's configuration is used. The cache is ``--cache-dir``, else
+    :func:`default_cache_dir`.
+    """
+    cwd = Path(cwd or Path.cwd()).resolve()
+    given = getattr(args, "config", None)
+    if given:
+        config, packaged = Path(given), False
+        if not config.is_file():
+            raise SiteBuildError(f"{config}: no such file; expected the site's mkdocs.yml "
+                                 "(leave out --config to use the one extractval carries)")
+        base = config.resolve().parent
+    else:
+        project = find_project(cwd)
+        packaged = project is None
+        config = PACKAGED / CONFIG if packaged else project / CONFIG
+        base = cwd if packaged else project
+        if not config.is_file():
+            raise SiteBuildError(f"{config}: the site configuration extractval carries is "
+                                 "missing; reinstall extractval, or pass --config")
+    templates = getattr(args, "templates", None)
+    studies = Path(getattr(args, "studies", None) or base / "studies")
+    site_dir = Path(getattr(args, "site", None) or base / "site")
+    cache = getattr(args, "cache_dir", None)
+    cache = Path(cache) if cache else default_cache_dir(studies, site_dir)
+    return BuildPaths(config, check_templates(Path(templates)) if templates else None,
+                      studies, site_dir, cache, packaged)
+
+
+# -- the commands ---------------------------------------------------------------------------------
 def build_command(args) -> int:
     """``extractval build``: exit 0 when the site was published, 1 otherwise."""
     def say(line: str) -> None:
         print(line, flush=True)
 
     try:
-        config, studies, site_dir = _paths(args)
-        result = build(studies, site_dir, config, keep_going=getattr(args, "keep_going", False),
-                       cache_dir=getattr(args, "cache_dir", None),
-                       jobs=getattr(args, "jobs", 0) or 0, progress=say)
+        paths = build_paths(args)
+        result = build(paths.studies, paths.site, paths.config,
+                       keep_going=getattr(args, "keep_going", False), cache_dir=paths.cache,
+                       jobs=getattr(args, "jobs", 0) or 0, progress=say,
+                       templates_dir=paths.templates)
     except SiteBuildError as exc:
         print(str(exc), file=sys.stderr)
         print("build failed: the published site was left as it was", file=sys.stderr)
@@ -646,8 +751,10 @@ def serve_command(args) -> int:
     from . import mkdocs_plugin
 
     try:
-        config, studies, _ = _paths(args)
-        mkdocs_plugin.serve(config, studies.resolve(), getattr(args, "addr", "127.0.0.1:8000"))
+        paths = build_paths(args)
+        mkdocs_plugin.serve(paths.config, paths.studies.resolve(),
+                            getattr(args, "addr", "127.0.0.1:8000"), docs_dir=paths.templates,
+                            cache_dir=paths.cache)
     except SiteBuildError as exc:
         print(str(exc), file=sys.stderr)
         return 1

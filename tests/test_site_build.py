@@ -335,7 +335,7 @@ def test_an_interrupted_build_leaves_the_site_and_no_half_built_folder(
     shutil.copytree(built, target)
     before = tree(target)
 
-    def half_then_interrupt(config_file, site_dir, prepared):
+    def half_then_interrupt(config_file, site_dir, prepared, **kw):
         (Path(site_dir) / "index.html").write_text("half", encoding="utf-8")
         raise KeyboardInterrupt
 
