@@ -8,7 +8,9 @@ References
 ----------
 .. [1] ISO 5725-2:1994, Accuracy (trueness and precision) of measurement methods and results,
        Part 2: basic method for the determination of repeatability and reproducibility,
-       clause 7.3 (Grubbs' test; stragglers and outliers) and Table 5 (critical values).
+       clause 7.3 (Grubbs' test; stragglers and outliers) and Table 5 (critical values);
+       cited from memory: the standard was not read for this work, its critical values were
+       checked against D. Harvey, Analytical Chemistry 2.1, Appendix 7 (tests/reference).
 .. [2] F. E. Grubbs, "Procedures for detecting outlying observations in samples",
        Technometrics 11 (1969) 1-21 (the statistic and its t-distribution critical value).
 .. [3] D. C. Montgomery, G. C. Runger, Applied Statistics and Probability for Engineers,
@@ -139,7 +141,7 @@ def grubbs_critical(n: int, alpha: float) -> float:
 
     Examples
     --------
-    ISO 5725-2 Table 5, n = 10:
+    n = 10 (Harvey, Analytical Chemistry 2.1, Appendix 7; ISO 5725-2 Table 5, from memory):
 
     >>> round(grubbs_critical(10, 0.05), 3), round(grubbs_critical(10, 0.01), 3)
     (2.290, 2.482)
@@ -525,8 +527,8 @@ def aoac_recovery_row(level: str | float) -> RecoveryRow:
     r"""The AOAC Appendix F Table A5 row for an analyte level [5]_.
 
     The table gives ranges at decade levels only and does not say how to read between rows.
-    Rule used here: the row whose level is nearest in log scale, i.e. the row within half a
-    decade (a factor of :math:`\sqrt{10}`) of the level,
+    This project's own convention (not AOAC's): the row whose level is nearest in log scale,
+    i.e. the row within half a decade (a factor of :math:`\sqrt{10}`) of the level,
 
     .. math:: k = \lfloor \log_{10} C + 1/2 \rfloor, \qquad \text{row level} = 10^{k}
 

@@ -20,15 +20,24 @@ from tests.reference import acceptance_refs as ref
 
 
 @pytest.mark.parametrize("alpha", [0.05, 0.01])
-def test_grubbs_critical_iso5725_n10(alpha):
-    # ISO 5725-2 Table 5, n = 10: 2.290 (5 %), 2.482 (1 %)
-    assert round(acc.grubbs_critical(10, alpha), 3) == ref.ISO5725_GRUBBS_N10[alpha]
+def test_grubbs_critical_n10(alpha):
+    # Harvey, Analytical Chemistry 2.1, Appendix 7, n = 10: 2.290 (5 %), 2.482 (1 %)
+    # (ISO 5725-2 Table 5 gives the same, from memory)
+    assert round(acc.grubbs_critical(10, alpha), 3) == ref.GRUBBS_N10[alpha]
 
 
-@pytest.mark.parametrize("n", sorted(ref.ISO5725_GRUBBS_FROM_MEMORY))
-def test_grubbs_critical_iso5725_other_rows(n):
-    # ISO 5725-2 Table 5, further rows (from memory)
-    c5, c1 = ref.ISO5725_GRUBBS_FROM_MEMORY[n]
+@pytest.mark.parametrize("n", sorted(ref.GRUBBS_ROWS))
+def test_grubbs_critical_other_rows(n):
+    # Harvey, Analytical Chemistry 2.1, Appendix 7, further rows
+    c5, c1 = ref.GRUBBS_ROWS[n]
+    assert round(acc.grubbs_critical(n, 0.05), 3) == c5
+    assert round(acc.grubbs_critical(n, 0.01), 3) == c1
+
+
+@pytest.mark.parametrize("n", sorted(ref.GRUBBS_ROWS_FROM_MEMORY))
+def test_grubbs_critical_rows_from_memory(n):
+    # from memory (the stored copy of the table misprints this row)
+    c5, c1 = ref.GRUBBS_ROWS_FROM_MEMORY[n]
     assert round(acc.grubbs_critical(n, 0.05), 3) == c5
     assert round(acc.grubbs_critical(n, 0.01), 3) == c1
 
@@ -57,7 +66,7 @@ def test_grubbs_screen_usp1010_outlier():
     assert round(r.sd, 3) == ref.USP1010_OUTLIER_SD
     assert round(r.G, 3) == abs(ref.USP1010_OUTLIER_NORMALIZED)
     assert (r.suspect_id, r.suspect_value, r.side) == ("R10", 95.7, "low")
-    # 2.805 > 2.482 (ISO 5725-2, n = 10, 1 %): an outlier
+    # 2.805 > 2.482 (the 1 % critical value at n = 10, GRUBBS_N10): an outlier
     assert r.classification == "outlier" and r.flagged
     assert r.critical_1 == pytest.approx(acc.grubbs_critical(10, 0.01), rel=1e-12)
 
@@ -217,10 +226,13 @@ def test_aoac_recovery_range_at_each_tabulated_level(level, label, lo, hi):
     ("60 %", "100 %"),
 ])
 def test_aoac_row_between_decades_nearest_in_log(text, label):
+    # the project's own convention, not AOAC's: Table A5 gives decade levels only and says
+    # nothing about levels between its rows; the nearest row in log scale is used
     assert acc.aoac_recovery_row(text).label == label
 
 
 def test_aoac_half_way_takes_the_stricter_row():
+    # the project's own convention (as above): exactly half-way, the stricter (higher) row
     c = 10 ** -3.5  # exactly half-way between 0.1 % and 100 ppm in log scale
     assert acc.aoac_recovery_row(c).label == "0.1 %"
 
@@ -283,10 +295,10 @@ def test_horwitz_prsd_r_aoac_table_d1(c):
 
 
 def test_horwitz_check_values_and_exact_form():
-    # issue 4 / AOAC Annex D: PRSD(R) = 2 % at C = 1, 16 % at 1 ppm
+    # AOAC Appendix F Annex D Table D1 (tests/reference): PRSD(R) = 2 % at C = 1, 16 % at 1 ppm
     assert acc.horwitz_prsd_r(1.0) == 2.0
     assert round(acc.horwitz_prsd_r(1e-6)) == 16
-    # Horwitz's original 2^(1 - 0.5 log10 C) is the exact-exponent form (closed form)
+    # Horwitz's original 2^(1 - 0.5 log10 C) (from memory) is the exact-exponent form
     for c in (1e-2, 1e-6, 1e-9):
         original = 2.0 ** (1.0 - 0.5 * math.log10(c))
         assert acc.horwitz_prsd_r(c, acc.HORWITZ_EXACT_EXPONENT) == pytest.approx(original)

@@ -10,14 +10,15 @@ from tests.reference import handbook as ref
 
 
 def test_worked_successive_portions():
-    # IUPAC Gold Book F02503 worked check (tests/reference/handbook.py)
+    # this project's own arithmetic of the Gold Book F02503 formula, not a published example
+    # (tests/reference/handbook.py)
     for n, expected in enumerate(ref.WORKED_REMAINING, start=1):
         q = chem.remaining_fraction(ref.WORKED_D, ref.WORKED_V_AQ, [ref.WORKED_V_ORG] * n)
         assert q == pytest.approx(expected, rel=1e-12)
 
 
 def test_gold_book_fraction_extracted_matches_product_of_q():
-    # IUPAC Gold Book F02503: E_n = 1 - (rD + 1)^-n
+    # IUPAC Gold Book F02503: E_n = 1 - (rD + 1)^-n (from memory)
     r = ref.WORKED_V_ORG / ref.WORKED_V_AQ
     for n in range(1, 6):
         e = chem.fraction_extracted_equal_portions(ref.WORKED_D, r, n)
@@ -45,7 +46,7 @@ def test_split_approaches_limit_from_above():
 
 
 def test_single_equilibration_definition():
-    # q = V_aq / (V_aq + D V_org), IUPAC Gold Book distribution ratio D01817
+    # q = V_aq / (V_aq + D V_org), from D = c_org / c_aq (IUPAC Gold Book D01817, from memory)
     assert chem.remaining_fraction_single(2.0, 100.0, 50.0) == 0.5
     assert chem.remaining_fraction_single(0.0, 10.0, 10.0) == 1.0
 
@@ -59,7 +60,7 @@ def test_half_ionised_at_pKa(fn, pKa):
 
 def test_acid_and_base_limits():
     # far on the neutral side D -> K; one pH unit into the ionised side per decade, slope 1
-    # (Avdeef 2012, ch. 4)
+    # (Avdeef 2012, ch. 4, from memory)
     assert chem.log_d_acid(0.0, ref.LOGP_BENZOIC_ACID, ref.PKA_BENZOIC_ACID) == pytest.approx(
         ref.LOGP_BENZOIC_ACID, abs=1e-4)
     slope = chem.log_d_acid(11.0, 1.88, 4.21) - chem.log_d_acid(10.0, 1.88, 4.21)

@@ -1,10 +1,11 @@
 """Calibration: over simulated replicate studies the 95 % intervals cover the truth ~95 %.
 
 Design: OECD TG 107 style, three organic:aqueous ratios in duplicate at each buffered pH
-(OECD TG 107, 1995), benzoic acid constants as the truth (CRC Handbook log P 1.88; pKa 4.210,
-J. Res. NBS 1967, 71A, 379), 5 % relative error on each measured amount (common practice for a
-chromatographic assay). Seeded; the acceptance band is the central 99.8 % of Binomial(N, 0.95),
-so a correctly calibrated method fails this test about once in 500 seeds.
+(OECD TG 107, 1995, from memory), benzoic acid constants as the truth (log P 1.88, pKa 4.210:
+tests/reference/handbook.py, both from memory), 5 % relative error on each measured amount
+(common practice for a chromatographic assay). Seeded; the acceptance band is the central
+99.8 % of Binomial(N, 0.95), so a correctly calibrated method fails this test about once in
+500 seeds.
 """
 
 import numpy as np
@@ -28,7 +29,8 @@ def _band(n):
 
 # Recovery-only studies of a well-extracted analyte use small organic:aqueous ratios so that the
 # recoveries on the neutral plateau stay measurably below 100 % (OECD TG 107 chooses the ratios
-# from the expected log P for the same reason); both-phase studies use the 1:2, 1:1, 2:1 set.
+# from the expected log P for the same reason, from memory); both-phase studies use the 1:2,
+# 1:1, 2:1 set.
 @pytest.mark.parametrize("form, ratios, seed", [("recovery", (0.05, 0.1, 0.2), 2026),
                                                 ("both", (0.5, 1.0, 2.0), 7)])
 def test_interval_coverage_and_width(form, ratios, seed):

@@ -4,17 +4,20 @@
 value was read from the source (or a stored public copy of it) named beside it.
 """
 
-# --- Grubbs' test critical values, ISO 5725-2:1994 Table 5 (two-sided, single outlier) ------
-# n = 10 as quoted in the project's issue 4 and DESIGN.md ("ISO 5725-2: critical values for
-# n = 10: 2.290 (5 %), 2.482 (1 %)").
-ISO5725_GRUBBS_N10 = {0.05: 2.290, 0.01: 2.482}
-# Further rows of ISO 5725-2 Table 5, from memory: n -> (5 % value, 1 % value).
-ISO5725_GRUBBS_FROM_MEMORY = {
+# --- Grubbs' test, two-sided critical values for one outlier --------------------------------
+# Read from a stored public copy of D. Harvey, Analytical Chemistry 2.1, Appendix 7 "Critical
+# Values for Grubb's Test" (chem.libretexts.org), G(alpha, n). ISO 5725-2:1994 Table 5, the
+# table the screens name, was not read during this work: that it lists the same values is
+# from memory.
+GRUBBS_N10 = {0.05: 2.290, 0.01: 2.482}
+# Further rows of the same table: n -> (5 % value, 1 % value).
+GRUBBS_ROWS = {
     5: (1.715, 1.764),
     6: (1.887, 1.973),
-    7: (2.020, 2.139),
     12: (2.412, 2.636),
 }
+# n = 7 from memory: the copy above prints 2.202 at 5 %, above its own 1 % value (a misprint).
+GRUBBS_ROWS_FROM_MEMORY = {7: (2.020, 2.139)}
 
 # --- USP General Chapter <1010> Analytical Data - Interpretation and Treatment (USP 29) ------
 # Read from a stored public copy (pharmacopeia.cn, usp29nf24s0_c1010).
