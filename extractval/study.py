@@ -13,16 +13,29 @@ Reading rules
   ``title: 2026`` is the text "2026".
 * Measurement forms, row by row: a row must hold exactly one complete form among
   ``spiked`` + ``found_aqueous`` + ``found_organic`` (both phases), ``spiked`` + one found
-  amount (one phase; the other found cell empty), or ``recovery_pct`` alone. Cells of a form
-  are filled or empty as a whole: a spiked amount without any found amount, a found amount
-  without the spiked one, or recovery_pct beside amounts is an error naming the cells. A table
-  may mix forms between rows when it has the columns.
-* A run with a reason in ``excluded`` is kept (and reported) but not fitted: its filled cells
-  must still be numbers in range, but it needs no complete form and the plausibility limits
-  below do not apply to it (an implausible value is often why it was excluded).
+  amount (one phase; the other found cell empty), or ``recovery_pct`` (alone, or beside the
+  ``spiked`` amount it refers to, a common sheet layout). Cells of a form are filled or empty
+  as a whole: a spiked amount without any found amount, or a found amount without the spiked
+  one, is an error naming the cells. ``recovery_pct`` beside ``found_organic`` and ``spiked``
+  must agree with 100 found_organic / spiked within the rounding of the three cells as
+  written (half a unit in each one's last digit, carried through the quotient): otherwise it
+  is an error, since the row cannot say which cell is wrong; when they agree the amounts are
+  the run's measurement and the recovery is kept for the record. ``recovery_pct`` beside
+  ``found_aqueous`` alone is two forms, an error. A table may mix forms between rows.
+* A run with a reason in ``excluded`` is kept (and reported) but not fitted. It may record no
+  measurement, or an incomplete one (a broken flask, a spike not recorded), but every value it
+  gives is checked like any other run's, plausibility included: an exclusion reason does not
+  hide a typo. A number in ``excluded`` (other than the flags below) is an error: it is not a
+  reason, and in a ``,``-separated file it is the mark of cells shifted by a decimal comma.
 * Plausibility, in percent of the spiked amount: found amounts (or recovery_pct) above 150 %
-  are errors; with both phases measured a mass balance outside 90-110 % is a warning; one
-  phase (or recovery_pct) above 110 % is a warning.
+  are errors; a recovery above 100 % (recovery_pct, found_organic alone, or found_organic of
+  a both-phase run) or one found amount above 100 % is a warning with its run; with both
+  phases measured a mass balance outside 90-110 % is a warning.
+* A ``,``-separated CSV row whose cell count differs from the header's is refused by the
+  reader (see :mod:`extractval.tables`): a decimal comma there splits ``3,98`` into pH 3 and
+  98 mL and shifts every later cell.
+* ``header_row`` in study.yaml gives the line (CSV) or sheet row of the header when a title
+  sits above it; without it, a header found further down is reported with that fix.
 * Columns that the contract does not know are warnings (ignored), unless they look like a
   misspelling of a known column, which is an error.
 """
@@ -43,7 +56,8 @@ import yaml
 if TYPE_CHECKING:
     from .calibration_input import CalibrationSet
 from .errors import Problem, StudyError
-from .tables import EXTENSIONS, Location, Table, TableRow, decode_text, parse_number, read_table
+from .tables import (EXTENSIONS, HeaderRules, Location, Table, TableRow, decode_text,
+                     parse_number, read_table)
 
 __all__ = ["MODELS", "AdviceRequest", "InputFile", "Location", "Procedure", "Run", "Study",
            "Targets", "check_study", "discover_studies", "display_path", "load_study"]
@@ -84,10 +98,10 @@ class Run:
 
     @property
     def measurement(self) -> str:
-        if self.recovery_pct is not None:
-            return "recovery"
+        # a recovery_pct beside found amounts agrees with them (checked on reading) and is
+        # kept for the record: the amounts are the measurement
         if self.found_aqueous is None and self.found_organic is None:
-            return "none"
+            return "recovery" if self.recovery_pct is not None else "none"
         if self.found_aqueous is not None and self.found_organic is not None:
             return "both"
         return "organic" if self.found_organic is not None else "aqueous"
@@ -245,11 +259,12 @@ STUDY_FILE = "study.yaml"
 #: Plausibility of found amounts, in percent of the spiked amount (module docstring).
 IMPLAUSIBLE_PCT = 150.0
 MASS_BALANCE_BAND_PCT = (90.0, 110.0)
-ONE_PHASE_HIGH_PCT = 110.0
+#: above it a recovery (one phase found, or recovery_pct) is more than was spiked: a warning
+ONE_PHASE_HIGH_PCT = 100.0
 
 _KEYS = {
-    "": ("title", "analyte", "system", "runs", "sheet", "targets", "procedures", "advice",
-         "impurities", "calibration"),
+    "": ("title", "analyte", "system", "runs", "sheet", "header_row", "targets", "procedures",
+         "advice", "impurities", "calibration"),
     "analyte": ("name", "model", "ion_pair", "level"),
     "system": ("aqueous", "organic", "temperature_C"),
     "targets": ("recovery_pct", "max_rsd_pct", "mass_balance_pct", "ratio_agreement_log",
@@ -465,6 +480,10 @@ def _ph(value: float) -> str | None:
 
 def _percent_target(value: float) -> str | None:
     return None if 0.0 < value <= 100.0 else "a percentage above 0 and at most 100"
+
+
+def _row_number(value: float) -> str | None:
+    return None if value >= 1 and value == int(value) else "a whole number from 1"
 
 
 def _non_negative(value: float) -> str | None:
@@ -1028,6 +1047,8 @@ def _runs(table: Table, problems: list[Problem], check_forms: bool) -> list[Run]
     runs: list[Run] = []
     seen: dict[str, Location] = {}
     for row in table.rows:
+        if row.misaligned:     # reported by the reader: its cells sit under wrong columns
+            continue
         before = _n_errors(problems)
         run = _run(reader, row, seen, check_forms)
         if run is not None and _n_errors(problems) == before:
@@ -1089,6 +1110,15 @@ def _excluded(reader: _RowReader, row: TableRow, run) -> str | None:
         reader.report(row, run, "excluded", "run excluded without a reason", found=reason,
                       expected="the reason, e.g. 'emulsion did not separate'",
                       severity="warning")
+    elif parse_number(reason, reader.table.decimal_comma) is not None:
+        shifted = (": in a ','-separated file a decimal comma earlier in the row splits a "
+                   "number and shifts the cells after it; separate the cells with ';' or quote "
+                   "such numbers" if reader.table.separator == "," else "")
+        reader.report(row, run, "excluded", "a number where the reason for excluding the run "
+                      "is expected" + shifted, found=reason,
+                      expected="empty to keep the run, or the reason to exclude it, e.g. "
+                               "'emulsion did not separate'")
+        return None
     return reason
 
 
@@ -1121,14 +1151,6 @@ def _measurement(reader: _RowReader, row: TableRow, run, excluded: str | None,
         ok = False
     if not check_forms:
         return None
-    if excluded:
-        # the run is kept for the record only: no form rule, no plausibility limit
-        if not ok:
-            return None
-        if rec is not None:
-            return {"recovery_pct": rec, "spiked": spiked, "found_aqueous": aq,
-                    "found_organic": org, **responses}
-        return {"spiked": spiked, "found_aqueous": aq, "found_organic": org, **responses}
 
     filled = {c for c in ("spiked", "found_aqueous", "found_organic", "recovery_pct")
               if c in headers and row.raw(c) != ""}
@@ -1142,20 +1164,32 @@ def _measurement(reader: _RowReader, row: TableRow, run, excluded: str | None,
                 return None
             filled.add(f"found_{phase}")     # a response stands for the found amount
     amount_cols = filled & set(AMOUNT_COLUMNS)
+    found_filled = amount_cols - {"spiked"}
     found_cols = [c for c in ("found_aqueous", "found_organic") if c in headers]
-    if "recovery_pct" in filled and amount_cols:
-        reader.report(row, run, "recovery_pct", "two measurement forms in one row",
-                      found="recovery_pct and " + ", ".join(sorted(amount_cols)),
-                      expected="either recovery_pct alone, or spiked with found_aqueous and/or "
-                               "found_organic (leave the other cells empty)")
-        return None
+    record = {"spiked": spiked, "found_aqueous": aq, "found_organic": org, **(responses or {})}
+    if "recovery_pct" in filled and found_filled:
+        if "found_organic" not in found_filled or "spiked" not in filled \
+                or row.raw("found_organic") == "":
+            reader.report(row, run, "recovery_pct", "two measurement forms in one row",
+                          found="recovery_pct and " + ", ".join(sorted(amount_cols)),
+                          expected="either recovery_pct (with or without spiked), or spiked "
+                                   "with found_aqueous and/or found_organic (leave the other "
+                                   "cells empty); recovery_pct beside found_organic needs "
+                                   "spiked, and the three must agree")
+            return None
+        if ok and not _recovery_agrees(reader, row, run, rec, org, spiked):
+            return None
     if not filled:
+        if excluded:     # a run left out before anything was measured (a broken flask)
+            return record
         cols = [c for c in ("spiked", *found_cols, "recovery_pct") if c in headers]
         reader.report(row, run, ", ".join(cols), "no measurement in this row", found="",
                       expected="spiked with found_aqueous and/or found_organic, or "
                                "recovery_pct")
         return None
-    if amount_cols and "spiked" not in filled:
+    if found_filled and "spiked" not in filled:
+        if excluded:     # an incomplete record may be why the run was left out
+            return record if ok else None
         if "spiked" in headers:
             reader.report(row, run, "spiked", "empty cell: found amounts need the spiked amount",
                           found="", expected="the spiked amount, greater than 0")
@@ -1164,26 +1198,67 @@ def _measurement(reader: _RowReader, row: TableRow, run, excluded: str | None,
                           "column", found=", ".join(sorted(amount_cols)),
                           expected="a spiked column beside found_aqueous/found_organic")
         return None
-    if amount_cols == {"spiked"}:
+    if filled == {"spiked"}:
+        if excluded:
+            return record if ok else None
         reader.report(row, run, ", ".join(found_cols) or "found_organic",
                       "empty cell: a spiked amount needs at least one found amount", found="",
-                      expected="found_aqueous and/or found_organic")
+                      expected="found_aqueous and/or found_organic, or recovery_pct")
         return None
     if not ok:
         return None
-    if rec is not None:
+    # plausibility holds for excluded runs too: an exclusion reason must not hide a typo
+    if not found_filled:
         _plausible(reader, row, run, "recovery_pct", rec, one_phase=True,
                    found=row.raw("recovery_pct") + " %")
-        return {"recovery_pct": rec}
+        return {"recovery_pct": rec, "spiked": spiked}
     if any(v is not None for v in responses.values()):
         # amounts come from the calibration later (calibration_input.quantify_runs)
-        return {"spiked": spiked, "found_aqueous": aq, "found_organic": org, **responses}
+        return record
     pct = 100.0 * ((aq or 0.0) + (org or 0.0)) / spiked
     both = aq is not None and org is not None
     col = "found_aqueous + found_organic" if both else (
         "found_aqueous" if aq is not None else "found_organic")
-    _plausible(reader, row, run, col, pct, one_phase=not both, found=f"{pct:.1f} % of spiked")
-    return {"spiked": spiked, "found_aqueous": aq, "found_organic": org}
+    _plausible(reader, row, run, col, pct, one_phase=not both, found=f"{pct:.1f} % of spiked",
+               organic_pct=100.0 * org / spiked if both else None)
+    return {**record, "recovery_pct": rec}
+
+
+def _half_unit(text: str) -> float:
+    """Half a unit in the last digit a number is written with: the rounding it may carry.
+
+    >>> _half_unit("98.5"), _half_unit("100"), _half_unit("7,25"), _half_unit("1.5e2")
+    (0.05, 0.5, 0.005, 5.0)
+    """
+    mantissa, _, exponent = text.strip().replace(",", ".").lower().partition("e")
+    decimals = len(mantissa.partition(".")[2])
+    return 0.5 * 10.0 ** (int(exponent or 0) - decimals)
+
+
+#: Smallest disagreement allowed between recovery_pct and 100 found_organic / spiked, in
+#: percentage points, on top of the rounding of the cells (float arithmetic only).
+RECOVERY_AGREEMENT_FLOOR = 1e-9
+
+
+def _recovery_agrees(reader: _RowReader, row: TableRow, run, rec: float, org: float,
+                     spiked: float) -> bool:
+    """recovery_pct against 100 found_organic / spiked, within the rounding of the three
+    cells as written (half a unit in each one's last digit, carried through the quotient);
+    an error when they disagree beyond it, since the row cannot say which cell is right."""
+    computed = 100.0 * org / spiked
+    tol = (_half_unit(row.raw("recovery_pct")) + 100.0 * _half_unit(row.raw("found_organic"))
+           / spiked + 100.0 * org * _half_unit(row.raw("spiked")) / spiked ** 2
+           + RECOVERY_AGREEMENT_FLOOR)
+    if abs(rec - computed) <= tol:
+        return True
+    reader.report(row, run, "recovery_pct", "recovery_pct does not agree with found_organic / "
+                  "spiked in the same row, so one of the cells is wrong",
+                  found=f"{row.raw('recovery_pct')} % against 100 x {row.raw('found_organic')}"
+                        f" / {row.raw('spiked')} = {computed:.6g} %",
+                  expected=f"agreement within {tol:.2g} percentage points (the rounding of the "
+                           "three cells as written); a recovery corrected after the amounts "
+                           "were found (e.g. for a blank) goes alone, without found_organic")
+    return False
 
 
 def _responses(reader: _RowReader, row: TableRow, run) -> dict | None:
@@ -1214,20 +1289,28 @@ def _responses(reader: _RowReader, row: TableRow, run) -> dict | None:
 
 
 def _plausible(reader: _RowReader, row: TableRow, run, column: str, pct: float, *,
-               one_phase: bool, found: str) -> None:
-    """Error above 150 % of spiked; warning outside 90-110 % (both phases) or above 110 %."""
+               one_phase: bool, found: str, organic_pct: float | None = None) -> None:
+    """Error above 150 % of spiked; warning above 100 % in one phase (a recovery above 100 %)
+    or outside 90-110 % for both phases together."""
     if pct > IMPLAUSIBLE_PCT:
         reader.report(row, run, column, "more analyte found than plausibly spiked", found=found,
                       expected=f"at most {IMPLAUSIBLE_PCT:g} % of the spiked amount")
         return
     lo, hi = MASS_BALANCE_BAND_PCT
+    high = (f"at most {ONE_PHASE_HIGH_PCT:g} % of spiked (above it, check the calibration, "
+            f"the spike and the blank; above {IMPLAUSIBLE_PCT:g} % it is an error)")
     if one_phase and pct > ONE_PHASE_HIGH_PCT:
-        reader.report(row, run, column, "found in one phase exceeds the spiked amount",
-                      found=found, expected=f"at most {ONE_PHASE_HIGH_PCT:g} % of spiked",
-                      severity="warning")
-    elif not one_phase and not lo <= pct <= hi:
-        reader.report(row, run, column, "mass balance outside the usual band", found=found,
-                      expected=f"{lo:g} to {hi:g} % of spiked", severity="warning")
+        what = ("recovery above 100 %" if column in ("recovery_pct", "found_organic")
+                else "found in one phase exceeds the spiked amount")
+        reader.report(row, run, column, what, found=found, expected=high, severity="warning")
+    elif not one_phase:
+        if not lo <= pct <= hi:
+            reader.report(row, run, column, "mass balance outside the usual band", found=found,
+                          expected=f"{lo:g} to {hi:g} % of spiked", severity="warning")
+        if organic_pct is not None and organic_pct > ONE_PHASE_HIGH_PCT:
+            reader.report(row, run, "found_organic", "recovery above 100 %",
+                          found=f"{organic_pct:.1f} % of spiked", expected=high,
+                          severity="warning")
 
 
 # -- the study -------------------------------------------------------------------------------------
@@ -1342,12 +1425,19 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
     impurity_specs = _impurities(doc, entries)
     sheet = doc.text(entries, root, "", "sheet", required=False,
                      expected="the name of the sheet holding the runs")
+    header_row = doc.number(entries, root, "", "header_row", required=False,
+                            check=_row_number,
+                            expected="the line (CSV) or sheet row of the runs table's header, "
+                                     "e.g. 2")
     runs_path = _runs_path(doc, entries, root, folder)
 
     runs: list[Run] = []
     runs_digest = None
     if runs_path is not None:
-        table, more = read_table(runs_path, display=display_path(runs_path), sheet=sheet)
+        rules = HeaderRules(row=None if header_row is None else int(header_row),
+                            names=frozenset(COLUMNS), id_column="run")
+        table, more = read_table(runs_path, display=display_path(runs_path), sheet=sheet,
+                                 rules=rules)
         problems.extend(more)
         if table is not None:
             runs_digest = table.sha256

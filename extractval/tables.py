@@ -17,6 +17,22 @@ Rules for numbers
   are numbers too; other text stays text. Booleans and dates stay text.
 * ``nan``, ``inf`` and thousands separators are never numbers.
 
+Rows that do not line up
+------------------------
+In a ``,``-separated CSV a decimal comma splits a number (``R10,3,98,...`` is pH 3 and 98 mL),
+and every later cell moves one column right, often into optional columns that accept anything.
+So there a row with more cells than the header is an error naming the two cells that may be
+one number; a row with fewer cells is the usual hand-typed row that leaves out its empty end,
+and is refused only when it writes no decimal point and two neighbouring whole numbers could be
+one split number. Such a row is kept as ``misaligned`` and its cells are not read.
+
+The header
+----------
+The header is the first non-blank row, or the row :class:`HeaderRules` names. When the caller
+gives the expected names and the first row holds fewer than two of them while a row below
+holds three or more, the table is refused with the row where the header seems to be (a title
+or a merged title cell above the header).
+
 Size limits
 -----------
 A shake-flask study has tens of runs (OECD TG 107: three volume ratios in duplicate at each
@@ -94,6 +110,9 @@ class TableRow:
     cells: dict[str, Cell]
     location: Location
     text: dict[str, str] = field(default_factory=dict)
+    #: the cells do not line up with the header (a ','-separated row with a cell count off,
+    #: see :func:`_misaligned`); already reported, so a reader should not read it as a record
+    misaligned: bool = False
 
     def raw(self, column: str) -> str:
         return self.text.get(column, "")
@@ -158,13 +177,30 @@ def format_number(value: float) -> str:
     return repr(float(value))
 
 
-def read_table(path, display: str | None = None,
-               sheet: str | None = None) -> tuple[Table | None, list[Problem]]:
+@dataclass(frozen=True)
+class HeaderRules:
+    """Where the header is and what it should hold, for the header checks of :func:`_build`.
+
+    ``row`` is the 1-based line (CSV) or sheet row of the header, None for the first non-blank
+    row; ``names`` are normalised column names the header is expected to hold (a header found
+    further down is then reported, see :func:`_header_further_down`); ``id_column`` names the
+    column whose cell identifies a row in messages (the run id).
+    """
+
+    row: int | None = None
+    names: frozenset[str] = frozenset()
+    id_column: str | None = None
+
+
+def read_table(path, display: str | None = None, sheet: str | None = None,
+               rules: HeaderRules | None = None) -> tuple[Table | None, list[Problem]]:
     """Read ``path`` by its extension; return the table (None if unreadable) and the problems.
 
     ``display`` is the path shown in messages (default: ``path`` as given); ``sheet`` picks a
-    sheet by name in a workbook (default: the first). Never raises for bad content.
+    sheet by name in a workbook (default: the first); ``rules`` say where the header is and
+    what it holds (default: the first non-blank row). Never raises for bad content.
     """
+    rules = rules or HeaderRules()
     path = Path(path)
     shown = display if display is not None else str(path)
     ext = path.suffix.lower()
@@ -188,11 +224,11 @@ def read_table(path, display: str | None = None,
             problems.append(Problem("a sheet name was given but the runs table is a CSV file; "
                                     "the sheet name is ignored", file=shown, found=sheet,
                                     expected="no sheet for a CSV file", severity="warning"))
-        table, more = read_csv_bytes(data, shown)
+        table, more = read_csv_bytes(data, shown, rules)
     elif ext == ".xlsx":
-        table, more = _read_xlsx(data, shown, sheet)
+        table, more = _read_xlsx(data, shown, sheet, rules)
     else:
-        table, more = _read_ods(data, shown, sheet)
+        table, more = _read_ods(data, shown, sheet, rules)
     problems.extend(more)
     if table is not None:
         table = replace(table, sha256=digest)
@@ -227,11 +263,16 @@ def decode_text(data: bytes, shown: str) -> tuple[str | None, list[Problem]]:
 
 
 def _sniff_separator(lines: list[str]) -> str:
-    """The separator that splits the header into most fields, data rows agreeing on a tie."""
+    """The separator that splits the header into most fields, data rows agreeing on a tie.
+
+    Leading lines that no separator splits (a title line above the header) are passed over.
+    """
     best, best_score = ",", (0, 0)
     for sep in SEPARATORS:
         rows = list(csv.reader(lines, delimiter=sep))
         rows = [r for r in rows if any(c.strip() for c in r)]
+        while len(rows) > 1 and len(rows[0]) == 1:
+            rows = rows[1:]
         if not rows:
             continue
         width = len(rows[0])
@@ -261,8 +302,10 @@ def count_lines(data: bytes) -> int:
     return breaks + (1 if data and not data.endswith((b"\n", b"\r")) else 0)
 
 
-def read_csv_bytes(data: bytes, shown: str) -> tuple[Table | None, list[Problem]]:
+def read_csv_bytes(data: bytes, shown: str,
+                   rules: HeaderRules | None = None) -> tuple[Table | None, list[Problem]]:
     """Parse CSV bytes; lines are 1-based physical lines (a BOM or ``sep=`` line counts)."""
+    rules = rules or HeaderRules()
     n_lines = count_lines(data)
     if n_lines > MAX_ROWS:
         return None, [too_long(shown, f"{n_lines} lines", "line", line=MAX_ROWS + 1)]
@@ -278,7 +321,8 @@ def read_csv_bytes(data: bytes, shown: str) -> tuple[Table | None, list[Problem]
             separator, first_data = m.group(1), 1
     body = lines[first_data:]
     if separator is None:
-        separator = _sniff_separator(body[:50])
+        start = max(0, (rules.row or 1) - 1 - first_data)
+        separator = _sniff_separator(body[start:start + 50])
 
     records: list[tuple[int, list[str]]] = []
     # strict: a quote left open must not swallow the rest of the file into one cell
@@ -302,7 +346,8 @@ def read_csv_bytes(data: bytes, shown: str) -> tuple[Table | None, list[Problem]
             "the cells with ';', or quote such numbers" if separator == "," else "")
     table, more = _build(records, shown, kind="csv",
                          convert=lambda s: _convert_text(s, decimal_comma),
-                         located=lambda n: Location(shown, line=n), surplus_hint=hint)
+                         located=lambda n: Location(shown, line=n), surplus_hint=hint,
+                         rules=rules, same_width=separator == ",")
     problems.extend(more)
     if table is None:
         return None, problems
@@ -319,12 +364,16 @@ def _convert_text(s: str, decimal_comma: bool) -> tuple[Cell, str]:
 # -- shared: header, blank rows, cells beyond the header -----------------------------------------
 
 def _build(records, shown: str, *, kind: str, convert, located, sheet: str | None = None,
-           surplus_hint: str = "") -> tuple[Table | None, list[Problem]]:
+           surplus_hint: str = "", rules: HeaderRules | None = None,
+           same_width: bool = False) -> tuple[Table | None, list[Problem]]:
     """Turn (line-or-row number, raw cells) records into a Table.
 
     ``convert`` maps one raw cell to (value, text); ``located`` maps a number to a Location;
-    ``surplus_hint`` is added to the message about data beyond the header's last column.
+    ``surplus_hint`` is added to the message about data beyond the header's last column;
+    ``rules`` place and check the header; ``same_width`` (a ','-separated CSV) makes a row
+    whose cell count differs from the header's an error (see :func:`_misaligned`).
     """
+    rules = rules or HeaderRules()
     problems: list[Problem] = []
     converted = []
     for number, raw in records:
@@ -336,6 +385,32 @@ def _build(records, shown: str, *, kind: str, convert, located, sheet: str | Non
         problems.append(Problem("the runs table is empty: no header row", **where,
                                 expected="a header row naming the columns, then one row per run"))
         return None, problems
+    unit = "line" if kind == "csv" else "row"
+    if rules.row is not None:
+        at = [i for i, (number, _) in enumerate(converted) if number == rules.row]
+        if not at:
+            where = {k: v for k, v in located(rules.row).where().items()
+                     if k in ("file", "sheet")}
+            first = converted[0][0]
+            problems.append(Problem(
+                f"header_row in study.yaml points at {unit} {rules.row}, which holds no "
+                "cells", **where, found=f"header_row: {rules.row}",
+                expected=f"the {unit} number of the header (the first {unit} with cells is "
+                         f"{first})"))
+            return None, problems
+        # the rows above the header are a title or notes, by the study's own declaration
+        converted = converted[at[0]:]
+    elif rules.names:
+        moved = _header_further_down(converted, rules.names)
+        if moved is not None:
+            first = converted[0][0]
+            problems.append(Problem(
+                f"the header seems to be on {unit} {moved}, not on {unit} {first} (a title "
+                f"or a merged cell above it?); set `header_row: {moved}` in study.yaml",
+                **located(first).where(), found=_joined([t for _, t in converted[0][1]]),
+                expected=f"the header (run, pH, ...) on the first {unit} with cells, or "
+                         "header_row in study.yaml"))
+            return None, problems
 
     header_no, header_cells = converted[0]
     header_loc = located(header_no)
@@ -358,10 +433,21 @@ def _build(records, shown: str, *, kind: str, convert, located, sheet: str | Non
 
     rows: list[TableRow] = []
     reported_unnamed: set[int] = set()
+    width = len(header_cells)
     for number, cells in converted[1:]:
         loc = located(number)
         values: dict[str, Cell] = {n: None for n in headers}
         texts: dict[str, str] = {n: "" for n in headers}
+        shifted = _misaligned([t for _, t in cells], names, headers, width, unit,
+                              header_no) if same_width else None
+        if shifted is not None:
+            ident = None
+            if rules.id_column in names:
+                at = names.index(rules.id_column)
+                ident = cells[at][1] or None if at < len(cells) else None
+            problems.append(replace(shifted, **loc.where(), run=ident))
+            rows.append(TableRow(values, loc, texts, misaligned=True))
+            continue
         for i, (value, text) in enumerate(cells):
             name = names[i] if i < len(names) else None
             if name is None:
@@ -379,6 +465,81 @@ def _build(records, shown: str, *, kind: str, convert, located, sheet: str | Non
         rows.append(TableRow(values, loc, texts))
     table = Table(shown, tuple(headers), tuple(rows), header_loc, headers, kind, sheet=sheet)
     return table, problems
+
+
+_INTEGER = re.compile(r"^[+-]?\d+$")
+_DIGITS = re.compile(r"^\d+$")
+
+
+def _joined(texts: list[str], limit: int = 120) -> str:
+    """A row's cells as the file writes them, shortened for a message."""
+    line = ",".join(texts)
+    return line if len(line) <= limit else line[:limit - 3] + "..."
+
+
+def _splits(texts: list[str]) -> list[tuple[int, str]]:
+    """Neighbouring cells that read as one number with a decimal comma: (index, 'a,b')."""
+    return [(i, f"{a},{b}") for i, (a, b) in enumerate(zip(texts, texts[1:]))
+            if _INTEGER.match(a) and _DIGITS.match(b)]
+
+
+def _misaligned(texts: list[str], names: list, headers: dict, width: int, unit: str,
+                header_no: int) -> Problem | None:
+    """The problem of a ','-separated row whose cell count differs from the header's.
+
+    Every row a spreadsheet writes has the header's cell count. More cells mean something
+    split a cell (a decimal comma: ``3,98`` is two cells), so every cell after it sits under
+    the wrong column. Fewer cells are the usual hand-typed row that leaves out empty cells at
+    its end, harmless unless two neighbouring whole numbers could be one split number (``3``
+    and ``98``) and no cell of the row writes a decimal point: then a split and an omission
+    may cancel out, and the row is refused too.
+    """
+    n = len(texts)
+    # text beyond the header's last column is not the tail of a split number
+    surplus_text = any(t and parse_number(t) is None for t in texts[width:])
+    splits = [] if surplus_text else _splits(texts)
+    # a short row that writes a decimal point is taken to write its decimals with points
+    if n == width or (n < width and (not splits or any("." in t for t in texts))):
+        return None
+
+    def column(i: int) -> str:
+        name = names[i] if i < len(names) else None
+        return headers[name] if name else f"field {i + 1}"
+
+    if splits:
+        i, joined = splits[0]
+        maybe = (f"; perhaps the cells under {column(i)!r} and {column(i + 1)!r} "
+                 f"({texts[i]!r} and {texts[i + 1]!r}) are one number, "
+                 f"{joined.replace(',', '.')}, written with a decimal comma")
+    else:
+        i, maybe = min(n, width), ""
+    fix = ("write decimals with a point, or separate the cells with ';' when decimals are "
+           "written with a comma (or quote such numbers: \"3,98\")")
+    if n < width:
+        fix += (f"; if cells were left out at the end of the row, write one ',' for each "
+                f"empty cell so that the row has {width} cells")
+    return Problem(
+        f"the row has {n} cells but the header ({unit} {header_no}) has {width}: its cells "
+        f"may be shifted under the wrong columns, so the row is not read{maybe}",
+        column=column(i), found=_joined(texts),
+        expected=f"{width} cells, one under each header name: {fix}")
+
+
+def _header_further_down(converted, names: frozenset[str], look: int = 20) -> int | None:
+    """The line or row of a header below the first row, when the first row is not one.
+
+    A first row holding fewer than two of the expected ``names`` while a row among the next
+    ``look`` holds at least three is a title row (or a merged title cell) above the header.
+    """
+    def hits(cells) -> int:
+        return sum(normalise_header(t) in names for _, t in cells if t)
+
+    if hits(converted[0][1]) >= 2:
+        return None
+    for number, cells in converted[1:look + 1]:
+        if hits(cells) >= 3:
+            return number
+    return None
 
 
 def _column_label(kind: str, index: int) -> str:
@@ -467,7 +628,8 @@ def _xlsx_unsized_rows(data: bytes) -> tuple[str, int] | None:
     return None
 
 
-def _read_xlsx(data: bytes, shown: str, sheet: str | None) -> tuple[Table | None, list[Problem]]:
+def _read_xlsx(data: bytes, shown: str, sheet: str | None,
+               rules: HeaderRules) -> tuple[Table | None, list[Problem]]:
     import openpyxl
 
     unsized = _xlsx_unsized_rows(data)
@@ -515,7 +677,8 @@ def _read_xlsx(data: bytes, shown: str, sheet: str | None) -> tuple[Table | None
         wb.close()
     title = names[index]
     return _build(records, shown, kind="xlsx", convert=lambda c: _sheet_cell(*c),
-                  located=lambda n: Location(shown, row=n, sheet=title), sheet=title)
+                  located=lambda n: Location(shown, row=n, sheet=title), sheet=title,
+                  rules=rules)
 
 
 # -- ODS ------------------------------------------------------------------------------------------
@@ -610,7 +773,8 @@ def _ods_size(data: bytes) -> tuple[int, int] | None:
         return None
 
 
-def _read_ods(data: bytes, shown: str, sheet: str | None) -> tuple[Table | None, list[Problem]]:
+def _read_ods(data: bytes, shown: str, sheet: str | None,
+              rules: HeaderRules) -> tuple[Table | None, list[Problem]]:
     from odf.namespaces import TABLENS
     from odf.opendocument import load
 
@@ -663,4 +827,5 @@ def _read_ods(data: bytes, shown: str, sheet: str | None) -> tuple[Table | None,
         number += repeat
     title = names[index]
     return _build(records, shown, kind="ods", convert=lambda c: c,
-                  located=lambda n: Location(shown, row=n, sheet=title), sheet=title)
+                  located=lambda n: Location(shown, row=n, sheet=title), sheet=title,
+                  rules=rules)

@@ -286,12 +286,13 @@ def test_row_without_any_measurement(tmp_path):
 
 def test_two_forms_in_one_row(tmp_path):
     header = ",".join(HEADER) + ",recovery_pct"
-    csv = (f"{header}\nR1,7.0,10,10,100,40,59,\nR2,8.0,10,10,100,,79,79\n"
+    # recovery_pct beside the aqueous amount alone: the organic recovery cannot be checked
+    csv = (f"{header}\nR1,7.0,10,10,100,40,59,\nR2,8.0,10,10,100,20,,79\n"
            "R3,9.0,10,20,,,,96\n")
     study, problems = check_csv(tmp_path, csv)
     p = only(problems, "two measurement forms")
     assert (p.line, p.run, p.column) == (3, "R2", "recovery_pct")
-    assert p.found == "recovery_pct and found_organic, spiked"
+    assert p.found == "recovery_pct and found_aqueous, spiked"
     assert len(errors(problems)) == 1   # R1 (both phases) and R3 (recovery) are fine
 
 
@@ -343,11 +344,12 @@ def test_negative_recovery_is_an_error(tmp_path):
 
 # -- excluded runs -------------------------------------------------------------------------------
 
-def test_excluded_run_is_kept_without_form_or_plausibility_checks(tmp_path):
+def test_excluded_run_is_kept_without_a_complete_form(tmp_path):
+    # plausibility still applies to excluded runs: see tests/test_input_misreads.py
     header = ",".join(HEADER) + ",excluded,note"
     csv = (f"{header}\nR1,7.0,10,10,100,40,59,,\n"
            "R2,8.0,10,10,100,,,flask broke during shaking,\n"
-           "R3,9.0,10,20,100,95,96,contaminated glassware,high blank\n")
+           "R3,9.0,10,20,100,5,96,contaminated glassware,high blank\n")
     study, problems = check_csv(tmp_path, csv)
     assert problems == []
     assert [r.run_id for r in study.used_runs] == ["R1"]
@@ -392,9 +394,10 @@ def test_duplicate_column(tmp_path):
 
 def test_data_beyond_the_header(tmp_path):
     _, problems = check_csv(tmp_path, runs_with("R2,8.0,10,10,100,20,79,surplus"))
-    p = only(problems, "more cells than the header has names")
-    assert (p.line, p.column, p.found) == (3, "field 8", "surplus")
-    assert "decimal comma" in p.message
+    p = only(problems, "the row has 8 cells but the header (line 1) has 7")
+    assert (p.line, p.run, p.column, p.found) == (3, "R2", "field 8",
+                                                  "R2,8.0,10,10,100,20,79,surplus")
+    assert "separate the cells with ';'" in p.expected
 
 
 def test_data_under_an_empty_header_cell(tmp_path):
