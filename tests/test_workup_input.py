@@ -157,3 +157,36 @@ def test_bad_steps_are_located(tmp_path, steps, message):
     assert study is None
     assert any(message in p.message and p.line and "procedures[2]" in (p.key or "")
                for p in _errors(problems)), _errors(problems)
+
+
+def test_selectivity_section_numbers_are_the_dicts(tmp_path):
+    """The study page's work-up section shows each register number of 'selectivity' from its
+    pointer in the dict (same check as tests/test_report_pages.py, restricted to this part)."""
+    import html
+    import json
+    import re
+    from pathlib import Path
+
+    from extractval.report.pages import Pages, StudyInput
+    from extractval.report.plots import plot_name
+    from extractval.report.register import Dossier, fmt_number, resolve, study_register
+
+    folder = write_study(tmp_path, yaml_text=_yaml(IMPURITY_MEASURED, STEPS), runs=RUNS)
+    d = json.loads(json.dumps(fit_study(load_study(folder)).to_dict(), allow_nan=False))
+    templates = Path(__file__).resolve().parent.parent / "site_templates"
+    dossier = Dossier("dv-000000000000", "extractval 0.0-test", "2026-01-01 00:00 UTC")
+    shown = StudyInput(d["study"], d, key="sv-x", plots=(plot_name("separation"),))
+    page = Pages(templates, trace=True).study_page(shown, dossier)
+    assert "## Impurities and work-up" in page and "### Work-up of P2" in page
+    spans = re.findall(r'data-src="([^"]*)">([^<]*)</span>', page)
+    on_page = {html.unescape(src) for src, _ in spans}
+    sel_numbers = [n for q in study_register(d) for n in q.numbers
+                   if n.source.startswith("/selectivity/")]
+    assert len(sel_numbers) > 10
+    for n in sel_numbers:
+        assert n.source in on_page, n.identifier
+    for src, text in spans:
+        if src.startswith("/selectivity/"):
+            value = resolve(d, html.unescape(src))
+            assert html.unescape(text).removesuffix(" %") in {
+                fmt_number(value, st) for st in ("pct", "frac", "log", "pH", "mL", "g")}

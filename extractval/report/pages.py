@@ -208,6 +208,15 @@ class StudyView:
     def procedures(self) -> list[tuple[int, dict]]:
         return list(enumerate(self.d.get("procedures", [])))
 
+    def impurities(self) -> list[tuple[int, dict]]:
+        return list(enumerate((self.d.get("selectivity") or {}).get("impurities") or []))
+
+    def workups(self) -> list[tuple[int, dict]]:
+        """The work-up predictions worth a section: procedures with steps or impurities."""
+        sel = self.d.get("selectivity") or {}
+        return [(k, w) for k, w in enumerate(sel.get("procedures") or [])
+                if len(w["steps"]) > 1 or sel.get("impurities")]
+
     def plot(self, kind: str, procedure_id: str | None = None) -> str:
         return plot_name(kind, procedure_id)
 

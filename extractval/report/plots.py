@@ -590,12 +590,85 @@ def design_space_plot(d: dict) -> bytes | None:
     return None if fig is None else _svg(fig)
 
 
+@_styled
+def separation_plot(d: dict) -> bytes | None:
+    """log10 separation factor against pH for each impurity, with its 95 % band."""
+    curves = {k: c for k, c in ((d.get("selectivity") or {}).get("separation") or {}).items()
+              if c.get("pH")}
+    if not curves:
+        return None
+    fig, ax = _figure("separation", _rows(2 * len(curves), 2))
+    for i, (name, c) in enumerate(curves.items()):
+        colour = SERIES[i % len(SERIES)]
+        ax.fill_between(c["pH"], _nan(c["lo"]), _nan(c["hi"]), color=colour, alpha=0.25,
+                        linewidth=0, label=f"95 % band, {_plain(name)}")
+        ax.plot(c["pH"], _nan(c["log_beta"]), color=colour, marker=MARKERS[i % len(MARKERS)],
+                markersize=3, markevery=4, label=f"analyte over {_plain(name)}",
+                gid=f"separation-{i}")
+    ax.axhline(0.0, color=INK, linewidth=0.8)
+    ax.set_xlabel("pH")
+    ax.set_ylabel("log\u2081\u2080 separation factor \u03b2")
+    _legend(ax, ncols=2)
+    return _svg(fig)
+
+
+@_styled
+def purity_map_plot(d: dict, k: int) -> bytes | None:
+    """Impurity content of the product over (extraction pH, last-step pH) for procedure k;
+    cells whose recovery misses the target at the lower end are hatched, the purest pair
+    that meets it is starred and the procedure's own pair is marked."""
+    pr = ((d.get("selectivity") or {}).get("procedures") or [])[k]
+    best = pr.get("best_pH_pair") or {}
+    grid = best.get("map")
+    if not grid or not grid.get("pH"):
+        return None
+    pH = np.asarray(grid["pH"], dtype=float)
+    content = np.asarray(_nan_grid(grid["log10_impurity_content"]), dtype=float)
+    rec_lo = np.asarray(_nan_grid(grid["recovery_lower_pct"]), dtype=float)
+    # a new figure each time: the colour bar adds an axes that a kept layout would pile up
+    fig, ax = _frame(2)
+    ax.grid(False)
+    fig.subplots_adjust(right=0.86)
+    half = (pH[1] - pH[0]) / 2 if pH.size > 1 else 0.125
+    edges = np.concatenate([pH - half, [pH[-1] + half]])
+    mesh = ax.pcolormesh(edges, edges, content.T, cmap=MAP_CMAP + "_r", shading="flat",
+                         edgecolors="face", linewidth=0.0,
+                         rasterized=False)
+    target = best.get("target_recovery_pct")
+    if target is not None:
+        miss = np.where(rec_lo < target, 1.0, np.nan)
+        ax.pcolor(edges, edges, np.ma.masked_invalid(miss.T), hatch="////",
+                  facecolor="none", edgecolor="white", linewidth=0.0)
+    steps = pr["steps"]
+    ax.plot([steps[0]["pH"]], [steps[-1]["pH"]], linestyle="none", marker="D", markersize=7,
+            markerfacecolor="white", markeredgecolor=INK, label="procedure as written")
+    pair = best.get("pair")
+    if pair:
+        ax.plot([pair["extract_pH"]], [pair["last_step_pH"]], linestyle="none", marker="*",
+                markersize=12, markerfacecolor=LIMIT, markeredgecolor="white",
+                label="purest pair meeting the target")
+    handles, labels = ax.get_legend_handles_labels()
+    if target is not None:
+        handles.append(Patch(facecolor=NO_VALUE, edgecolor="white", hatch="////"))
+        labels.append(f"misses {target:g} % at the lower end")
+    cbar = fig.colorbar(mesh, ax=ax, pad=0.02, fraction=0.05)
+    cbar.set_label("log\u2081\u2080 impurities, % of product")
+    ax.set_xlabel("extraction pH")
+    ax.set_ylabel(f"{grid.get('last_step', 'last step')} pH")
+    _legend(ax, handles, labels, ncols=2)
+    return _svg(fig)
+
+
 def plot_name(kind: str, procedure_id: str | None = None) -> str:
     """File name of a plot inside the study's folder of the site."""
     from .register import safe_name
 
     if kind == "portions":
         return f"portions-{safe_name(procedure_id)}.svg"
+    if kind == "purity_map":
+        return f"purity-map-{safe_name(procedure_id)}.svg"
+    if kind == "separation":
+        return "separation-factor.svg"
     return {"log_d": "log-d-vs-ph.svg", "residuals": "residuals-vs-ph.svg",
             "design_space": "design-space.svg"}[kind]
 
@@ -616,4 +689,11 @@ def study_plots(d: dict) -> dict[str, bytes]:
     svg = design_space_plot(d)
     if svg:
         out[plot_name("design_space")] = svg
+    svg = separation_plot(d)
+    if svg:
+        out[plot_name("separation")] = svg
+    for k, pr in enumerate((d.get("selectivity") or {}).get("procedures") or []):
+        svg = purity_map_plot(d, k)
+        if svg:
+            out[plot_name("purity_map", pr["id"])] = svg
     return out

@@ -250,6 +250,7 @@ def study_register(d: dict) -> list[Quantity]:
     out.extend(_verdict_register(sid, "criteria", d.get("verdicts") or [], ["verdicts"], d))
     for k, pr in enumerate(d.get("procedures", [])):
         out.extend(_procedure_register(sid, k, pr, d))
+    out.extend(_selectivity_register(sid, d))
     side = (d.get("outlier_screen") or {}).get("without_flagged") or {}
     for name, p in (side.get("parameters") or {}).items():
         out.append(_q(sid, f"without_flagged/{safe_name(name)}",
@@ -350,6 +351,70 @@ def _procedure_register(sid: str, k: int, pr: dict, d: dict) -> list[Quantity | 
                       f"lower 95 % end of recovery with the total solvent of procedure "
                       f"{pr['id']} in {n} equal portion{'s' if n != 1 else ''}", "%", None,
                       base + ["best_split", i, "recovery_lo_pct"], ("value",), "pct", d))
+    return out
+
+
+def _selectivity_register(sid: str, d: dict) -> list[Quantity | None]:
+    """Impurities' constants, work-up predictions and the best pH pair (``selectivity``)."""
+    sel = d.get("selectivity") or {}
+    out: list[Quantity | None] = []
+    for i, imp in enumerate(sel.get("impurities") or []):
+        name = safe_name(imp["name"])
+        how = "declared" if imp.get("declared") else "fitted"
+        for par, p in (imp.get("parameters") or {}).items():
+            out.append(_q(sid, f"impurity/{name}/{safe_name(par)}",
+                          f"{parameter_text(par)} of impurity {imp['name']} ({how})", "",
+                          p.get("ci95_method") or imp.get("source"),
+                          ["selectivity", "impurities", i, "parameters", par],
+                          ("value", "se", "ci95_lo", "ci95_hi") if "se" in p else ("value",),
+                          "log" if par.startswith("log") else "pH", d))
+    for k, pr in enumerate(sel.get("procedures") or []):
+        pid = safe_name(pr["id"])
+        base = ["selectivity", "procedures", k]
+        m = pr["recovery_pct"].get("ci95_method")
+        out.append(_q(sid, f"{pid}/workup/recovery_pct",
+                      f"recovery of the analyte in the product of procedure {pr['id']} "
+                      f"({pr['product_phase']} phase)", "%", m, base + ["recovery_pct"],
+                      VALUE_CI, "pct", d))
+        if pr.get("impurity_content_pct"):
+            out.append(_q(sid, f"{pid}/workup/impurity_content_pct",
+                          f"impurities' share of the product of procedure {pr['id']} "
+                          "(100 minus the purity)", "%",
+                          pr["impurity_content_pct"].get("ci95_method"),
+                          base + ["impurity_content_pct"], VALUE_CI, "frac", d))
+        for imp, q in (pr.get("carry_over_pct") or {}).items():
+            out.append(_q(sid, f"{pid}/workup/carry_over_pct/{safe_name(imp)}",
+                          f"share of impurity {imp} carried into the product of procedure "
+                          f"{pr['id']}", "%", q.get("ci95_method"),
+                          base + ["carry_over_pct", imp], VALUE_CI, "frac", d))
+        for imp, rows in (pr.get("log_separation_factor") or {}).items():
+            for j, row in enumerate(rows):
+                out.append(_q(sid, f"{pid}/workup/log_beta/{safe_name(imp)}/{row['step']}",
+                              f"log10 separation factor D(analyte)/D({imp}) at step "
+                              f"{row['step']} of procedure {pr['id']}", "",
+                              row.get("ci95_method"),
+                              base + ["log_separation_factor", imp, j], VALUE_CI, "log", d))
+        pair = (pr.get("best_pH_pair") or {}).get("pair")
+        if pair:
+            b = base + ["best_pH_pair", "pair"]
+            out.append(_q(sid, f"{pid}/best_pair/extract_pH",
+                          f"extraction pH of the purest pair meeting the target (procedure "
+                          f"{pr['id']})", "", None, b + ["extract_pH"], ("value",), "pH", d))
+            out.append(_q(sid, f"{pid}/best_pair/last_step_pH",
+                          f"{pair['last_step']} pH of the purest pair meeting the target "
+                          f"(procedure {pr['id']})", "", None, b + ["last_step_pH"],
+                          ("value",), "pH", d))
+            pred = pair["prediction"]
+            out.append(_q(sid, f"{pid}/best_pair/recovery_pct",
+                          f"recovery at the purest pH pair (procedure {pr['id']})", "%",
+                          pred["recovery_pct"].get("ci95_method"),
+                          b + ["prediction", "recovery_pct"], VALUE_CI, "pct", d))
+            if pred.get("impurity_content_pct"):
+                out.append(_q(sid, f"{pid}/best_pair/impurity_content_pct",
+                              f"impurities' share of the product at the purest pH pair "
+                              f"(procedure {pr['id']})", "%",
+                              pred["impurity_content_pct"].get("ci95_method"),
+                              b + ["prediction", "impurity_content_pct"], VALUE_CI, "frac", d))
     return out
 
 
