@@ -275,6 +275,7 @@ class CalibrationFit:
                      self.standards or tuple(str(i + 1) for i in range(self.n)), self.level,
                      self.response, self.predict(self.level), back, re, lim, ok)]
         return {"model": self.model, "weighting": self.weighting,
+                "curve": self.curve_points(),
                 "weighting_chosen_by": self.weighting_chosen_by,
                 "weighting_candidates": self.candidates,
                 "parameters": params, "n_standards": self.n, "dof": self.dof,
@@ -282,6 +283,19 @@ class CalibrationFit:
                 "lloq": clean(self.lowest),
                 "linearity": self.linearity(), "acceptance": self.acceptance(),
                 "standards": table}
+
+
+    #: highest / lowest level above which plots use logarithmic axes
+    LOG_SPAN = 50.0
+
+    def curve_points(self, n: int = 60) -> dict:
+        """The fitted curve on a grid over the standards, for the plot (log-spaced when the
+        levels span more than LOG_SPAN)."""
+        log = self.highest / self.lowest > self.LOG_SPAN if self.lowest > 0 else False
+        grid = (np.geomspace(self.lowest, self.highest, n) if log
+                else np.linspace(self.lowest, self.highest, n))
+        return {"level": [clean(x, 6) for x in grid],
+                "response": [clean(y, 6) for y in self.predict(grid)], "log_axes": bool(log)}
 
 
 def _wls(x: np.ndarray, y: np.ndarray, model: str, weighting: str) -> CalibrationFit:

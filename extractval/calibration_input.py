@@ -70,6 +70,7 @@ class CalibrationSettings:
     unit: str | None = None
     model: str = "linear"
     weighting: str | None = None        # None: chosen by the rule in calibration.py
+    relative: str | None = None         # the table's path inside the study folder
 
 
 @dataclass(frozen=True)
@@ -157,7 +158,8 @@ class CalibrationSet:
 
     def to_dict(self) -> dict:
         s = self.settings
-        return {"table": s.shown, "level": s.level, "unit": s.unit, "model": s.model,
+        return {"table": s.table.name if s.relative is None else s.relative,
+                "level": s.level, "unit": s.unit, "model": s.model,
                 "weighting_requested": s.weighting or "auto",
                 "weighting_rule": WEIGHTING_RULE, "acceptance_rule": ACCEPTANCE_RULE,
                 "status": "pass" if all(c.passes for c in self.curves) else "fail",
@@ -178,7 +180,8 @@ def read_settings(doc, entries, folder: Path, resolve_path) -> CalibrationSettin
         text = doc.text(entries, None, "", "calibration",
                         expected="the calibration table's file name, e.g. calibration.csv")
         path = None if text is None else resolve_path(text, node, "calibration")
-        return None if path is None else CalibrationSettings(path, _shown(path, folder))
+        return None if path is None else CalibrationSettings(
+            path, _shown(path, folder), relative=path.relative_to(folder).as_posix())
     c = doc.mapping(node, "calibration", YAML_KEYS, "calibration")
     if c is None:
         return None
@@ -196,7 +199,8 @@ def read_settings(doc, entries, folder: Path, resolve_path) -> CalibrationSettin
     if path is None or _errors(doc.problems) > before:
         return None
     return CalibrationSettings(path, _shown(path, folder), sheet, level, unit, model,
-                               None if weighting == "auto" else weighting)
+                               None if weighting == "auto" else weighting,
+                               path.relative_to(folder).as_posix())
 
 
 def _choice(doc, c, node, name: str, allowed: tuple[str, ...], default: str) -> str:

@@ -267,3 +267,55 @@ def test_demo_folder_is_not_written(tmp_path):
     shutil.copytree(DEMO, tmp_path / "copy")
     fit_study(load_study(responses_study(tmp_path)))
     assert {p.name: p.read_bytes() for p in DEMO.iterdir()} == before
+
+
+# -- the Calibration section of the study page ------------------------------------------------
+
+def _page_dict(tmp_path, noise=0.0):
+    folder = responses_study(tmp_path, noise=noise)
+    cal = (folder / "calibration.csv").read_text().splitlines()
+    cells = cal[5].split(",")
+    cells[2] = repr(float(cells[2]) * 1.25)         # standard CS3-1 reads 25 % high
+    cal[5] = ",".join(cells)
+    (folder / "calibration.csv").write_text("\n".join(cal) + "\n")
+    return json.loads(json.dumps(fit_study(load_study(folder)).to_dict()))
+
+
+def test_calibration_section_numbers_are_the_dicts_and_in_the_register(tmp_path):
+    import html
+    import re
+
+    from extractval.report.pages import Pages, StudyInput
+    from extractval.report.plots import plot_name, study_plots
+    from extractval.report.register import fmt_number, resolve, study_register
+    from tests.test_report_pages import DOSSIER, SPAN, TEMPLATES
+
+    d = _page_dict(tmp_path)
+    curve = d["calibration"]["curves"][0]
+    assert [r["standard"] for r in curve["standards"] if r["verdict"] == "fail"] == ["CS3-1"]
+    plots = study_plots(d)
+    assert {plot_name("calibration", "curve"), plot_name("calibration_errors", "curve")} \
+        <= set(plots)
+    shown = StudyInput("CAL-EQ", d, plots=tuple(plots))
+    page = Pages(TEMPLATES, trace=True).study_page(shown, DOSSIER)
+    section = page[page.index("## Calibration"):page.index("## Fitted constants")]
+    assert "calibration-curve.svg" in section and "calibration-curve-errors.svg" in section
+    assert re.search(r"<tr><td>CS3-1</td>.*?xv-verdict--fail", section)
+    assert section.count("xv-verdict--fail\">fail") == 1
+    styles = ("int", "g", "g6", "f1", "f2", "r4", "se", "rel")
+    spans = SPAN.findall(section)
+    assert len(spans) > 50
+    for _, src, text in spans:
+        value = resolve(d, html.unescape(src))
+        text = html.unescape(text)
+        assert any(fmt_number(value, st) in (text, text.removesuffix(" %")) for st in styles), \
+            (src, text)
+    register = {n.source: n for q in study_register(d) for n in q.numbers}
+    ids = [n.identifier for n in register.values()]
+    assert len(ids) == len(set(ids))
+    for ident in ("CAL-EQ/calibration/curve/slope", "CAL-EQ/calibration/curve/slope/ci95_lo",
+                  "CAL-EQ/calibration/curve/CS3-1/relative_error_pct",
+                  "CAL-EQ/quantitation/K118-01/aqueous/amount"):
+        assert ident in ids
+    cal_sources = {s for s in register if s.startswith("/calibration/")}
+    assert cal_sources <= {html.unescape(s[1]) for s in SPAN.findall(page)}

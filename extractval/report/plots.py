@@ -1,5 +1,5 @@
 """SVG plots of a study dict: log D against pH, residuals against pH, portions per procedure,
-and the design-space map.
+the design-space map, and each calibration curve with its back-calculated errors.
 
 Every plotted value is read from ``StudyReport.to_dict()`` (the ``curve``, ``run_table``,
 ``procedures`` and ``design_space`` entries); the only arithmetic here is placing things on the
@@ -659,12 +659,92 @@ def purity_map_plot(d: dict, k: int) -> bytes | None:
     return _svg(fig)
 
 
+def _log_axis(axis, set_scale) -> None:
+    """A logarithmic axis with plain-text powers of ten and no minor ticks."""
+    set_scale("log")
+    axis.set_minor_locator(NullLocator())
+    axis.set_major_formatter(FuncFormatter(_power_of_ten))
+
+
+@_styled
+def calibration_plot(curve: dict, unit: str | None) -> bytes | None:
+    """One calibration curve: the standards (failing ones hollow) and the fitted curve."""
+    rows = curve.get("standards") or []
+    if not rows or not curve.get("curve"):
+        return None
+    log = curve["curve"]["log_axes"]
+    fig, ax = _figure("calibration-log" if log else "calibration", 2)
+    if log:
+        _log_axis(ax.xaxis, ax.set_xscale)
+        _log_axis(ax.yaxis, ax.set_yscale)
+    ax.plot(curve["curve"]["level"], _nan(curve["curve"]["response"]), color=CURVE,
+            label=f"fitted ({curve['model']}, weighting {curve['weighting']})", gid="cal-curve")
+    ok = [r for r in rows if r["verdict"] == "pass"]
+    bad = [r for r in rows if r["verdict"] != "pass"]
+    if ok:
+        ax.plot([r["level"] for r in ok], [r["response"] for r in ok], linestyle="none",
+                marker=MARKERS[0], markersize=5.5, color=SERIES[1], markeredgecolor="white",
+                markeredgewidth=0.5, label="standards within limits", gid="cal-pass")
+    if bad:
+        ax.plot([r["level"] for r in bad], [r["response"] for r in bad], linestyle="none",
+                marker=MARKERS[1], markersize=6.5, markerfacecolor="none",
+                markeredgecolor=LIMIT, markeredgewidth=1.3, label="standards outside limits",
+                gid="cal-fail")
+    ax.set_xlabel("level" + (f" ({_plain(unit)})" if unit else ""))
+    ax.set_ylabel("response ratio" if curve.get("internal_standard") else "response")
+    _legend(ax, ncols=2)
+    return _svg(fig)
+
+
+@_styled
+def calibration_error_plot(curve: dict, unit: str | None) -> bytes | None:
+    """Relative error of each back-calculated standard against its level, with the ICH M10
+    limits (+/-15 %, +/-20 % at the LLOQ) as read from the dict."""
+    rows = [r for r in curve.get("standards") or [] if r["relative_error_pct"] is not None]
+    if not rows:
+        return None
+    log = curve["curve"]["log_axes"]
+    fig, ax = _figure("calibration-errors-log" if log else "calibration-errors", 1)
+    if log:
+        _log_axis(ax.xaxis, ax.set_xscale)
+    ax.axhline(0.0, color=INK, linewidth=0.8)
+    levels = sorted({r["level"] for r in rows})
+    limit = {r["level"]: r["limit_pct"] for r in rows}
+    for sign in (-1.0, 1.0):       # each level's own limit, as a bar at that level
+        ax.plot(levels, [sign * limit[x] for x in levels], linestyle="none", marker="_",
+                markersize=16, markeredgewidth=1.4, color=LIMIT,
+                label="acceptance limit at the level" if sign > 0 else None,
+                gid=f"cal-limit-{sign:+g}")
+    ok = [r for r in rows if r["verdict"] == "pass"]
+    bad = [r for r in rows if r["verdict"] != "pass"]
+    if ok:
+        ax.plot([r["level"] for r in ok], [r["relative_error_pct"] for r in ok],
+                linestyle="none", marker=MARKERS[0], markersize=5.5, color=SERIES[1],
+                markeredgecolor="white", markeredgewidth=0.5, label="within limits",
+                gid="cal-err-pass")
+    if bad:
+        ax.plot([r["level"] for r in bad], [r["relative_error_pct"] for r in bad],
+                linestyle="none", marker=MARKERS[1], markersize=6.5, markerfacecolor="none",
+                markeredgecolor=LIMIT, markeredgewidth=1.3, label="outside limits",
+                gid="cal-err-fail")
+    top = max(25.0, max(abs(r["relative_error_pct"]) for r in rows) * 1.15)
+    ax.set_ylim(-top, top)
+    ax.set_xlabel("level" + (f" ({_plain(unit)})" if unit else ""))
+    ax.set_ylabel("back-calculated error (%)")
+    _legend(ax)
+    return _svg(fig)
+
+
 def plot_name(kind: str, procedure_id: str | None = None) -> str:
     """File name of a plot inside the study's folder of the site."""
     from .register import safe_name
 
     if kind == "portions":
         return f"portions-{safe_name(procedure_id)}.svg"
+    if kind == "calibration":
+        return f"calibration-{safe_name(procedure_id)}.svg"
+    if kind == "calibration_errors":
+        return f"calibration-{safe_name(procedure_id)}-errors.svg"
     if kind == "purity_map":
         return f"purity-map-{safe_name(procedure_id)}.svg"
     if kind == "separation":
@@ -696,4 +776,11 @@ def study_plots(d: dict) -> dict[str, bytes]:
         svg = purity_map_plot(d, k)
         if svg:
             out[plot_name("purity_map", pr["id"])] = svg
+    cal = d.get("calibration") or {}
+    for c in cal.get("curves", []):
+        for kind, draw in (("calibration", calibration_plot),
+                           ("calibration_errors", calibration_error_plot)):
+            svg = draw(c, cal.get("unit"))
+            if svg:
+                out[plot_name(kind, c["id"])] = svg
     return out

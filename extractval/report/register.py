@@ -49,7 +49,8 @@ def pointer(*parts) -> str:
 # -- how numbers are written --------------------------------------------------------------------
 #: digits of each plain number style (format specifications)
 _FORMAT_SPECS = {"log": ".3f", "pH": ".2f", "r": ".3f", "se": ".2g", "frac": ".3g",
-                 "f2": ".2f", "mL": "g", "g": ".4g"}
+                 "f2": ".2f", "mL": "g", "g": ".4g", "r4": ".4f", "f1": ".1f",
+                 "g6": ".6g"}
 
 
 def fmt_number(value, style: str) -> str:
@@ -264,7 +265,69 @@ def study_register(d: dict) -> list[Quantity]:
                       "runs", "%", pr["recovery_pct"].get("ci95_method"),
                       ["outlier_screen", "without_flagged", "procedures", k, "recovery_pct"],
                       VALUE_CI, "pct", d))
+    out.extend(_calibration_register(sid, d))
     return [q for q in out if q is not None]
+
+
+_CURVE_PARAMETER_TEXT = {"intercept": "y-intercept", "slope": "slope",
+                         "quadratic": "quadratic coefficient"}
+
+
+def _calibration_register(sid: str, d: dict) -> list[Quantity | None]:
+    """Calibration numbers: ``calibration/<curve>/<quantity>`` and per standard
+    ``calibration/<curve>/<standard>/...``; amounts read off a curve are
+    ``quantitation/<run>/<phase>/...``."""
+    cal = d.get("calibration")
+    if not cal:
+        return []
+    out: list[Quantity | None] = []
+    for k, c in enumerate(cal["curves"]):
+        if "parameters" not in c:
+            continue
+        cid = f"calibration/{safe_name(c['id'])}"
+        base = ["calibration", "curves", k]
+        what = f"calibration {c['id']}"
+        for name in c["parameters"]:
+            out.append(_q(sid, f"{cid}/{name}", f"{_CURVE_PARAMETER_TEXT[name]} of {what} "
+                          f"(weighting {c['weighting']})", "", "WLS, t interval",
+                          base + ["parameters", name], ("value", "se", "ci95_lo", "ci95_hi"),
+                          "g", d))
+        for key, text, style in (
+                ("correlation_coefficient", "correlation coefficient r of", "r4"),
+                ("rss", "residual sum of squares (unweighted) of", "g"),
+                ("residual_sd", "weighted residual SD of", "g")):
+            out.append(_q(sid, f"{cid}/{key}", f"{text} {what}", "", "ICH Q2(R2) linearity",
+                          base + ["linearity", key], ("value",), style, d))
+        for key, text in (("standards_passing", "standards within the ICH M10 limits"),
+                          ("levels_passing", "levels passing the ICH M10 limits")):
+            out.append(_q(sid, f"{cid}/{key}", f"{text}, {what}", "", None,
+                          base + ["acceptance", key], ("value",), "int", d))
+        for i, st in enumerate(c["standards"]):
+            sname = f"{cid}/{safe_name(st['standard'])}"
+            out.append(_q(sid, f"{sname}/back_calculated", f"back-calculated level of "
+                          f"standard {st['standard']}, {what}", "", None,
+                          base + ["standards", i, "back_calculated"], ("value",), "g", d))
+            out.append(_q(sid, f"{sname}/relative_error_pct", f"relative error of standard "
+                          f"{st['standard']}, {what} ({st['verdict']})", "%", None,
+                          base + ["standards", i, "relative_error_pct"], ("value",), "f1", d))
+    unc = cal.get("uncertainty") or {}
+    if unc.get("median_ratio") is not None:
+        out.append(_q(sid, "calibration/uncertainty/median_ratio", "median ratio of the "
+                      "calibration sd to the fit's sd of the runs' log10 values",
+                      "", unc.get("rule"), ["calibration", "uncertainty", "median_ratio"],
+                      ("value",), "f2", d))
+    for i, r in enumerate(d.get("run_table", [])):
+        for j, q in enumerate(r.get("quantitation") or []):
+            if q.get("amount") is None:
+                continue
+            qname = f"quantitation/{safe_name(r['run'])}/{q['phase']}"
+            for key, text in (("amount", "amount read off"), ("sd_total", "sd of the amount "
+                                                             "read off")):
+                out.append(_q(sid, f"{qname}/{key}", f"{text} calibration {q['curve']}, run "
+                              f"{r['run']}, {q['phase']} phase", "", "inverse prediction, "
+                              "delta method", ["run_table", i, "quantitation", j, key],
+                              ("value",), "g", d))
+    return out
 
 
 def _verdict_register(sid: str, prefix: str, verdicts: list, base: list, d: dict) -> list:
