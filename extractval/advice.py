@@ -77,6 +77,13 @@ class AdviceTarget:
     index: int | None = None   # parameter index
     procedure: ProcedurePrediction | None = None
 
+    @property
+    def width_of(self) -> str:
+        """What the interval widths measure."""
+        if self.kind == "parameter":
+            return self.name
+        return f"log D at pH {self.procedure.procedure.pH:g}"
+
     def gradient(self, fit: FitResult, theta: np.ndarray) -> np.ndarray:
         """c = d target / d theta."""
         if self.kind == "parameter":
@@ -135,24 +142,50 @@ class NextRuns:
     sigma: float
     notes: list[str] = field(default_factory=list)
     value: float = float("nan")
+    log_d: np.ndarray | None = None   # fitted log D at each candidate (to draw the advice)
 
     def _recovery_lower(self, width: float | None) -> float | None:
-        """The procedure's lower recovery bound for a log D interval of this width around the
-        estimate (None for a parameter target)."""
+        """The procedure's lower recovery bound when the log D interval narrows from
+        width_before to ``width``: the reported lower end of log D moved towards the estimate
+        in that proportion (so "before" is the bound the page reports). None for a parameter
+        target."""
         if self.target.kind != "procedure" or width is None or not np.isfinite(width):
             return None
+        lo = self.target.procedure.log_d.ci95.lo
+        if lo is not None and width == self.width_before:
+            return clean(self.target.procedure.recovery_pct.ci95.lo)   # the reported bound
+        below = self.width_before / 2.0 if lo is None else self.value - lo
+        scale = width / self.width_before if self.width_before > 0 else 1.0
         p = self.target.procedure.procedure
-        return clean(float(recovery_pct_from_log_d(self.value - width / 2.0, p.aqueous_mL,
-                                                   p.organic_mL)), 6)
+        return clean(float(recovery_pct_from_log_d(self.value - below * scale, p.aqueous_mL,
+                                                   p.organic_mL)), 10)
 
     def _row(self, width: float) -> dict:
         shrink = (100.0 * (1.0 - width / self.width_before)
                   if np.isfinite(width) and self.width_before > 0 else None)
         out = {"width_before": clean(self.width_before, 6), "width_after": clean(width, 6),
-               "shrink_pct": clean(shrink, 4)}
+               "shrink_pct": clean(shrink, 2)}
         if self.target.kind == "procedure":
             out["recovery_lower_pct_before"] = self._recovery_lower(self.width_before)
             out["recovery_lower_pct_after"] = self._recovery_lower(width)
+        return out
+
+    def _run(self, i: int) -> dict:
+        out = self.candidates.run(i)
+        if self.log_d is not None:
+            out["log_d"] = clean(self.log_d[i], 6)
+        return out
+
+    def _groups(self, idx: list[int]) -> list[dict]:
+        """The runs of a batch with repeats counted, in the order chosen."""
+        out: list[dict] = []
+        for i in idx:
+            run = self._run(i)
+            same = [g for g in out if all(g[k] == run[k] for k in ("pH", "ratio", "form"))]
+            if same:
+                same[0]["count"] += 1
+            else:
+                out.append(dict(run, count=1))
         return out
 
     def to_dict(self) -> dict:
@@ -162,6 +195,7 @@ class NextRuns:
                    else None)
         return {
             "target": {"kind": t.kind, "name": t.name, "quantity": t.quantity,
+                       "width_of": t.width_of,
                        "chosen_by": t.chosen_by, "value": clean(self.value, 6),
                        "ci95": None if current is None else current.ci95.to_list()},
             "criterion": self.criterion,
@@ -177,9 +211,10 @@ class NextRuns:
                 "forms": sorted(set(c.form)),
                 "count": c.size,
             },
-            "single_runs": [dict(rank=i + 1, **c.run(k), **self._row(w))
+            "single_runs": [dict(rank=i + 1, **self._run(k), **self._row(w))
                             for i, (k, w) in enumerate(self.singles)],
-            "batches": [dict(k=len(idx), runs=[c.run(k) for k in idx], **self._row(w))
+            "batches": [dict(k=len(idx), runs=[self._run(k) for k in idx],
+                             groups=self._groups(idx), **self._row(w))
                         for idx, w in self.batches],
             "notes": list(self.notes),
         }
@@ -192,7 +227,8 @@ class NextRuns:
             return (f"Runs ranked by the predicted 95 % interval width of {widths} after adding "
                     "them, from the Fisher information of the fit (linearised, with the fit's "
                     f"error model: constant relative error, sigma = {100 * self.sigma:.2g} % of "
-                    "each measured amount). Batches chosen greedily, one run at a time.")
+                    "each measured amount). Batches chosen greedily, one run at a time."
+                    + self._bound_note)
         return (f"The fit is too weakly determined for the linearised criterion "
                 f"({'; '.join(self.weak)}). Runs ranked by simulation instead: each candidate "
                 f"was simulated {SIM_DRAWS} times from the current fit (constant relative "
@@ -200,7 +236,17 @@ class NextRuns:
                 f"median 95 % interval width of {widths} taken. Batches: the best of the greedy "
                 "Fisher batch, the best single runs, repeats of the best run and an even "
                 "spread over the usable range, each simulated the same way. Widths before are "
-                "the current Wald widths, on the same footing.")
+                "the current Wald widths, on the same footing." + self._bound_note)
+
+    @property
+    def _bound_note(self) -> str:
+        if self.target.kind != "procedure":
+            return ""
+        open_end = self.target.procedure.log_d.ci95.lo is None
+        return (" The lower recovery bound after is the reported one with the lower end of log D "
+                "moved towards the estimate by the predicted shrinking of its interval"
+                + (" (the reported end is open, so the Wald end is moved instead)."
+                   if open_end else "."))
 
 
 # -- the target ---------------------------------------------------------------------------------
@@ -259,7 +305,7 @@ def usable_pH_range(fit: FitResult, study: Study) -> tuple[tuple[float, float], 
     declared = study.advice.pH_range
     if declared is None:
         return (lo, hi), (f"measured pH {fit.obs.pH.min():g} to {fit.obs.pH.max():g} widened "
-                          f"by {PH_MARGIN:g} on each side (no advice.pH_range declared)")
+                          f"by {PH_MARGIN:g} on each side; no advice.pH_range declared")
     a, b = max(lo, declared[0]), min(hi, declared[1])
     if b - a < PH_STEP:
         return declared, (f"advice.pH_range {declared[0]:g} to {declared[1]:g} lies outside the "
@@ -498,4 +544,5 @@ def advise(fit: FitResult, study: Study,
             batches.append((d, w))
         method, criterion = "simulation", CRITERION_SIM
     return NextRuns(target, criterion, method, weak, pH_range, range_note, cands, before,
-                    singles, batches, fit.residual_sd, notes, target.value(fit))
+                    singles, batches, fit.residual_sd, notes, target.value(fit),
+                    fit.log_d(cands.pH))

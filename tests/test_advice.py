@@ -307,3 +307,19 @@ def test_advise_on_bad_input_gives_located_errors_and_no_traceback(tmp_path, cap
     assert "Traceback" not in err
     assert main(["advise", str(tmp_path / "missing"), "--jobs", "1"]) == 1
     assert "no such" in capsys.readouterr().err
+
+
+def test_the_log_d_plot_marks_the_advised_batch_and_the_register_names_its_numbers():
+    import json
+
+    from extractval.report.plots import log_d_plot
+    from extractval.report.register import study_register
+    study = _study(WEAK_PH, WEAK_THETA, ratios=(1.0,), procedures=[PROC])
+    d = json.loads(json.dumps(fit_study(study).to_dict(), allow_nan=False))
+    svg = log_d_plot(d).decode("utf-8")
+    assert 'id="advised-runs"' in svg and "advised next runs (batch of 3)" in svg
+    numbers = {n.identifier: n.value for q in study_register(d) for n in q.numbers}
+    b3 = d["next_runs"]["batches"][1]
+    assert numbers["ADV/next_runs/k3/width_after"] == b3["width_after"]
+    assert numbers["ADV/next_runs/k3/run1/pH"] == b3["groups"][0]["pH"]
+    assert numbers["ADV/next_runs/width_before"] == b3["width_before"]

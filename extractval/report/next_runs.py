@@ -19,16 +19,10 @@ def run_text(run: dict) -> str:
             f"{FORM_WORDS.get(run['form'], run['form'])}")
 
 
-def batch_text(runs: list[dict]) -> str:
+def batch_text(groups: list[dict]) -> str:
     """The runs of a batch, repeats counted: '3 x pH 4.00, O:A 1, both phases'."""
-    groups: list[list] = []
-    for r in runs:
-        text = run_text(r)
-        if groups and groups[-1][0] == text:
-            groups[-1][1] += 1
-        else:
-            groups.append([text, 1])
-    return "; ".join(t if n == 1 else f"{n} x {t}" for t, n in groups)
+    return "; ".join(run_text(g) if g["count"] == 1 else f"{g['count']} x {run_text(g)}"
+                     for g in groups)
 
 
 def render_next_runs(d: dict) -> str:
@@ -60,7 +54,7 @@ def render_next_runs(d: dict) -> str:
             bounds = (f"{fmt_pct(b['recovery_lower_pct_before'])} -> "
                       f"{fmt_pct(b['recovery_lower_pct_after'])}")
             row += f"  {bounds:>22}"
-        lines.append(row + "  " + batch_text(b["runs"]))
+        lines.append(row + "  " + batch_text(b["groups"]))
     best = ", ".join(f"pH {r['pH']:.2f} ({fmt_width(r['width_after'])})"
                      for r in a["single_runs"])
     lines.append(f"   best single runs (width after): {best}")

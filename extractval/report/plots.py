@@ -281,7 +281,8 @@ def log_d_plot(d: dict) -> bytes | None:
     styles = _ratio_styles(rows)
     hollow = any(r["status"] != "used" and r.get("log_d_observed") is not None for r in rows)
     n_drawn = len({r["volume_ratio"] for r in rows if r.get("log_d_observed") is not None})
-    n_legend = 2 + n_drawn + hollow
+    advised = _advised_points(d)
+    n_legend = 2 + n_drawn + hollow + bool(advised)
     fig, ax = _figure("log_d", _rows(n_legend, 3))
     band = ax.fill_between(curve["pH"], _nan(curve["lo"]), _nan(curve["hi"]), color=BAND,
                            alpha=0.35, linewidth=0, label="95 % band of the fit")
@@ -319,8 +320,32 @@ def log_d_plot(d: dict) -> bytes | None:
         handles.append(Line2D([], [], linestyle="none", marker="o", markerfacecolor="none",
                               markeredgecolor=INK, markersize=6))
         labels.append("excluded (hollow)")
+    if advised:
+        (k, xs, ys) = advised
+        line, = ax.plot(xs, ys, **ADVICE_MARKER, gid="advised-runs")
+        handles.append(line)
+        labels.append(f"advised next runs (batch of {k})")
     _legend(ax, handles, labels)
     return _svg(fig)
+
+
+#: the advised next runs on the log D plot: a hollow star, unlike any run marker
+ADVICE_MARKER = dict(linestyle="none", marker="*", markersize=11, markerfacecolor="white",
+                     markeredgecolor=INK, markeredgewidth=1.1, zorder=4)
+#: which advised batch the log D plot marks
+ADVICE_BATCH = 3
+
+
+def _advised_points(d: dict) -> tuple[int, list, list] | None:
+    """(k, pH, fitted log D) of the advised batch the plot marks, from ``next_runs``."""
+    batches = (d.get("next_runs") or {}).get("batches") or []
+    chosen = [b for b in batches if b["k"] == ADVICE_BATCH] or batches[-1:]
+    if not chosen:
+        return None
+    groups = [g for g in chosen[0].get("groups", []) if g.get("log_d") is not None]
+    if not groups:
+        return None
+    return chosen[0]["k"], [g["pH"] for g in groups], [g["log_d"] for g in groups]
 
 
 @_styled

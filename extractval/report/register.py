@@ -266,6 +266,7 @@ def study_register(d: dict) -> list[Quantity]:
                       ["outlier_screen", "without_flagged", "procedures", k, "recovery_pct"],
                       VALUE_CI, "pct", d))
     out.extend(_calibration_register(sid, d))
+    out.extend(_next_runs_register(sid, d))
     return [q for q in out if q is not None]
 
 
@@ -327,6 +328,43 @@ def _calibration_register(sid: str, d: dict) -> list[Quantity | None]:
                               f"{r['run']}, {q['phase']} phase", "", "inverse prediction, "
                               "delta method", ["run_table", i, "quantitation", j, key],
                               ("value",), "g", d))
+    return out
+
+
+def _next_runs_register(sid: str, d: dict) -> list[Quantity | None]:
+    """The next-run advice: the target's interval width now and, per batch, after the advised
+    runs, with the runs themselves (``<study>/next_runs/k3/run1/pH``)."""
+    a = d.get("next_runs")
+    if not a or not a.get("batches"):
+        return []
+    what = a["target"]["width_of"]
+    method = a["criterion"]
+    base = ["next_runs", "batches"]
+    out = [_q(sid, "next_runs/width_before", f"95 % interval width of {what} now (advice "
+              f"target {a['target']['name']}; linearised)", "", method,
+              base + [0, "width_before"], ("value",), "se", d)]
+    for i, b in enumerate(a["batches"]):
+        k = b["k"]
+        tag = f"next_runs/k{k}"
+        batch = f"after the advised batch of {k} run{'s' if k != 1 else ''}"
+        out.append(_q(sid, f"{tag}/width_after", f"predicted 95 % interval width of {what} "
+                      f"{batch}", "", method, base + [i, "width_after"], ("value",), "se", d))
+        out.append(_q(sid, f"{tag}/shrink_pct", f"predicted shrinking of that width {batch}",
+                      "%", method, base + [i, "shrink_pct"], ("value",), "g", d))
+        if b.get("recovery_lower_pct_after") is not None:
+            out.append(_q(sid, f"{tag}/recovery_lower_pct", f"predicted lower recovery bound "
+                          f"of {a['target']['name']} {batch}", "%", method,
+                          base + [i, "recovery_lower_pct_after"], ("value",), "pct", d))
+        for j, g in enumerate(b.get("groups", [])):
+            run = f"advised run {j + 1} of the batch of {k}"
+            out.append(_q(sid, f"{tag}/run{j + 1}/pH", f"pH of {run}", "", None,
+                          base + [i, "groups", j, "pH"], ("value",), "pH", d))
+            out.append(_q(sid, f"{tag}/run{j + 1}/ratio", f"organic:aqueous ratio of {run}",
+                          "", None, base + [i, "groups", j, "ratio"], ("value",), "g", d))
+            if g["count"] > 1:
+                out.append(_q(sid, f"{tag}/run{j + 1}/count", f"how many times to make {run}",
+                              "runs", None, base + [i, "groups", j, "count"], ("value",), "int",
+                              d))
     return out
 
 
