@@ -18,6 +18,7 @@ from __future__ import annotations
 import functools
 import io
 import math
+import os
 import threading
 
 import matplotlib
@@ -136,6 +137,20 @@ class _RememberingTextToPath(TextToPath):
 
 #: shared by every figure drawn here; None draws with matplotlib's own, unremembered
 _TEXT_PATHS: TextToPath | None = _RememberingTextToPath()
+
+
+def _fresh_text_paths_after_fork() -> None:
+    """A forked worker starts with its own remembered fonts. The inherited font objects read
+    their file through a descriptor whose offset parent and child share, so two processes
+    drawing text at once corrupt each other's reads ("failed to load glyph"); matplotlib
+    empties its own font cache at a fork for the same reason."""
+    global _TEXT_PATHS
+    if _TEXT_PATHS is not None:
+        _TEXT_PATHS = _RememberingTextToPath()
+
+
+if hasattr(os, "register_at_fork"):
+    os.register_at_fork(after_in_child=_fresh_text_paths_after_fork)
 
 
 class _Figure(Figure):
