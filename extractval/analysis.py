@@ -18,6 +18,7 @@ from .fitting import (ERROR_MODEL, INTERVAL_METHOD, LOG_D, LOG_E, LOG_Q, WEIGHTI
 from .models import MODELS, get_model
 from .procedures import (LogDBand, ProcedureDesign, ProcedurePrediction, design_procedure,
                          design_space, log_d_band, predict_procedure)
+from .replicates import PH_TOLERANCE, precision_groups
 from .results import clean
 from .screening import STUDENTIZED_LIMIT, refit_without, screen
 from .study import Run, Study
@@ -81,8 +82,11 @@ def observed_log_d(run: Run) -> float | None:
     return float(np.log10(e / (1.0 - e) / run.volume_ratio))
 
 
-def build_observations(runs) -> tuple[Observations, tuple[RunOutcome, ...]]:
-    outcomes, ids, pH, lr, kinds, ys, groups = [], [], [], [], [], [], []
+def build_observations(runs, ph_tolerance: float = PH_TOLERANCE,
+                       ) -> tuple[Observations, tuple[RunOutcome, ...]]:
+    """The fitted runs' observations, each with its precision group (replicates.py), and how
+    every run entered the fit."""
+    outcomes, ids, pH, lr, kinds, ys, fitted = [], [], [], [], [], [], []
     for run in runs:
         if run.excluded:
             outcomes.append(RunOutcome(run, "excluded", run.excluded))
@@ -105,7 +109,9 @@ def build_observations(runs) -> tuple[Observations, tuple[RunOutcome, ...]]:
         lr.append(np.log10(run.volume_ratio))
         kinds.append(kind)
         ys.append(y)
-        groups.append(run.replicate or f"pH {run.pH:g}, ratio {run.volume_ratio:.4g}")
+        fitted.append(run)
+    key = precision_groups(fitted, ph_tolerance).key_of()
+    groups = [key[rid] for rid in ids]
     obs = Observations(tuple(ids), np.array(pH, dtype=float), np.array(lr, dtype=float),
                        tuple(kinds), np.array(ys, dtype=float), tuple(groups))
     return obs, tuple(outcomes)
@@ -231,7 +237,8 @@ class StudyReport:
     @cached_property
     def impurity_fits(self) -> tuple[dict, ...]:
         """Each impurity: its fit (measured ones) or declared constants, as a work-up solute."""
-        return tuple(_impurity_fit(imp) for imp in self.study.impurities) if self.fit else ()
+        return tuple(_impurity_fit(imp, self.study.replicate_pH_tolerance)
+                     for imp in self.study.impurities) if self.fit else ()
 
     @cached_property
     def selectivity(self) -> dict | None:
@@ -391,7 +398,7 @@ class StudyReport:
         return d
 
 
-def _impurity_fit(imp) -> dict:
+def _impurity_fit(imp, ph_tolerance: float = PH_TOLERANCE) -> dict:
     """An impurity as a work-up solute: declared constants, or fitted from its own runs with
     the same error model, weights and intervals as the analyte."""
     from . import workup
@@ -404,7 +411,7 @@ def _impurity_fit(imp) -> dict:
         out["solute"] = workup.Solute(imp.name, model, np.asarray(imp.theta, dtype=float),
                                       None, imp.source, imp.amount_ratio)
         return out
-    obs, outcomes = build_observations(imp.runs)
+    obs, outcomes = build_observations(imp.runs, ph_tolerance)
     out["runs"] = {k.replace(" ", "_"): sum(o.status == k for o in outcomes)
                    for k in ("used", "excluded", "not usable")}
     try:
@@ -425,7 +432,7 @@ def _impurity_fit(imp) -> dict:
 
 def fit_study(study: Study) -> StudyReport:
     """Fit the study's model and predict its procedures. Never raises for data problems."""
-    obs, outcomes = build_observations(study.runs)
+    obs, outcomes = build_observations(study.runs, study.replicate_pH_tolerance)
     warnings = [str(p) for p in study.warnings]
     for o in outcomes:
         if o.status == "not usable":

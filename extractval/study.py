@@ -34,6 +34,9 @@ Reading rules
 * A ``,``-separated CSV row whose cell count differs from the header's is refused by the
   reader (see :mod:`extractval.tables`): a decimal comma there splits ``3,98`` into pH 3 and
   98 mL and shifts every later cell.
+* A ``replicate`` label shared by runs at different conditions (pH further apart than
+  ``replicate_pH_tolerance``, default 0.1, or other volumes) is a warning naming the runs; the
+  precision groups themselves come from :func:`extractval.replicates.precision_groups`.
 * ``header_row`` in study.yaml gives the line (CSV) or sheet row of the header when a title
   sits above it; without it, a header found further down is reported with that fix.
 * Columns that the contract does not know are warnings (ignored), unless they look like a
@@ -56,6 +59,7 @@ import yaml
 if TYPE_CHECKING:
     from .calibration_input import CalibrationSet
 from .errors import Problem, StudyError
+from .replicates import PH_TOLERANCE, precision_groups
 from .tables import (EXTENSIONS, HeaderRules, Location, Table, TableRow, decode_text,
                      parse_number, read_table)
 
@@ -235,6 +239,8 @@ class Study:
     advice: AdviceRequest = field(default_factory=AdviceRequest)
     impurities: tuple[Impurity, ...] = ()
     calibration: CalibrationSet | None = None   # curves, when runs give responses
+    #: pH units within which runs are replicates (replicates.py; ``replicate_pH_tolerance``)
+    replicate_pH_tolerance: float = PH_TOLERANCE
 
     @property
     def used_runs(self) -> tuple[Run, ...]:
@@ -263,8 +269,8 @@ MASS_BALANCE_BAND_PCT = (90.0, 110.0)
 ONE_PHASE_HIGH_PCT = 100.0
 
 _KEYS = {
-    "": ("title", "analyte", "system", "runs", "sheet", "header_row", "targets", "procedures",
-         "advice", "impurities", "calibration"),
+    "": ("title", "analyte", "system", "runs", "sheet", "header_row", "replicate_pH_tolerance",
+         "targets", "procedures", "advice", "impurities", "calibration"),
     "analyte": ("name", "model", "ion_pair", "level"),
     "system": ("aqueous", "organic", "temperature_C"),
     "targets": ("recovery_pct", "max_rsd_pct", "mass_balance_pct", "ratio_agreement_log",
@@ -480,6 +486,10 @@ def _ph(value: float) -> str | None:
 
 def _percent_target(value: float) -> str | None:
     return None if 0.0 < value <= 100.0 else "a percentage above 0 and at most 100"
+
+
+def _replicate_tolerance(value: float) -> str | None:
+    return None if 0.0 <= value <= 2.0 else "pH units from 0 to 2"
 
 
 def _row_number(value: float) -> str | None:
@@ -1429,6 +1439,10 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
                             check=_row_number,
                             expected="the line (CSV) or sheet row of the runs table's header, "
                                      "e.g. 2")
+    ph_tolerance = doc.number(entries, root, "", "replicate_pH_tolerance", required=False,
+                              check=_replicate_tolerance,
+                              expected="pH units within which runs are replicates, e.g. 0.1")
+    ph_tolerance = PH_TOLERANCE if ph_tolerance is None else ph_tolerance
     runs_path = _runs_path(doc, entries, root, folder)
 
     runs: list[Run] = []
@@ -1458,6 +1472,8 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
                                    runs, problems)
     calibration, runs = _calibration(doc, entries, folder, runs, problems)
 
+    # a replicate label shared by runs at different conditions is named here, once
+    problems.extend(precision_groups([r for r in runs if not r.excluded], ph_tolerance).warnings)
     problems = _in_file_order(problems)
     if _n_errors(problems):
         return None, problems
@@ -1471,7 +1487,7 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
     warnings = tuple(p for p in problems if p.severity == "warning")
     study = Study(study_id, folder, title, name, model, tuple(runs), tuple(procedures),
                   targets, ion_pair, system, inputs, warnings, advice, tuple(impurities),
-                  calibration=calibration)
+                  calibration=calibration, replicate_pH_tolerance=ph_tolerance)
     return study, problems
 
 

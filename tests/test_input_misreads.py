@@ -254,3 +254,81 @@ def test_recovery_pct_that_disagrees_with_found_over_spiked_is_an_error(tmp_path
     assert p.found == "79.7 % against 100 x 68.5 / 70 = 97.8571 %"
     # tolerance: 0.05 (79.7) + 100 x 0.05 / 70 (68.5) + 100 x 68.5 x 0.5 / 70^2 (70) = 0.82
     assert "within 0.82 percentage points" in p.expected
+
+
+# -- 6. replicate labels against the runs' conditions ----------------------------------------------
+
+#: Sheets often number replicates 1, 2, 3 at every pH: label '1' then means three conditions.
+NUMBERED = ("run,pH,aqueous_mL,organic_mL,spiked,found_aqueous,found_organic,replicate\n"
+            "R1,3.00,10,10,100,40,59,1\nR2,3.02,10,10,100,41,58,2\nR3,3.01,10,10,100,40,60,3\n"
+            "R4,7.00,10,10,100,20,79,1\nR5,7.03,10,10,100,21,78,2\nR6,6.98,10,10,100,20,80,3\n")
+
+
+def test_numbered_replicates_do_not_group_runs_at_different_pH(tmp_path):
+    from extractval.analysis import build_observations
+
+    study, problems = check(tmp_path, NUMBERED)
+    shared = [p for p in problems if "is shared by runs at different conditions" in p.message]
+    assert [p.severity for p in shared] == ["warning"] * 3
+    one = shared[0]
+    assert (one.file, one.line, one.column) == ("ST-1/runs.csv", 2, "replicate")
+    assert "'1'" in one.message
+    assert one.found == "R1 (pH 3, 10 + 10 mL), R4 (pH 7, 10 + 10 mL)"
+    # the fit's groups fall back to the nominal conditions: pH within 0.1, same volumes
+    obs, _ = build_observations(study.runs, study.replicate_pH_tolerance)
+    assert obs.replicate_key == ("pH 3 to 3.02, 10 + 10 mL",) * 3 + (
+        "pH 6.98 to 7.03, 10 + 10 mL",) * 3
+
+
+def test_precision_groups_give_the_reason_for_each_group(tmp_path):
+    from extractval.replicates import precision_groups
+
+    runs = (NUMBERED.replace("R1,3.00,10,10,100,40,59,1", "R1,3.00,10,10,100,40,59,A")
+            .replace("R2,3.02,10,10,100,41,58,2", "R2,3.05,10,10,100,41,58,A"))
+    study, problems = check(tmp_path, runs)
+    grouping = precision_groups(study.runs)
+    by_key = {g.key: g for g in grouping.groups}
+    assert by_key["A"].run_ids == ("R1", "R2")
+    assert by_key["A"].reason == ("replicate label 'A': the same volumes, pH 3 to 3.05 "
+                                  "(within 0.1)")
+    # label '3' still spans two pH values: its runs fall back to their conditions, alone
+    assert grouping.key_of()["R3"] == "pH 3.01, 10 + 10 mL"
+    assert grouping.key_of()["R6"] == "pH 6.98, 10 + 10 mL"
+    assert by_key["1"].run_ids == ("R4",) and by_key["2"].run_ids == ("R5",)
+    assert [p.found for p in grouping.warnings] == [
+        "R3 (pH 3.01, 10 + 10 mL), R6 (pH 6.98, 10 + 10 mL)"]
+
+
+def test_label_shared_by_runs_with_other_volumes_is_a_warning(tmp_path):
+    runs = ("run,pH,aqueous_mL,organic_mL,spiked,found_aqueous,found_organic,replicate\n"
+            "R1,7.00,10,10,100,20,79,A\nR2,7.00,10,20,100,11,88,A\n")
+    study, problems = check(tmp_path, runs)
+    p = [p for p in problems if "is shared by runs at different conditions" in p.message]
+    assert len(p) == 1 and p[0].found == "R1 (pH 7, 10 + 10 mL), R2 (pH 7, 10 + 20 mL)"
+    from extractval.replicates import precision_groups
+    assert len(precision_groups(study.runs).groups) == 2
+
+
+def test_unlabelled_runs_group_by_pH_within_the_tolerance(tmp_path):
+    from extractval.replicates import precision_groups
+
+    runs = ("run,pH,aqueous_mL,organic_mL,spiked,found_aqueous,found_organic\n"
+            "R1,7.00,10,10,100,20,79\nR2,7.10,10,10,100,20,79\nR3,7.11,10,10,100,20,79\n"
+            "R4,7.05,10.05,10,100,20,79\n")
+    study, problems = check(tmp_path, runs)
+    assert problems == []
+    groups = precision_groups(study.runs).groups
+    # from the lowest pH, every run within 0.1 of it; 10.05 mL is 10 mL within 1 %
+    assert [g.run_ids for g in groups] == [("R1", "R2", "R4"), ("R3",)]
+
+
+def test_replicate_pH_tolerance_is_set_in_study_yaml(tmp_path):
+    runs = ("run,pH,aqueous_mL,organic_mL,spiked,found_aqueous,found_organic,replicate\n"
+            "R1,7.0,10,10,100,20,79,A\nR2,7.3,10,10,100,20,79,A\n")
+    _, problems = check(tmp_path, runs)
+    assert any("shared by runs at different conditions" in p.message for p in problems)
+    study, problems = check(tmp_path, runs, with_yaml("replicate_pH_tolerance: 0.5"))
+    assert problems == [] and study.replicate_pH_tolerance == 0.5
+    _, problems = check(tmp_path, runs, with_yaml("replicate_pH_tolerance: -1"))
+    assert only(problems, "'replicate_pH_tolerance' is out of range").key == \
+        "replicate_pH_tolerance"
