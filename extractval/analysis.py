@@ -19,6 +19,7 @@ from .models import MODELS, get_model
 from .procedures import (LogDBand, ProcedureDesign, ProcedurePrediction, design_procedure,
                          design_space, log_d_band, predict_procedure)
 from .replicates import PH_TOLERANCE, precision_groups
+from .reading import procedure_reading
 from .results import clean
 from .screening import STUDENTIZED_LIMIT, refit_without, screen
 from .study import Run, Study
@@ -381,6 +382,8 @@ class StudyReport:
         if s.calibration is not None:
             out["calibration"] = self.calibration_dict()
         out["run_table"] = self.run_rows()
+        for pr in out["procedures"]:        # written last: it reads the verdicts it explains
+            pr["reading"] = procedure_reading(pr, s.targets.recovery_pct)
         return out
 
     def calibration_dict(self) -> dict:

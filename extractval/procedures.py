@@ -36,10 +36,14 @@ class ValueInterval:
 
     value: float
     ci95: Interval
+    pi95: Interval | None = None      # prediction interval: where one future run should fall
 
     def to_dict(self) -> dict:
-        return {"value": clean(self.value), "ci95": self.ci95.to_list(),
-                "ci95_method": self.ci95.method}
+        out = {"value": clean(self.value), "ci95": self.ci95.to_list(),
+               "ci95_method": self.ci95.method}
+        if self.pi95 is not None:
+            out.update(pi95=self.pi95.to_list(), pi95_method=self.pi95.method)
+        return out
 
 
 @dataclass(frozen=True)
@@ -48,35 +52,11 @@ class ProcedurePrediction:
 
     procedure: Procedure
     log_d: Estimate
-    recovery_pct: ValueInterval
+    recovery_pct: ValueInterval                # mean recovery: ci95, and pi95 for one run
     remaining_fraction: ValueInterval
-    single_run_recovery_pct: ValueInterval    # spread of one future measured run
     after_portions: tuple[ValueInterval, ...]  # remaining fraction after portion 1, 2, ..., n
     split_limit_remaining: ValueInterval       # same total solvent in ever more portions
     target_recovery_pct: float | None = None
-
-    @property
-    def reading(self) -> str:
-        p = self.procedure
-        n = len(p.organic_mL)
-        vols = ", ".join(f"{v:g}" for v in p.organic_mL)
-        rec, ci = self.recovery_pct, self.recovery_pct.ci95
-        lo = "open" if ci.lo is None else f"{ci.lo:.1f}"
-        hi = "open" if ci.hi is None else f"{ci.hi:.1f}"
-        text = (f"At pH {p.pH:g}, extracting {p.aqueous_mL:g} mL of aqueous phase with "
-                f"{n} portion{'s' if n != 1 else ''} of solvent ({vols} mL) is predicted to "
-                f"recover {rec.value:.1f} % of the analyte (95 % interval {lo} to {hi} %); "
-                f"{100 * self.remaining_fraction.value:.2g} % would stay in the water.")
-        if self.target_recovery_pct is not None:
-            t = self.target_recovery_pct
-            if ci.lo is not None and ci.lo >= t:
-                text += f" Even the lower end of the interval meets the {t:g} % target."
-            elif rec.value >= t:
-                text += (f" The predicted value meets the {t:g} % target but the lower end of "
-                         "the interval does not: the margin is not demonstrated.")
-            else:
-                text += f" The prediction falls short of the {t:g} % target."
-        return text
 
     def to_dict(self) -> dict:
         p = self.procedure
@@ -92,11 +72,9 @@ class ProcedurePrediction:
             "log_d": self.log_d.to_dict(),
             "recovery_pct": self.recovery_pct.to_dict(),
             "remaining_fraction": self.remaining_fraction.to_dict(),
-            "single_run_recovery_pct": self.single_run_recovery_pct.to_dict(),
             "after_portions": [dict(portions=i + 1, **vi.to_dict())
                                for i, vi in enumerate(self.after_portions)],
             "split_limit_remaining_fraction": self.split_limit_remaining.to_dict(),
-            "reading": self.reading,
         }
 
 
@@ -114,7 +92,8 @@ def predict_procedure(fit: FitResult, procedure: Procedure,
         return recovery_pct_from_log_d(x, p.aqueous_mL, p.organic_mL)
 
     value, lo, hi = _at_ends(rec, est)
-    recovery = ValueInterval(value, Interval(lo, hi, method))
+    recovery = ValueInterval(value, Interval(lo, hi, method),
+                             _prediction_interval(fit, est, value))
     # the remaining fractions fall as log D rises: the upper end of log D gives their lower end
     value, lo, hi = _at_ends(rem, est)
     remaining = ValueInterval(value, Interval(hi, lo, method))
@@ -130,8 +109,8 @@ def predict_procedure(fit: FitResult, procedure: Procedure,
 
     value, lo, hi = _at_ends(split, est)
     split_limit = ValueInterval(value, Interval(hi, lo, method))
-    return ProcedurePrediction(p, est, recovery, remaining, _single_run(fit, est, recovery.value),
-                               tuple(after), split_limit, target_recovery_pct)
+    return ProcedurePrediction(p, est, recovery, remaining, tuple(after), split_limit,
+                               target_recovery_pct)
 
 
 def _at_ends(f, est: Estimate) -> tuple[float, float | None, float | None]:
@@ -142,8 +121,9 @@ def _at_ends(f, est: Estimate) -> tuple[float, float | None, float | None]:
             None if hi is None else float(out[2]))
 
 
-def _single_run(fit: FitResult, est: Estimate, recovery_pct: float) -> ValueInterval:
-    """95 % range of one future run's measured recovery: model uncertainty plus assay error.
+def _prediction_interval(fit: FitResult, est: Estimate, recovery_pct: float) -> Interval:
+    """95 % prediction interval of one future run's measured recovery: model uncertainty plus
+    assay error (what an SOP's acceptance range for a single run should use).
 
     In log10 E space the assay adds sd sigma / ln 10 (the fit's error model); the model part is
     the delta-method sd of log E from log D. The two are combined in quadrature, with the t
@@ -155,8 +135,8 @@ def _single_run(fit: FitResult, est: Estimate, recovery_pct: float) -> ValueInte
     t = fit.t95
     log_e = np.log10(max(e, 1e-300))
     lo, hi = 100.0 * 10 ** (log_e - t * sd), 100.0 * 10 ** (log_e + t * sd)
-    return ValueInterval(100.0 * e, Interval(lo, hi, "prediction interval of one run (t, "
-                                                       "model and assay variance combined)"))
+    return Interval(lo, hi, "prediction interval of one run (t, model and assay variance "
+                            "combined)")
 
 
 # -- procedure design: band, worst case, steps needed, pH window, design space -------------------

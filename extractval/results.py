@@ -9,6 +9,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from .formats import fmt_pct  # noqa: F401  (re-exported: the engine's sentences use it)
+
 
 def clean(x: float | None, digits: int = 10) -> float | None:
     """A float fit for JSON: None for missing or non-finite, rounded to ``digits`` significant."""
@@ -18,21 +20,6 @@ def clean(x: float | None, digits: int = 10) -> float | None:
     if not math.isfinite(x):
         return None
     return float(f"{x:.{digits}g}")
-
-
-def fmt_pct(x: float | None) -> str:
-    """A percentage with enough decimals to show what is left near 100 (99.99975, not 100.0).
-
-    >>> fmt_pct(98.76), fmt_pct(99.95), fmt_pct(99.99997542), fmt_pct(100.0), fmt_pct(None)
-    ('98.8', '99.950', '99.999975', '100.0', 'open')
-    """
-    if x is None:
-        return "open"
-    if 99.9 <= x < 100.0:
-        decimals = min(8, max(2, 1 - math.floor(math.log10(100.0 - x))))
-        text = f"{x:.{decimals}f}"
-        return "100.0" if float(text) >= 100.0 else text
-    return f"{x:.1f}"
 
 
 @dataclass(frozen=True)

@@ -24,8 +24,10 @@ import jinja2
 from markupsafe import Markup
 
 from .plots import plot_name
-from .register import (Dossier, Quantity, fmt_number, pointer, register_rows, resolve,
-                       results_csv, results_json, safe_name, study_register)
+from ..analysis import ONE_PHASE_PLOT_RANGE
+from ..formats import is_bound
+from .register import (Dossier, Quantity, criterion_style, fmt_number, pointer, register_rows,
+                       resolve, results_csv, results_json, safe_name, study_register)
 from .text import html_attr, md_text
 
 #: the dossier's Markdown files besides the study pages
@@ -163,9 +165,16 @@ class StudyView:
         return self._span(n.source, n.value, n.style)
 
     def interval(self, name: str, lo: str = "ci95_lo", hi: str = "ci95_hi") -> Markup:
+        """"a to b"; an interval whose two ends are the same bound ("> 99.99") is written once,
+        as "entirely > 99.99"."""
         q = self.q(name)
         if q is None or q.get(lo) is None:
             return Markup("")
+        n_lo, n_hi = q.get(lo), q.get(hi)
+        shown_lo = fmt_number(n_lo.value, n_lo.style)
+        if n_hi is not None and is_bound(shown_lo) and \
+                fmt_number(n_hi.value, n_hi.style) == shown_lo:
+            return Markup(f'<span class="xv-iv">entirely {self.cell(name, lo)}</span>')
         return Markup(f'<span class="xv-iv">{self.cell(name, lo)} to {self.cell(name, hi)}</span>')
 
     def link(self, name: str, statistic: str = "value") -> Markup:
@@ -331,7 +340,8 @@ class Pages:
         return self._render("study.md.j2", s=view, d=s.data, dossier=dossier,
                             plots=set(s.plots), key=s.key, labels=SYSTEM_LABELS,
                             target_labels=TARGET_LABELS, names=PARAMETER_LABELS,
-                            criteria=CRITERION_LABELS)
+                            criteria=CRITERION_LABELS, criterion_style=criterion_style,
+                            one_phase=[round(100 * x) for x in ONE_PHASE_PLOT_RANGE])
 
     def index_page(self, studies: list[StudyInput], dossier: Dossier, counts: dict) -> str:
         views = [(s, StudyView(s.data, dossier, self._register(s.data), tag_study=True,

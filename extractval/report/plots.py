@@ -33,6 +33,8 @@ from matplotlib.patches import Patch
 from matplotlib.textpath import TextToPath
 from matplotlib.ticker import FixedLocator, FuncFormatter, MultipleLocator, NullLocator
 
+from ..formats import fmt_number
+
 #: The dossier's own palette; hues told apart by lightness as well as colour, and every series
 #: also has its own marker shape, so no reading depends on colour alone.
 INK = "#22313f"
@@ -321,7 +323,7 @@ def log_d_plot(d: dict) -> bytes | None:
     ax.set_xlabel("pH")
     ax.set_ylabel("log D")
     if not n_drawn:
-        ax.text(0.99, 0.03, "no run measured in both phases: no observed log D to draw",
+        ax.text(0.99, 0.03, "no run gives an observed log D to draw",
                 transform=ax.transAxes, ha="right", va="bottom", color=INK, fontsize=8.5)
     handles, labels = ax.get_legend_handles_labels()
     drawn = {r["volume_ratio"] for r in rows if r.get("log_d_observed") is not None}
@@ -413,7 +415,7 @@ def portions_plot(pr: dict) -> bytes | None:
         ax.axhline(limit, color=LIMIT, linestyle=(0, (5, 3)), gid="split-limit",
                    label="limit: the same total solvent in ever more portions")
     elif limit is not None:
-        ax.annotate(f"limit of ever more portions: {limit:.2g} (below the axis)",
+        ax.annotate(f"limit of ever more portions: {fmt_number(limit, 'frac')} (below the axis)",
                     xy=(0.99, 0.02), xycoords="axes fraction", ha="right", va="bottom",
                     color=LIMIT, fontsize=8.5, gid="split-limit-below")
     ax.set_xticks(n)

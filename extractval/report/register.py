@@ -1,9 +1,10 @@
 """The number register: a stable identifier, anchor and citation line for every reported number.
 
 An identifier is ``<study-id>/<quantity>[/<statistic>]``, e.g. ``HPA-2026-014/logK``,
-``HPA-2026-014/logK/ci95_lo`` or ``HPA-2026-014/P1/recovery_pct/ci95_hi``. It is built from
-names only (the study id, the parameter or procedure id, the quantity), never from a position,
-so it does not change when the dossier is rebuilt or other studies are added.
+``HPA-2026-014/logK/ci95_lo``, ``HPA-2026-014/P1/recovery_pct/ci95_hi`` or
+``HPA-2026-014/P1/recovery_pct/pi95_lo`` (the prediction interval of one future run). It is
+built from names only (the study id, the parameter or procedure id, the quantity), never from a
+position, so it does not change when the dossier is rebuilt or other studies are added.
 
 Each number points into the study's ``StudyReport.to_dict()`` with a JSON pointer
 (:func:`resolve`); the register copies the value found there and computes nothing.
@@ -17,7 +18,7 @@ import json
 import re
 from dataclasses import dataclass, field
 
-from ..results import fmt_pct
+from ..formats import STYLES, fmt_number, is_bound, span_words  # noqa: F401  (one place)
 
 #: characters kept in identifiers and anchors; anything else becomes "_"
 _SAFE = re.compile(r"[^A-Za-z0-9._-]")
@@ -46,36 +47,6 @@ def pointer(*parts) -> str:
     return "".join("/" + str(p).replace("~", "~0").replace("/", "~1") for p in parts)
 
 
-# -- how numbers are written --------------------------------------------------------------------
-#: digits of each plain number style (format specifications)
-_FORMAT_SPECS = {"log": ".3f", "pH": ".2f", "r": ".3f", "se": ".2g", "frac": ".3g",
-                 "f2": ".2f", "mL": "g", "g": ".4g", "r4": ".4f", "f1": ".1f",
-                 "g6": ".6g"}
-
-
-def fmt_number(value, style: str) -> str:
-    """A reported number as people read it; the style fixes the digits, nothing is computed.
-
-    >>> fmt_number(2.599229, "log"), fmt_number(0.0076763, "se"), fmt_number(None, "log")
-    ('2.599', '0.0077', 'open')
-    >>> fmt_number(0.04956, "rel"), fmt_number(2.4578e-07, "frac"), fmt_number(99.9999754, "pct")
-    ('4.96 %', '2.46e-07', '99.999975')
-    """
-    if value is None:
-        return "open"
-    if isinstance(value, bool):
-        return "yes" if value else "no"
-    if style == "int":
-        return f"{int(value)}"
-    if style == "pct":                      # a percentage; the unit is written beside it
-        return fmt_pct(value)
-    if style == "rel":                      # a relative SD held as a fraction, shown in percent
-        return format(value, ".2%").replace("%", " %")
-    if style in _FORMAT_SPECS:
-        return format(value, _FORMAT_SPECS[style])
-    raise ValueError(f"unknown number style {style!r}")
-
-
 # -- what each quantity is ----------------------------------------------------------------------
 _PARAMETER_TEXT = {
     "logK": "log K, partition coefficient of the neutral form (log10)",
@@ -87,9 +58,16 @@ _PARAMETER_TEXT = {
 _STAT_TEXT = {
     "value": "", "se": "standard error of", "ci95_lo": "lower end of the 95 % interval of",
     "ci95_hi": "upper end of the 95 % interval of",
-    "pi95_lo": "lower end of the 95 % range of one future run of",
-    "pi95_hi": "upper end of the 95 % range of one future run of",
+    "pi95_lo": "lower end of the 95 % prediction interval (one future run) of",
+    "pi95_hi": "upper end of the 95 % prediction interval (one future run) of",
 }
+#: how the value judged by each criterion is written (a recovery near 100 % as "> 99.99")
+CRITERION_STYLES = {"recovery_pct": "pct", "aoac_recovery_pct": "pct", "horrat_r": "f2",
+                    "ratio_agreement_log": "log"}
+
+
+def criterion_style(criterion: str) -> str:
+    return CRITERION_STYLES.get(criterion, "g")
 
 
 def parameter_text(name: str) -> str:
@@ -138,6 +116,7 @@ class Quantity:
     unit: str
     method: str | None
     numbers: tuple[Number, ...] = field(default_factory=tuple)
+    pi_method: str | None = None     # how the prediction interval (pi95) was made, if any
 
     @property
     def identifier(self) -> str:
@@ -149,17 +128,20 @@ class Quantity:
                 return n
         return None
 
-    def interval_text(self) -> str:
-        lo, hi = self.get("ci95_lo") or self.get("pi95_lo"), self.get("ci95_hi") or self.get(
-            "pi95_hi")
+    def interval_text(self, kind: str = "ci95") -> str:
+        """"95 % interval a to b %" (kind ci95) or the prediction interval (kind pi95)."""
+        lo, hi = self.get(f"{kind}_lo"), self.get(f"{kind}_hi")
         if lo is None or hi is None:
             return ""
-        kind = "95 % interval" if lo.statistic.startswith("ci") else "95 % range of one run"
-        return f"{kind} {lo.display} to {hi.display}"
+        unit = " %" if self.unit == "%" else ""
+        shown = span_words(fmt_number(lo.value, lo.style), fmt_number(hi.value, hi.style), unit)
+        name = "95 % interval" if kind == "ci95" else "95 % prediction interval of one run"
+        return f"{name} {shown}"
 
     def citation(self, number: Number, dossier_version: str, software: str) -> str:
         """A copy-ready line: identifier, value, interval, unit, study, dossier version."""
-        head = f"{number.identifier} = {number.display}"
+        shown = number.display
+        head = f"{number.identifier} {'' if is_bound(shown) else '= '}{shown}"
         if number.statistic == "value":
             extra = []
             se = self.get("se")
@@ -168,6 +150,9 @@ class Quantity:
             iv = self.interval_text()
             if iv:
                 extra.append(iv + (f", {self.method}" if self.method else ""))
+            pi = self.interval_text("pi95")
+            if pi:
+                extra.append(pi + (f", {self.pi_method}" if self.pi_method else ""))
             what = self.description + (f" [{self.unit}]" if self.unit not in ("", "%") else "")
             body = f"{what}" + (f"; {'; '.join(extra)}" if extra else "")
         else:
@@ -189,10 +174,8 @@ def _q(study, name, description, unit, method, base, stats, style, d) -> Quantit
             parts = base + ["value"] if isinstance(entry, dict) else base
         elif stat == "se":
             parts = base + ["se"]
-        elif stat in ("ci95_lo", "pi95_lo"):
-            parts = base + ["ci95", 0]
-        else:
-            parts = base + ["ci95", 1]
+        else:                                   # ci95_lo, ci95_hi, pi95_lo, pi95_hi
+            parts = base + [stat[:4], 0 if stat.endswith("_lo") else 1]
         p = pointer(*parts)
         try:
             value = resolve(d, p)
@@ -201,7 +184,8 @@ def _q(study, name, description, unit, method, base, stats, style, d) -> Quantit
         nums.append(Number(study, name, stat, value, "se" if stat == "se" else style, p, unit))
     if not nums:
         return None
-    return Quantity(study, name, description, unit, method, tuple(nums))
+    pi_method = entry.get("pi95_method") if isinstance(entry, dict) else None
+    return Quantity(study, name, description, unit, method, tuple(nums), pi_method)
 
 
 def _get(d, parts):
@@ -378,9 +362,10 @@ def _verdict_register(sid: str, prefix: str, verdicts: list, base: list, d: dict
         seen[name] = seen.get(name, 0) + 1
         if seen[name] > 1:
             name = f"{name}-{seen[name]}"
+        pct = criterion_style(v["criterion"]) == "pct"
         out.append(_q(sid, f"{prefix}/{name}", f"value judged by the criterion "
-                      f"{v['criterion']} ({v['status']})", "", v.get("detail"),
-                      base + [i, "value"], ("value",), "g", d))
+                      f"{v['criterion']} ({v['status']})", "%" if pct else "", v.get("detail"),
+                      base + [i, "value"], ("value",), criterion_style(v["criterion"]), d))
     return out
 
 
@@ -390,15 +375,13 @@ def _procedure_register(sid: str, k: int, pr: dict, d: dict) -> list[Quantity | 
     at = f"at pH {pr['pH']:g}"
     out = [
         _q(sid, f"{pid}/recovery_pct", f"predicted recovery of procedure {pr['id']}", "%",
-           pr["recovery_pct"].get("ci95_method"), base + ["recovery_pct"], VALUE_CI, "pct", d),
+           pr["recovery_pct"].get("ci95_method"), base + ["recovery_pct"],
+           VALUE_CI + (("pi95_lo", "pi95_hi") if "pi95" in pr["recovery_pct"] else ()),
+           "pct", d),
         _q(sid, f"{pid}/remaining_fraction",
            f"fraction left in the aqueous phase after procedure {pr['id']}", "fraction",
            pr["remaining_fraction"].get("ci95_method"), base + ["remaining_fraction"],
            VALUE_CI, "frac", d),
-        _q(sid, f"{pid}/single_run_recovery_pct",
-           f"recovery of one future run of procedure {pr['id']}", "%",
-           pr["single_run_recovery_pct"].get("ci95_method"),
-           base + ["single_run_recovery_pct"], ("value", "pi95_lo", "pi95_hi"), "pct", d),
         _q(sid, f"{pid}/log_d", f"log D {at} (procedure {pr['id']})", "",
            pr["log_d"].get("ci95_method"), base + ["log_d"],
            ("value", "se", "ci95_lo", "ci95_hi"), "log", d),

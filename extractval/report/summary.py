@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ..results import fmt_pct
+from ..formats import fmt_fraction, fmt_pct
 
 
 def fmt(x, digits: int = 3) -> str:
@@ -33,8 +33,12 @@ def render_summary(d: dict) -> str:
     for pr in d["procedures"]:
         rec = pr["recovery_pct"]
         lo, hi = rec["ci95"]
+        one_run = (f", one run [{fmt_pct(rec['pi95'][0])}, {fmt_pct(rec['pi95'][1])}]"
+                   if rec.get("pi95") else "")
+        left = pr.get("remaining_fraction", {}).get("value")
+        left = f", left in the water {fmt_fraction(left)}" if left is not None else ""
         lines.append(f"   {pr['id']}: recovery {fmt_pct(rec['value'])} % "
-                     f"[{fmt_pct(lo)}, {fmt_pct(hi)}]  ({pr['label']})")
+                     f"[{fmt_pct(lo)}, {fmt_pct(hi)}]{one_run}{left}  ({pr['label']})")
     lines.extend(calibration_lines(d.get("calibration")))
     for w in d["warnings"]:
         lines.append(f"   warning: {w}")

@@ -1,0 +1,101 @@
+"""The reading of a procedure: one paragraph saying what its prediction and its verdict mean.
+
+It is written from the procedure's entry of ``StudyReport.to_dict()`` after the verdicts are
+in it, so it cannot say anything its verdicts do not: the recovery criterion's outcome is the
+verdict's own status, and the numbers are the entry's (the nominal prediction, the range of one
+future run, the worst case inside the tolerances), written by :mod:`extractval.formats`.
+"""
+
+from __future__ import annotations
+
+from .formats import fmt_fraction, fmt_number, fmt_pct, in_words, span_words
+
+#: what the reading says for each verdict status of the recovery criterion
+OUTCOME_WORDS = {"pass": "met", "fail": "not met"}
+
+
+def _volumes(values) -> str:
+    return " + ".join(fmt_number(v, "mL") for v in values)
+
+
+def _recovery_verdict(pr: dict) -> dict | None:
+    for v in pr.get("verdicts") or []:
+        if v.get("criterion") == "recovery_pct":
+            return v
+    return None
+
+
+def procedure_reading(pr: dict, target_pct: float | None) -> str:
+    """The paragraph under a procedure's heading, from its dict entry with verdicts.
+
+    >>> pr = {"pH": 7.0, "pH_tolerance": 0.2, "aqueous_mL": 25.0, "organic_mL": [5.0, 5.0],
+    ...       "recovery_pct": {"value": 95.72, "ci95": [95.50, 95.93], "pi95": [88.3, 103.7]},
+    ...       "remaining_fraction": {"value": 0.0428, "ci95": [0.0407, 0.045]},
+    ...       "worst_case": {"recovery_pct": 90.77, "pH": 6.8, "aqueous_mL": 25.5,
+    ...                      "organic_mL": [4.9, 4.9]},
+    ...       "verdicts": [{"criterion": "recovery_pct", "status": "fail", "value": 90.77}]}
+    >>> print(procedure_reading(pr, 95.0))  # doctest: +NORMALIZE_WHITESPACE
+    At pH 7.00 (± 0.20), extracting 25 mL of aqueous phase with 2 portions of solvent
+    (5 + 5 mL) is predicted to recover 95.7 % of the analyte on average (95 % interval 95.5 to
+    95.9 %); one future run is expected within 88.3 to 103.7 % (95 % prediction interval). The
+    fraction left in the water is 0.0428 (0.0407 to 0.045). Recovery target 95 %: not met. The
+    lower 95 % end is 95.5 % at the nominal conditions but 90.8 % at the worst case inside the
+    tolerances (pH 6.80, 25.5 mL of water, 4.9 + 4.9 mL of solvent): the procedure meets the
+    target only with tighter tolerances.
+    """
+    n = len(pr["organic_mL"])
+    rec = pr["recovery_pct"]
+    lo, hi = (rec.get("ci95") or [None, None])
+    tol = pr.get("pH_tolerance")
+    at = f"At pH {fmt_number(pr['pH'], 'pH')}" + (
+        f" (± {fmt_number(tol, 'pH')})" if tol else "")
+    text = (f"{at}, extracting {fmt_number(pr['aqueous_mL'], 'mL')} mL of aqueous phase with "
+            f"{n} portion{'s' if n != 1 else ''} of solvent ({_volumes(pr['organic_mL'])} mL) "
+            f"is predicted to recover {in_words(fmt_pct(rec['value']))} % of the analyte on "
+            f"average (95 % interval {span_words(fmt_pct(lo), fmt_pct(hi), ' %')})")
+    pi = rec.get("pi95")
+    if pi:
+        text += (f"; one future run is expected within "
+                 f"{span_words(fmt_pct(pi[0]), fmt_pct(pi[1]), ' %')} (95 % prediction "
+                 "interval)")
+    text += "."
+    rem = pr.get("remaining_fraction") or {}
+    if rem.get("value") is not None:
+        r_lo, r_hi = rem.get("ci95") or [None, None]
+        text += (f" The fraction left in the water is {in_words(fmt_fraction(rem['value']))} "
+                 f"({span_words(fmt_fraction(r_lo), fmt_fraction(r_hi))}).")
+    return text + _target_sentence(pr, target_pct)
+
+
+def _target_sentence(pr: dict, target_pct: float | None) -> str:
+    """What the recovery verdict says, with the nominal and the worst-case lower ends."""
+    v = _recovery_verdict(pr)
+    if target_pct is None:
+        return " No recovery target is set (targets: recovery_pct in study.yaml)."
+    head = f" Recovery target {fmt_number(target_pct, 'g')} %"
+    if v is None:
+        return head + ": not judged."
+    outcome = OUTCOME_WORDS.get(v.get("status"))
+    if outcome is None:                 # not assessed, not judged, or a status added later
+        detail = v.get("detail")
+        return head + f": not judged{f' ({detail})' if detail else ''}."
+    lo = (pr["recovery_pct"].get("ci95") or [None])[0]
+    wc = pr.get("worst_case") or {}
+    worst = wc.get("recovery_pct")
+    if lo is None or worst is None:
+        detail = v.get("detail")
+        return head + f": {outcome}{f' ({detail})' if detail else ''}."
+    where = (f"the worst case inside the tolerances (pH {fmt_number(wc['pH'], 'pH')}, "
+             f"{fmt_number(wc['aqueous_mL'], 'mL')} mL of water, "
+             f"{_volumes(wc['organic_mL'])} mL of solvent)")
+    nominal = in_words(fmt_pct(lo))
+    worst_text = in_words(fmt_pct(worst))
+    if outcome == "met":
+        return (head + f": met. The lower 95 % end is {nominal} % at the nominal conditions "
+                f"and {worst_text} % at {where}.")
+    if lo >= target_pct:
+        return (head + f": not met. The lower 95 % end is {nominal} % at the nominal "
+                f"conditions but {worst_text} % at {where}: the procedure meets the target "
+                "only with tighter tolerances.")
+    return (head + f": not met. The lower 95 % end is {nominal} % at the nominal conditions "
+            f"and {worst_text} % at {where}.")

@@ -1,0 +1,185 @@
+"""Words and digits a reader can trust: the reading agrees with the verdicts, recoveries near
+100 % and tiny fractions are written as bounds, the interval of one future run is a prediction
+interval everywhere, and the captions say what the figures draw."""
+
+from __future__ import annotations
+
+import json
+import re
+
+import pytest
+
+from extractval.analysis import fit_study
+from extractval.formats import fmt_number, fmt_pct
+from extractval.report.pages import Pages, StudyInput
+from extractval.report.plots import log_d_plot, plot_name, study_plots
+from extractval.report.register import Dossier, register_rows, study_register
+from extractval.report.summary import render_summary
+from extractval.report.text import md_text
+from extractval.simulate import simulated_study
+from extractval.study import Procedure, Targets
+from site_factory import synthetic_study
+from test_report_pages import TEMPLATES
+
+DOSSIER = Dossier("dv-000000000000", "extractval 0.0-test", "2026-01-01 00:00 UTC")
+
+
+def as_json(d: dict) -> dict:
+    return json.loads(json.dumps(d, allow_nan=False))
+
+
+@pytest.fixture(scope="module")
+def edge() -> dict:
+    """A base (log K 2.2, pKa 8.0) with a procedure whose nominal lower end meets the 95 %
+    target while the worst corner of a wide pH tolerance (7.0 +/- 0.5) does not, and one far
+    into the plateau whose recovery rounds to 100 %."""
+    procs = (Procedure("EDGE", "Two 10 mL portions at pH 7, wide tolerance", 7.0, 25.0,
+                       (10.0, 10.0), pH_tolerance=0.5),
+             Procedure("FULL", "Five 25 mL portions at pH 10", 10.0, 25.0, (25.0,) * 5))
+    return as_json(fit_study(synthetic_study("SYN-EDGE", procedures=procs)).to_dict())
+
+
+def _procedure(d: dict, pid: str) -> dict:
+    return next(p for p in d["procedures"] if p["id"] == pid)
+
+
+# -- the reading and the verdicts ----------------------------------------------------------------
+def test_reading_names_the_worst_case_when_only_the_nominal_meets_the_target(edge):
+    pr = _procedure(edge, "EDGE")
+    verdict = next(v for v in pr["verdicts"] if v["criterion"] == "recovery_pct")
+    # the situation the test is about: nominal lower end above the target, worst case below
+    assert pr["recovery_pct"]["ci95"][0] >= 95.0 > pr["worst_case"]["recovery_pct"]
+    assert verdict["status"] == "fail"
+    reading = pr["reading"]
+    assert "Recovery target 95 %: not met." in reading
+    assert f"{fmt_pct(pr['recovery_pct']['ci95'][0])} % at the nominal conditions" in reading
+    assert f"but {fmt_pct(pr['worst_case']['recovery_pct'])} % at the worst case" in reading
+    assert "meets the 95 % target" not in reading and "Even the lower end" not in reading
+    page = Pages(TEMPLATES).study_page(StudyInput("SYN-EDGE", edge), DOSSIER)
+    assert str(md_text("Recovery target 95 %: not met.")) in page
+
+
+def _outcome(reading: str) -> str | None:
+    m = re.search(r"Recovery target [\d.]+ %: (met|not met|not judged)", reading)
+    return m.group(1) if m else None
+
+
+@pytest.mark.parametrize("study", ["edge", "demo"])
+def test_reading_outcome_is_the_verdicts(study, edge, demo_dicts):
+    """Over every procedure: the reading's outcome is its recovery verdict's status."""
+    dicts = [edge] if study == "edge" else demo_dicts
+    words = {"pass": "met", "fail": "not met", "not assessed": "not judged"}
+    seen = 0
+    for d in dicts:
+        for pr in d["procedures"]:
+            v = next(v for v in pr["verdicts"] if v["criterion"] == "recovery_pct")
+            if d["targets"].get("recovery_pct") is None:
+                assert "No recovery target is set" in pr["reading"]
+                continue
+            assert _outcome(pr["reading"]) == words[v["status"]], pr["reading"]
+            seen += 1
+    assert seen >= 2
+
+
+@pytest.fixture(scope="module")
+def demo_dicts() -> list[dict]:
+    from pathlib import Path
+
+    from extractval.study import load_study
+    root = Path(__file__).resolve().parent.parent / "studies"
+    return [as_json(fit_study(load_study(p)).to_dict())
+            for p in sorted(root.iterdir()) if (p / "study.yaml").exists()]
+
+
+def test_demo_amine_p2_reading_no_longer_contradicts_its_verdict(demo_dicts):
+    """The case reported in the issue: P2 of the amine demo fails at its worst case."""
+    d = next(d for d in demo_dicts if d["study"] == "HPA-2026-014")
+    pr = _procedure(d, "P2")
+    assert pr["verdicts"][0]["status"] == "fail"
+    assert "not met" in pr["reading"] and "90.8 % at the worst case" in pr["reading"]
+
+
+# -- digits near 100 % and near 0 ------------------------------------------------------------------
+@pytest.mark.parametrize("value, shown", [
+    (95.71839508, "95.7"), (99.89, "99.9"), (99.9, "99.90"), (99.98, "99.98"),
+    (99.987, "99.99"), (99.99, "> 99.99"), (99.99997482, "> 99.99"), (100.0, "> 99.99"),
+    (103.74, "103.7"), (-0.04, "0.0"), (None, "open")])
+def test_recovery_digits(value, shown):
+    """The project's rule (extractval/formats.py): never "100.0" for a recovery below 100."""
+    assert fmt_pct(value) == shown
+
+
+@pytest.mark.parametrize("value, style, shown", [
+    (-0.001, "f2", "0.00"), (-0.0004, "log", "0.000"), (-0.02, "f2", "-0.02"),
+    (5.5e-84, "frac", "< 1e-06"), (2.5e-07, "frac", "< 1e-06"), (1.96e-4, "frac", "0.000196"),
+    (-0.00001, "rel", "0.00 %")])
+def test_no_negative_zero_and_a_floor_for_tiny_fractions(value, style, shown):
+    assert fmt_number(value, style) == shown
+
+
+def test_no_100_point_0_and_no_tiny_numbers_anywhere(edge):
+    """The procedure far on the plateau: the page, the register, the summary and the reading
+    write its recovery as a bound and give the fraction left in the water instead."""
+    pr = _procedure(edge, "FULL")
+    assert pr["recovery_pct"]["ci95"][0] > 99.99
+    assert pr["split_limit_remaining_fraction"]["value"] < 1e-30
+    page = Pages(TEMPLATES).study_page(StudyInput("SYN-EDGE", edge), DOSSIER)
+    rows = register_rows(study_register(edge), DOSSIER, "studies/SYN-EDGE/")
+    summary = render_summary(edge)
+    for where, text in (("page", page), ("register", json.dumps([r["display"] for r in rows]
+                                                                + [r["citation"] for r in rows])),
+                        ("summary", summary), ("reading", pr["reading"])):
+        assert "100.0 " not in text and "100.00" not in text, where
+        assert not re.search(r"\d\.?\d*e-(\d{3}|[2-9]\d)", text), where   # no 1e-20 and below
+    assert "FULL: recovery > 99.99 %" in summary
+    assert "more than 99.99 %" in pr["reading"]
+    cite = next(r["citation"] for r in rows if r["id"] == "SYN-EDGE/FULL/recovery_pct")
+    assert cite.startswith("SYN-EDGE/FULL/recovery_pct > 99.99 %")
+    split = next(r for r in rows if r["id"] == "SYN-EDGE/FULL/split_limit_remaining_fraction")
+    assert split["display"] == "< 1e-06"           # the identifier stays, the bound is shown
+
+
+def test_residuals_never_print_as_negative_zero(edge):
+    d = json.loads(json.dumps(edge))
+    d["run_table"][0]["studentized_residual"] = -0.0012
+    page = Pages(TEMPLATES).study_page(StudyInput("SYN-EDGE", d), DOSSIER)
+    assert "-0.00<" not in page and ">0.00<" in page
+
+
+# -- the prediction interval of one run ----------------------------------------------------------
+def test_prediction_interval_is_named_pi95_everywhere(edge):
+    pr = _procedure(edge, "EDGE")
+    rec = pr["recovery_pct"]
+    assert "single_run_recovery_pct" not in pr
+    lo, hi = rec["pi95"]
+    assert lo < rec["ci95"][0] <= rec["ci95"][1] < hi       # one run spreads wider than the mean
+    assert "prediction interval" in rec["pi95_method"]
+    ids = {r["id"]: r for r in register_rows(study_register(edge), DOSSIER, "p/")}
+    assert ids["SYN-EDGE/EDGE/recovery_pct/pi95_lo"]["value"] == lo
+    assert ids["SYN-EDGE/EDGE/recovery_pct/pi95_hi"]["value"] == hi
+    assert "95 % prediction interval of one run" in ids["SYN-EDGE/EDGE/recovery_pct"]["citation"]
+    page = Pages(TEMPLATES).study_page(StudyInput("SYN-EDGE", edge), DOSSIER)
+    head = page[:page.index("## System and inputs")]
+    assert "one run (95 % prediction interval)" in head and f"{fmt_pct(lo)}" in head
+    assert "95 % prediction interval" in pr["reading"]
+    assert "one run [" in render_summary(edge)
+
+
+# -- captions match the figures ------------------------------------------------------------------
+def test_log_d_caption_matches_what_is_drawn():
+    """Runs measured in one phase are drawn at the log D their fraction implies (between 2 and
+    98 % extracted); the caption says so, and the figure has their markers."""
+    st = simulated_study("SYN-ONE", "base", (2.2, 8.0), (7.0, 7.5, 8.0, 8.5), form="recovery",
+                         ratios=(0.5, 1.0), rng=3,
+                         procedures=[Procedure("P1", "x", 9.0, 25.0, (10.0,))],
+                         targets=Targets(recovery_pct=95.0))
+    d = as_json(fit_study(st).to_dict())
+    assert any(r["log_d_observed"] is not None for r in d["run_table"])
+    svg = log_d_plot(d).decode()
+    assert 'id="runs-ratio-0.5"' in svg and "no observed log D" not in svg
+    page = Pages(TEMPLATES).study_page(
+        StudyInput("SYN-ONE", d, plots=tuple(study_plots(d))), DOSSIER)
+    caption = page[page.index(plot_name("log_d")):]
+    caption = caption[caption.index("<figcaption>"):caption.index("</figcaption>")]
+    assert "not drawn here" not in caption.replace("outside that range are not drawn here", "")
+    assert "measured in one phase" in caption and "between 2 and 98 %" in caption
