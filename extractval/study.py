@@ -26,7 +26,8 @@ Reading rules
   measurement, or an incomplete one (a broken flask, a spike not recorded), but every value it
   gives is checked like any other run's, plausibility included: an exclusion reason does not
   hide a typo. A number in ``excluded`` (other than the flags below) is an error: it is not a
-  reason, and in a ``,``-separated file it is the mark of cells shifted by a decimal comma.
+  reason, and in a ``,``-separated file it is the mark of cells shifted by a decimal comma; so
+  is a ``replicate`` label that is a decimal number (96.5) in such a file.
 * Plausibility, in percent of the spiked amount: found amounts (or recovery_pct) above 150 %
   are errors; a recovery above 100 % (recovery_pct, found_organic alone, or found_organic of
   a both-phase run) or one found amount above 100 % is a warning with its run; with both
@@ -1081,6 +1082,7 @@ def _run(reader: _RowReader, row: TableRow, seen: dict, check_forms: bool) -> Ru
             seen[run_id] = row.location
 
     excluded = _excluded(reader, row, run)
+    _decimal_label(reader, row, run)
 
     pH = reader.number(row, run, "ph", required=True, what="a pH from 0 to 14")
     if isinstance(pH, float) and not 0.0 <= pH <= 14.0:
@@ -1105,6 +1107,21 @@ def _run(reader: _RowReader, row: TableRow, seen: dict, check_forms: bool) -> Ru
 
 def _short(loc: Location) -> str:
     return f"line {loc.line}" if loc.line is not None else f"row {loc.row}"
+
+
+def _decimal_label(reader: _RowReader, row: TableRow, run) -> None:
+    """In a ','-separated file a replicate label that is a decimal number (96.5) is the mark
+    of cells shifted by a decimal comma: a label is a name or a whole number (1, 2, 3)."""
+    label = row.raw("replicate").strip()
+    if reader.table.separator != "," or "." not in label or parse_number(label) is None:
+        return
+    reader.report(row, run, "replicate", "a decimal number where a replicate label is "
+                  "expected: in a ','-separated file a decimal comma earlier in the row "
+                  "splits a number and shifts the cells after it", found=label,
+                  expected="a label such as A, 1 or pH7-1 (write decimals with a point, or "
+                           "separate the cells with ';' when decimals are written with a "
+                           "comma); a label that is a decimal number needs another spelling "
+                           "(2-1 for 2.1)")
 
 
 def _excluded(reader: _RowReader, row: TableRow, run) -> str | None:

@@ -332,3 +332,17 @@ def test_replicate_pH_tolerance_is_set_in_study_yaml(tmp_path):
     _, problems = check(tmp_path, runs, with_yaml("replicate_pH_tolerance: -1"))
     assert only(problems, "'replicate_pH_tolerance' is out of range").key == \
         "replicate_pH_tolerance"
+
+
+def test_shift_that_a_left_out_cell_hides_is_caught_by_the_label(tmp_path):
+    # the row of the first test with its last ',' left out: 11 cells like the header, so the
+    # count cannot tell; the recovery 96.5 lands in 'replicate' and 'r1' in 'excluded'
+    runs = (f"{SCAFFOLD_HEADER}\n"
+            "R1,7.0,10,10,,,,96.5,r1,,\n"
+            "R10,3,98,10,10,,,,96.5,r1,\n")
+    study, problems = check(tmp_path, runs)
+    assert study is None
+    p = only(problems, "a decimal number where a replicate label is expected")
+    assert (p.severity, p.line, p.run, p.column, p.found) == ("error", 3, "R10", "replicate",
+                                                              "96.5")
+    assert "separate the cells with ';'" in p.expected
