@@ -1,8 +1,8 @@
 """Acceptance statistics for a validation dossier: Grubbs, lack of fit, AOAC ranges, Horwitz.
 
 Pure numpy/scipy, no I/O. Each function names the published relation or table it implements;
-criterion-like functions return a :class:`Verdict` (pass / fail / not assessed with the number
-and the limit behind it). Nothing here ever drops a run: screening only flags.
+criterion-like functions return a :class:`Verdict` (pass / fail / note / not judged with the
+number and the limit behind it). Nothing here ever drops a run: screening only flags.
 
 References
 ----------
@@ -38,7 +38,18 @@ from scipy import stats
 
 from extractval.results import clean, fmt_pct
 
-STATUSES = ("pass", "fail", "not assessed")
+#: a verdict's machine-readable outcome: met, not met, judged but to be looked into (a HorRat
+#: below its range), or not judged (no data, no limit, or the prediction is an extrapolation)
+STATUSES = ("pass", "fail", "note", "not judged")
+#: the same outcomes in words, sentence case, as pages and the CLI show them
+OUTCOME_WORDS = {"pass": "Met", "fail": "Not met", "note": "To investigate",
+                 "not judged": "Not judged"}
+#: earlier spelling of "not judged", still accepted when a verdict is built
+_STATUS_ALIASES = {"not assessed": "not judged"}
+#: where a criterion's limit comes from: the study's ``targets:`` (or ``level:``), a default
+#: of a guideline or of common practice applied when the study sets none, or nobody (the row
+#: is shown for completeness and never judged)
+BASES = ("target", "default", "none")
 
 # Limits are inclusive; this slack keeps a value that equals its limit up to float rounding
 # (0.1 + 0.2 style) on the inclusive side.
@@ -63,7 +74,8 @@ class Verdict:
     """One acceptance criterion's outcome with the number and the limit behind it.
 
     ``limit`` is a single number (a maximum or minimum, as ``detail`` says) or a ``(lo, hi)``
-    pair; ``value`` is None when the criterion could not be assessed.
+    pair; ``value`` is None when the criterion could not be judged. ``basis`` says who set the
+    limit (:data:`BASES`).
     """
 
     criterion: str
@@ -71,12 +83,24 @@ class Verdict:
     value: float | None
     limit: float | tuple[float, float] | None
     detail: str = ""
+    basis: str = "target"
 
     def __post_init__(self) -> None:
+        if self.status in _STATUS_ALIASES:
+            object.__setattr__(self, "status", _STATUS_ALIASES[self.status])
         if self.status not in STATUSES:
             raise ValueError(
                 f"verdict {self.criterion!r}: status {self.status!r} is not one of {STATUSES}"
             )
+        if self.basis not in BASES:
+            raise ValueError(
+                f"verdict {self.criterion!r}: basis {self.basis!r} is not one of {BASES}"
+            )
+
+    @property
+    def outcome(self) -> str:
+        """The outcome in words (sentence case): Met, Not met, To investigate, Not judged."""
+        return OUTCOME_WORDS[self.status]
 
     def to_dict(self) -> dict:
         if isinstance(self.limit, tuple):
@@ -90,6 +114,8 @@ class Verdict:
             "value": value,
             "limit": limit,
             "detail": self.detail,
+            "outcome": self.outcome,
+            "basis": self.basis,
         }
 
 
@@ -99,8 +125,9 @@ def verdict(
     value: float | None,
     limit: float | tuple[float, float] | None,
     detail: str = "",
+    basis: str = "target",
 ) -> Verdict:
-    """Build a :class:`Verdict`, checking that ``status`` is one of pass / fail / not assessed.
+    """Build a :class:`Verdict`, checking ``status`` (:data:`STATUSES`) and ``basis``.
 
     Examples
     --------
@@ -108,7 +135,8 @@ def verdict(
     >>> v.to_dict()["status"], v.to_dict()["limit"]
     ('pass', 5.0)
     """
-    return Verdict(criterion, status, None if value is None else float(value), limit, detail)
+    return Verdict(criterion, status, None if value is None else float(value), limit, detail,
+                   basis)
 
 
 # --------------------------------------------------------------------------------------------
@@ -296,7 +324,7 @@ class LackOfFit:
     def verdict(self, alpha: float = 0.05) -> Verdict:
         """Pass when the lack of fit is not significant at ``alpha`` (p >= alpha)."""
         if not self.testable:
-            return verdict("not assessed", "lack_of_fit", None, alpha, self.reason or "")
+            return verdict("not judged", "lack_of_fit", None, alpha, self.reason or "")
         ok = self.p_value >= alpha
         detail = (
             f"F = {self.F:.3g} on {self.df_lof} and {self.df_pe} df, p = {self.p_value:.3g}: "
@@ -589,6 +617,10 @@ def aoac_recovery_verdict(
 ) -> Verdict:
     """Pass when a mean recovery [%] lies inside the AOAC Table A5 range for ``level`` [5]_.
 
+    Table A5 gives the range of *measured* mean recoveries expected at an analyte level: pass
+    the mean of measured recoveries, never a model's prediction (a predicted 99.99 % says
+    nothing about the method's trueness at that level).
+
     Examples
     --------
     >>> aoac_recovery_verdict(95.2, "10 ppm").status
@@ -599,9 +631,9 @@ def aoac_recovery_verdict(
     try:
         lo, hi, label = aoac_recovery_range(level)
     except ValueError as exc:
-        return verdict("not assessed", criterion, recovery_pct, None, str(exc))
+        return verdict("not judged", criterion, recovery_pct, None, str(exc))
     if recovery_pct is None or not math.isfinite(recovery_pct):
-        return verdict("not assessed", criterion, None, (lo, hi), "no mean recovery available")
+        return verdict("not judged", criterion, None, (lo, hi), "no mean recovery available")
     ok = _at_least(recovery_pct, lo) and _at_most(recovery_pct, hi)
     detail = (
         f"mean recovery {fmt_pct(recovery_pct)} % {'inside' if ok else 'outside'} {lo:g}-{hi:g} % "
@@ -711,35 +743,44 @@ def horrat_verdict(
     rsd_pct: float | None, level: str | float, kind: str = "r",
     exponent: float = HORWITZ_EXPONENT,
 ) -> Verdict:
-    """Pass when HorRat lies in the AOAC acceptable range: r 0.3-1.3, R 0.5-2.0 [5]_.
+    """HorRat against the AOAC acceptable range: r 0.3-1.3, R 0.5-2.0 [5]_.
 
-    Low values fail too: Annex D asks that a series of low HorRat values be checked for
-    unreported averaging or prior knowledge of the analyte content.
+    Inside the range: pass. Above it: fail (precision worse than the Horwitz expectation).
+    Below it: a note, never a fail. Annex D 2.2.2 asks that values at the extremes be
+    interpreted with caution and, for a series of low values, that the laboratory check for
+    unreported averaging or prior knowledge of the analyte content: a precision better than
+    expected is a reason to look, not a defect of the method.
 
     Examples
     --------
-    >>> horrat_verdict(8.0, "1 ppm").status, horrat_verdict(24.0, "1 ppm").status
-    ('pass', 'fail')
+    >>> [horrat_verdict(x, "1 ppm").status for x in (8.0, 24.0, 2.0)]
+    ['pass', 'fail', 'note']
     """
     criterion = f"horrat_{kind}"
     if kind not in HORRAT_LIMITS:
         raise ValueError(f"HorRat: kind {kind!r}; expected 'r' (repeatability) or 'R'")
     lo, hi = HORRAT_LIMITS[kind]
     if rsd_pct is None or not math.isfinite(rsd_pct):
-        return verdict("not assessed", criterion, None, (lo, hi), "no RSD available")
+        return verdict("not judged", criterion, None, (lo, hi), "no RSD available")
     try:
         c = parse_level(level)
     except ValueError as exc:
-        return verdict("not assessed", criterion, None, (lo, hi), str(exc))
+        return verdict("not judged", criterion, None, (lo, hi), str(exc))
     value = horrat(rsd_pct, c, kind, exponent)
-    ok = _at_least(value, lo) and _at_most(value, hi)
+    low, high = not _at_least(value, lo), not _at_most(value, hi)
+    where = "below" if low else "above" if high else "inside"
     detail = (
         f"HorRat({kind}) = RSD {rsd_pct:.3g} % / PRSD(R) {horwitz_prsd_r(c, exponent):.3g} % = "
-        f"{value:.2f}, {'inside' if ok else 'outside'} {lo:g}-{hi:g} (AOAC Appendix F Annex D)"
+        f"{value:.2f}, {where} {lo:g}-{hi:g} (AOAC Appendix F Annex D 2.2)"
     )
-    if not ok and value < lo:
-        detail += "; low values suggest unreported averaging or prior knowledge of the content"
-    return verdict("pass" if ok else "fail", criterion, value, (lo, hi), detail)
+    if low:
+        detail += ("; precision better than the Horwitz expectation: to investigate, not a "
+                   "fail (check for unreported averaging or prior knowledge of the content)")
+        return verdict("note", criterion, value, (lo, hi), detail)
+    if high:
+        detail += ("; precision worse than the Horwitz expectation: look for uncontrolled "
+                   "steps (times, temperatures, volumes)")
+    return verdict("fail" if high else "pass", criterion, value, (lo, hi), detail)
 
 
 # --------------------------------------------------------------------------------------------
@@ -774,7 +815,7 @@ class PooledRSD:
     def verdict(self, max_rsd_pct: float, criterion: str = "max_rsd_pct") -> Verdict:
         """Pass when the pooled RSD is at most ``max_rsd_pct`` [%]."""
         if self.rsd_pct is None:
-            return verdict("not assessed", criterion, None, max_rsd_pct, self.reason or "")
+            return verdict("not judged", criterion, None, max_rsd_pct, self.reason or "")
         ok = _at_most(self.rsd_pct, max_rsd_pct)
         detail = (
             f"pooled RSD {self.rsd_pct:.3g} % on {self.df} df from {self.n_groups} replicate "
@@ -890,7 +931,7 @@ class RatioAgreement:
 
     def verdict(self, criterion: str = "ratio_agreement_log") -> Verdict:
         if self.within is None:
-            return verdict("not assessed", criterion, None, self.limit,
+            return verdict("not judged", criterion, None, self.limit,
                            f"{self.n_ratios} volume ratio(s): agreement needs at least two")
         detail = (
             f"log D from {self.n_values} runs at {self.n_ratios} volume ratios spans "

@@ -23,7 +23,7 @@ from .reading import procedure_reading
 from .results import clean
 from .screening import STUDENTIZED_LIMIT, refit_without, screen
 from .study import Run, Study
-from .verdicts import overall_status, procedure_verdicts, study_verdicts
+from .verdicts import procedure_verdicts, status_summary, study_verdicts
 
 #: AICc difference within which the simpler model is preferred by ``model: auto``
 PARSIMONY_DELTA = 2.0
@@ -198,14 +198,16 @@ class StudyReport:
     def assessment(self) -> dict:
         """Verdicts against the study's targets, per procedure and for the study."""
         if self.fit is None:
-            return {"study": [], "procedures": [], "details": {}, "status": "not assessed"}
+            return {"study": [], "procedures": [], "details": {}, "status": "not judged",
+                    "summary": {"status": "not judged", "text": "not fitted", "counts": {}}}
         targets = self.study.targets
         study_v, details = study_verdicts(self.fit, self.outcomes, targets)
         study_v = study_v + calibration_verdicts(self.study)
-        proc_v = [procedure_verdicts(p, d, targets)
+        proc_v = [procedure_verdicts(p, d, targets, self.outcomes)
                   for p, d in zip(self.predictions, self.designs)]
-        status = overall_status(study_v + [v for vs in proc_v for v in vs])
-        return {"study": study_v, "procedures": proc_v, "details": details, "status": status}
+        summary = status_summary(study_v + [v for vs in proc_v for v in vs])
+        return {"study": study_v, "procedures": proc_v, "details": details,
+                "status": summary["status"], "summary": summary}
 
     @cached_property
     def outlier_screen(self) -> dict | None:
@@ -343,6 +345,8 @@ class StudyReport:
                            for p, d, vs in zip(self.predictions, self.designs,
                                                self.assessment["procedures"])],
             "status": self.assessment["status"],
+            "status_text": self.assessment["summary"]["text"],
+            "status_counts": self.assessment["summary"]["counts"],
             "verdicts": [v.to_dict() for v in self.assessment["study"]],
             "warnings": list(self.warnings),
             "problems": list(self.problems),

@@ -51,7 +51,7 @@ import hashlib
 import math
 import os
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path, PurePosixPath, PureWindowsPath
 from typing import TYPE_CHECKING
 
@@ -179,6 +179,8 @@ class Targets:
     mass_balance_pct: tuple[float, float] | None = None
     ratio_agreement_log: float | None = None
     level: str | None = None          # analyte level, e.g. "10 ppm", for AOAC limits
+    #: significance level at which the lack-of-fit F test is judged; None: shown, not judged
+    lack_of_fit_alpha: float | None = None
 
 
 @dataclass(frozen=True)
@@ -275,7 +277,7 @@ _KEYS = {
     "analyte": ("name", "model", "ion_pair", "level"),
     "system": ("aqueous", "organic", "temperature_C"),
     "targets": ("recovery_pct", "max_rsd_pct", "mass_balance_pct", "ratio_agreement_log",
-                "level"),
+                "level", "lack_of_fit_alpha"),
     "procedure": ("id", "label", "pH", "aqueous_mL", "organic_mL", "pH_tolerance",
                   "volume_tolerance_pct", "steps"),
     "advice": ("target", "pH_range"),
@@ -598,8 +600,17 @@ def _targets(doc: _Yaml, entries) -> tuple[Targets, str | None]:
         ratio_agreement_log=doc.number(t, node, "targets", "ratio_agreement_log",
                                        required=False, check=_positive,
                                        expected="a spread in log units, e.g. 0.3"),
+        lack_of_fit_alpha=doc.number(t, node, "targets", "lack_of_fit_alpha", required=False,
+                                     check=_alpha,
+                                     expected="a significance level between 0 and 0.5, "
+                                              "e.g. 0.05"),
     )
     return targets, level
+
+
+def _alpha(value: float) -> str | None:
+    # a test judged at alpha above 0.5 would reject a true model more often than not
+    return None if 0.0 < value <= 0.5 else "a significance level above 0 and at most 0.5"
 
 
 def _band(doc: _Yaml, node) -> tuple[float, float] | None:
@@ -1445,8 +1456,7 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
                    expected="one level, under analyte or under targets")
     level = level or target_level
     if level is not None:
-        targets = Targets(targets.recovery_pct, targets.max_rsd_pct, targets.mass_balance_pct,
-                          targets.ratio_agreement_log, level)
+        targets = replace(targets, level=level)
     procedures = _procedures(doc, entries)
     advice = _advice(doc, entries, procedures)
     impurity_specs = _impurities(doc, entries)

@@ -111,7 +111,7 @@ def test_injection_rsd_and_count():
     none = [_inj("S4")]
     v = {x.criterion: x for x in su.judge_sequence("S4", none, lim).verdicts}[
         "suitability_injection_rsd_max_pct"]
-    assert v.status == "not assessed"
+    assert v.status == "not judged"          # "not assessed" is read as "not judged"
 
 
 def test_study_limits_replace_the_defaults():

@@ -245,19 +245,14 @@ def all_verdicts(d: dict) -> list[dict]:
 
 
 def study_status(d: dict) -> tuple[str, str]:
-    """(css class, words) for a study's state, from the engine's status and verdicts."""
+    """(css class, words) for a study's state: the engine's status and its words
+    (``status``, ``status_text``), or why there are none."""
     if d.get("problems"):
         return "bad", "not fitted"
-    verdicts = all_verdicts(d)
-    failed = [v for v in verdicts if v.get("status") == "fail"]
-    open_ = [v for v in verdicts if v.get("status") == "not assessed"]
-    if d.get("status") == "fail" or failed:
-        return "bad", f"{len(failed)} of {len(verdicts)} acceptance criteria not met"
-    if d.get("status") == "pass":
-        extra = f", {len(open_)} not assessed" if open_ else ""
-        return "good", f"acceptance criteria met ({len(verdicts) - len(open_)}{extra})"
-    if verdicts or d.get("status") == "not assessed":
-        return "warn", "fitted; acceptance criteria not assessed"
+    status, text = d.get("status"), d.get("status_text")
+    if text and status in ("pass", "fail", "not judged"):
+        css = {"pass": "good", "fail": "bad", "not judged": "warn"}[status]
+        return css, text
     warn = len(d.get("warnings", []))
     if warn:
         return "warn", f"fitted, {warn} warning{'s' if warn != 1 else ''} to read"
