@@ -21,6 +21,7 @@ from .procedures import (LogDBand, ProcedureDesign, ProcedurePrediction, design_
 from .replicates import PH_TOLERANCE, precision_groups
 from .reading import procedure_reading
 from .results import clean
+from .solvents import solvent_report
 from .screening import STUDENTIZED_LIMIT, refit_without, screen
 from .study import Run, Study
 from .verdicts import procedure_verdicts, status_summary, study_verdicts
@@ -385,6 +386,8 @@ class StudyReport:
         out["next_runs"] = None if self.next_runs is None else self.next_runs.to_dict()
         if s.calibration is not None:
             out["calibration"] = self.calibration_dict()
+        out["solvent"] = solvent_report(s.system.get("organic"), s.procedures,
+                                        s.system.get("aqueous"))
         out["run_table"] = self.run_rows()
         for pr in out["procedures"]:        # written last: it reads the verdicts it explains
             pr["reading"] = procedure_reading(pr, s.targets.recovery_pct)

@@ -235,8 +235,8 @@ def test_study_text_is_shown_as_text(live):
     assert "<script>" not in page and "<b>" not in page
     assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page
     assert "&#42;bold&#42;" in page and "&#124;" in page and "&#91;x&#93;" in page
-    # the solvent is chlorinated: its caution says so (cautions are common practice)
-    assert "Chlorinated solvents (this study's solvent is one)" in page
+    # the solvent is chlorinated: its cautions say so (extractval/solvents.py)
+    assert "Dichloromethane is halogenated" in page and "it is the lower layer" in page
 
 
 def test_identifiers_are_names_not_positions(live):

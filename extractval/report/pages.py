@@ -16,7 +16,6 @@ nothing a study file says becomes markup.
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -78,29 +77,6 @@ def environment(templates_dir: Path) -> jinja2.Environment:
     env.filters["text"] = md_text
     env.filters["attr"] = html_attr
     return env
-
-
-# -- safety notes -------------------------------------------------------------------------------
-_PEROXIDE = re.compile(
-    r"\b(diethyl\s*ether|ethyl\s*ether|ether|tetrahydrofuran|thf|2-?methyl\s*-?thf|2-?methf|"
-    r"2-methyltetrahydrofuran|di-?isopropyl\s*ether|isopropyl\s*ether|dioxane|"
-    r"dimethoxyethane|glyme|mtbe|methyl\s*tert-?butyl\s*ether|tert-?butyl\s*methyl\s*ether|"
-    r"cpme|cyclopentyl\s*methyl\s*ether|dibutyl\s*ether)\b", re.IGNORECASE)
-_CHLORINATED = re.compile(
-    r"\b(dichloromethane|methylene\s*chloride|dcm|chloroform|trichloromethane|"
-    r"carbon\s*tetrachloride|tetrachloromethane|1,2-dichloroethane|dichloroethane|"
-    r"trichloroethylene|tetrachloroethylene|perchloroethylene|chlorobenzene)\b", re.IGNORECASE)
-
-
-def solvent_hazards(organic) -> dict[str, bool]:
-    """Which solvent-specific cautions apply to the organic phase named in ``system``.
-
-    >>> solvent_hazards("MTBE"), solvent_hazards("dichloromethane (DCM)")["chlorinated"]
-    ({'peroxide': True, 'chlorinated': False}, True)
-    """
-    text = "" if organic is None else str(organic)
-    return {"peroxide": bool(_PEROXIDE.search(text)),
-            "chlorinated": bool(_CHLORINATED.search(text))}
 
 
 # -- one study ----------------------------------------------------------------------------------
@@ -229,9 +205,6 @@ class StudyView:
     def plot(self, kind: str, procedure_id: str | None = None) -> str:
         return plot_name(kind, procedure_id)
 
-    def hazards(self) -> dict[str, bool]:
-        return solvent_hazards(self.d.get("system", {}).get("organic"))
-
     def status(self) -> tuple[str, str]:
         return study_status(self.d)
 
@@ -276,6 +249,17 @@ TARGET_LABELS = {"recovery_pct": "Target recovery (%)", "max_rsd_pct": "Largest 
                  "mass_balance_pct": "Mass balance band (%)",
                  "ratio_agreement_log": "Agreement of log D between volume ratios (log units)",
                  "level": "Analyte level"}
+#: rows of the solvent data table under the study's cautions (keys of extractval/solvents.py)
+FACT_LABELS = {"density_g_mL": "Density (g/mL, 20-25 °C)", "boiling_point_C": "Boiling point (°C)",
+               "flash_point_C": "Flash point, closed cup (°C)",
+               "solubility_in_water_g_100g": "Dissolves in water (g per 100 g water)",
+               "water_in_solvent_pct": "Takes up water (% by mass)",
+               "peroxide_former": "Forms peroxides", "halogenated": "Halogenated",
+               "ich_q3c_class": "ICH Q3C(R8) residual-solvent class",
+               "ich_q3c_limit_ppm": "ICH Q3C(R8) limit (ppm)", "layer": "Layer beside water",
+               "ghs_flammable_category": "GHS flammable-liquid category"}
+FACT_NONE = {"flash_point_C": "none", "ich_q3c_class": "not listed",
+             "ghs_flammable_category": "not classified as flammable"}
 PARAMETER_LABELS = {"logK": "log K", "pKa": "pKa", "pKa1": "pKa1", "pKa2": "pKa2",
                     "logK_ion": "log K (ion pair)"}
 
@@ -336,7 +320,8 @@ class Pages:
                             plots=set(s.plots), key=s.key, labels=SYSTEM_LABELS,
                             target_labels=TARGET_LABELS, names=PARAMETER_LABELS,
                             criteria=CRITERION_LABELS, criterion_style=criterion_style,
-                            one_phase=[round(100 * x) for x in ONE_PHASE_PLOT_RANGE])
+                            one_phase=[round(100 * x) for x in ONE_PHASE_PLOT_RANGE],
+                            fact_labels=FACT_LABELS, fact_none=FACT_NONE)
 
     def index_page(self, studies: list[StudyInput], dossier: Dossier, counts: dict) -> str:
         views = [(s, StudyView(s.data, dossier, self._register(s.data), tag_study=True,
