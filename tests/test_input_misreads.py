@@ -197,6 +197,13 @@ def test_merged_title_row_in_xlsx_is_named_with_the_fix(tmp_path):
     p = only(problems, "the header seems to be on row 2, not on row 1")
     assert (p.file, p.sheet, p.row) == ("ST-1/runs.xlsx", "Runs", 1)
     assert "set `header_row: 2` in study.yaml" in p.message
+    folder = write_study(tmp_path, "O", runs=None, runs_name="runs.ods",
+                         yaml_text=STUDY_YAML.format(runs="runs.ods"))
+    rows = _sheet_rows()
+    write_ods(folder / "runs.ods", [rows[k] for k in sorted(rows)])
+    _, problems = check_study(folder)
+    p = only(problems, "the header seems to be on row 2, not on row 1")
+    assert (p.file, p.sheet, p.row) == ("O/runs.ods", "Runs", 1)
 
 
 def test_header_row_reads_xlsx_and_ods_below_a_title(tmp_path):
