@@ -136,7 +136,7 @@ class NextRuns:
     pH_range: tuple[float, float]
     pH_range_note: str | None
     candidates: Candidates
-    width_before: float               # linearised 95 % width now
+    width_before: float | None        # 95 % width now (None: the interval is open now)
     singles: list[tuple[int, float]]  # (candidate index, width after)
     batches: list[tuple[list[int], float]]
     sigma: float
@@ -149,20 +149,24 @@ class NextRuns:
         width_before to ``width``: the reported lower end of log D moved towards the estimate
         in that proportion (so "before" is the bound the page reports). None for a parameter
         target."""
-        if self.target.kind != "procedure" or width is None or not np.isfinite(width):
+        if self.target.kind != "procedure":
             return None
         lo = self.target.procedure.log_d.ci95.lo
-        if lo is not None and width == self.width_before:
+        if width is not None and width == self.width_before:
             return clean(self.target.procedure.recovery_pct.ci95.lo)   # the reported bound
-        below = self.width_before / 2.0 if lo is None else self.value - lo
-        scale = width / self.width_before if self.width_before > 0 else 1.0
+        if width is None or not np.isfinite(width):
+            return None
+        if lo is not None and self.width_before:
+            below = (self.value - lo) * width / self.width_before
+        else:
+            below = width / 2.0    # nothing reported to move: half the predicted width
         p = self.target.procedure.procedure
-        return clean(float(recovery_pct_from_log_d(self.value - below * scale, p.aqueous_mL,
+        return clean(float(recovery_pct_from_log_d(self.value - below, p.aqueous_mL,
                                                    p.organic_mL)), 10)
 
     def _row(self, width: float) -> dict:
         shrink = (100.0 * (1.0 - width / self.width_before)
-                  if np.isfinite(width) and self.width_before > 0 else None)
+                  if self.width_before and np.isfinite(width) else None)
         out = {"width_before": clean(self.width_before, 6), "width_after": clean(width, 6),
                "shrink_pct": clean(shrink, 2)}
         if self.target.kind == "procedure":
@@ -235,8 +239,10 @@ class NextRuns:
                 f"error, sigma = {100 * self.sigma:.2g} %), the study refitted with it, and the "
                 f"median 95 % interval width of {widths} taken. Batches: the best of the greedy "
                 "Fisher batch, the best single runs, repeats of the best run and an even "
-                "spread over the usable range, each simulated the same way. Widths before are "
-                "the current Wald widths, on the same footing." + self._bound_note)
+                "spread over the usable range, each simulated the same way; a refit that leaves "
+                "a parameter at its search limit counts as open. Widths now are the current "
+                "Wald widths, on the same footing (open where the reported interval is open)."
+                + self._bound_note)
 
     @property
     def _bound_note(self) -> str:
@@ -471,6 +477,11 @@ class _Simulator:
         self.simple = MODELS.get(fit.model.name.split("+")[0])
 
     def width(self, idx: list[int]) -> float:
+        return self.score(idx)[0]
+
+    def score(self, idx: list[int]) -> tuple[float, int]:
+        """(median width, refits whose target is still open): a refit that cannot be made, or
+        leaves a parameter at its search limit, counts as an open (infinite) width."""
         fit, obs = self.fit, self.fit.obs
         new = self.cands.observations(idx)
         y_mean, _ = new.predict(fit.model.log_d(new.pH, fit.theta))
@@ -489,10 +500,46 @@ class _Simulator:
             except (FitImpossible, np.linalg.LinAlgError, ValueError):
                 widths.append(np.inf)
                 continue
+            if any(e.at_bound for e in refit.parameters.values()):
+                widths.append(np.inf)
+                continue
             c = self.target.gradient(refit, refit.theta)
             var = float(c @ refit.covariance @ c)
             widths.append(2.0 * refit.t95 * np.sqrt(max(var, 0.0)))
-        return float(np.median(widths))
+        return float(np.median(widths)), int(np.sum(~np.isfinite(widths)))
+
+
+def _rounded(score: tuple[float, int]) -> tuple[float, int]:
+    """A simulated score with its width rounded to TIE["simulation"] relative: differences
+    below that are simulation noise, and the earlier (preferred) design should win them."""
+    w, n_open = score
+    if not np.isfinite(w) or w <= 0:
+        return w, n_open
+    step = 10.0 ** np.floor(np.log10(w)) * TIE["simulation"]
+    return float(np.round(w / step) * step), n_open
+
+
+def _ranked_by_score(cands: Candidates, scores: dict[int, tuple[float, int]]) -> list[int]:
+    """Simulated candidates best first, at most one per (pH, form); ties (within simulation
+    noise) go to the preferred candidate."""
+    order = sorted(scores, key=lambda i: (*_rounded(scores[i]), cands.preference[i]))
+    out, seen = [], set()
+    for i in order:
+        key = (cands.pH[i], cands.form[i])
+        if key not in seen:
+            seen.add(key)
+            out.append(i)
+    return out
+
+
+def _open_now(fit: FitResult, target: AdviceTarget) -> bool:
+    """Whether the target's reported interval is open (or a parameter sits at its limit):
+    then no finite width "now" is honest."""
+    if any(e.at_bound for e in fit.parameters.values()):
+        return True
+    est = (target.procedure.log_d if target.kind == "procedure"
+           else fit.parameters[target.name])
+    return est.ci95.lo is None or est.ci95.hi is None
 
 
 def advise(fit: FitResult, study: Study,
@@ -529,20 +576,20 @@ def advise(fit: FitResult, study: Study,
                 if cands.form[i] == cands.form[0] and cands.ratio[i] == cands.ratio[0]]
         spread = [main[int(round(j))] for j in np.linspace(0, len(main) - 1, SIM_SPREAD)]
         pool = list(dict.fromkeys(_ranked_distinct(cands, single_crit, SIM_SHORTLIST) + spread))
-        sim_single = {i: sim.width([i]) for i in pool}
-        scores = np.full(cands.size, np.inf)
-        scores[pool] = [sim_single[i] for i in pool]
-        ranked = _ranked_distinct(cands, scores, len(pool), TIE["simulation"])
-        singles = [(i, sim_single[i]) for i in ranked[:TOP_SINGLE]]
-        batches = [([ranked[0]], sim_single[ranked[0]])]
+        sim_single = {i: sim.score([i]) for i in pool}
+        ranked = _ranked_by_score(cands, sim_single)
+        singles = [(i, sim_single[i][0]) for i in ranked[:TOP_SINGLE]]
+        batches = [([ranked[0]], sim_single[ranked[0]][0])]
         for k in BATCH_SIZES[1:]:
             designs = [greedy[:k], ranked[:k], [ranked[0]] * k,
                        [main[int(round(j))] for j in np.linspace(0, len(main) - 1, k)]]
             designs = [d for j, d in enumerate(designs) if d not in designs[:j]]
-            scored = [(sim.width(d), j, d) for j, d in enumerate(designs)]
-            w, _, d = min(scored, key=lambda t: (t[0], t[1]))
+            scored = [(_rounded(sim.score(d)), j, d) for j, d in enumerate(designs)]
+            (w, _), _, d = min(scored, key=lambda t: (t[0], t[1]))
             batches.append((d, w))
         method, criterion = "simulation", CRITERION_SIM
+        if _open_now(fit, target):
+            before = None
     return NextRuns(target, criterion, method, weak, pH_range, range_note, cands, before,
                     singles, batches, fit.residual_sd, notes, target.value(fit),
                     fit.log_d(cands.pH))
