@@ -323,3 +323,18 @@ def test_the_log_d_plot_marks_the_advised_batch_and_the_register_names_its_numbe
     assert numbers["ADV/next_runs/k3/width_after"] == b3["width_after"]
     assert numbers["ADV/next_runs/k3/run1/pH"] == b3["groups"][0]["pH"]
     assert numbers["ADV/next_runs/width_before"] == b3["width_before"]
+
+
+def test_an_interval_open_now_is_reported_open_not_as_a_wald_width():
+    """Base with recoveries all near 100 % and the pKa beyond the search range: the pKa is at
+    its search limit, so no honest finite width exists now; the advice says "open" and still
+    ranks runs (towards the pKa, at small ratios, where the recovery can move)."""
+    import json
+    study = _study([8, 9, 10], model="base", theta=(4.0, 3.0), form="recovery")
+    d = json.loads(json.dumps(fit_study(study).to_dict(), allow_nan=False))
+    a = d["next_runs"]
+    assert a["method"] == "simulation" and any("search limit" in w
+                                               for w in a["linearisation_weak"])
+    for b in a["batches"]:
+        assert b["width_before"] is None and b["shrink_pct"] is None
+    assert a["batches"][-1]["groups"][0]["pH"] == a["candidates"]["pH_range"][0]
