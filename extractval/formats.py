@@ -7,11 +7,12 @@ result; a style only fixes the digits.
 
 The rules that are not plain digit counts (the project's conventions, not a standard):
 
-* **Recoveries near 100 %** (style ``pct``): one decimal below 99.9 %; two decimals from 99.9
-  to 99.99 %; from 99.99 % up to 100 % the text "> 99.99". The fraction left in the water
-  (style ``frac``) is the precise figure there: 2.5e-07 says what "99.99997 %" would, without
-  digits no recovery assay can check. Above 100 % (a measured recovery, the range of one
-  future run) one decimal again.
+* **Recoveries near 100 %** (style ``pct``): one decimal below 99.85 %; two decimals from
+  99.85 % (what one decimal would show as 99.9) to 99.99 %, so that the two ends of an interval
+  read alike ("99.90 to 99.91"); from 99.99 % up to 100 % the text "> 99.99". The fraction
+  left in the water (style ``frac``) is the precise figure there: 2.5e-05 says what "99.9975 %"
+  would, without digits no recovery assay can check. Above 100 % (a measured recovery, the
+  range of one future run) one decimal again.
 * **Tiny fractions** (style ``frac``): below :data:`FRACTION_FLOOR` (one part per million) the
   text "< 1e-06". The model would give 5.5e-84 after enough portions, but no run of a study
   measures anything near that; the register keeps the identifier and shows the bound.
@@ -25,8 +26,8 @@ import re
 
 #: recoveries from here up to 100 % are written "> 99.99" (two decimals below it)
 RECOVERY_CAP_PCT = 99.99
-#: recoveries from here are written with two decimals instead of one
-RECOVERY_TWO_DECIMALS_PCT = 99.9
+#: recoveries from here (one decimal would show 99.9) are written with two decimals
+RECOVERY_TWO_DECIMALS_PCT = 99.85
 #: fractions (left in the water) below this are written "< 1e-06"
 FRACTION_FLOOR = 1e-6
 
@@ -53,6 +54,8 @@ def fmt_pct(x: float | None) -> str:
 
     >>> fmt_pct(98.76), fmt_pct(99.95), fmt_pct(99.987), fmt_pct(99.99997542), fmt_pct(None)
     ('98.8', '99.95', '99.99', '> 99.99', 'open')
+    >>> fmt_pct(99.84), fmt_pct(99.8996)
+    ('99.8', '99.90')
     >>> fmt_pct(100.0), fmt_pct(104.04), fmt_pct(-0.01)
     ('> 99.99', '104.0', '0.0')
     """

@@ -102,7 +102,7 @@ def test_demo_amine_p2_reading_no_longer_contradicts_its_verdict(demo_dicts):
 
 # -- digits near 100 % and near 0 ------------------------------------------------------------------
 @pytest.mark.parametrize("value, shown", [
-    (95.71839508, "95.7"), (99.89, "99.9"), (99.9, "99.90"), (99.98, "99.98"),
+    (95.71839508, "95.7"), (99.84, "99.8"), (99.89, "99.89"), (99.9, "99.90"), (99.98, "99.98"),
     (99.987, "99.99"), (99.99, "> 99.99"), (99.99997482, "> 99.99"), (100.0, "> 99.99"),
     (103.74, "103.7"), (-0.04, "0.0"), (None, "open")])
 def test_recovery_digits(value, shown):
@@ -184,3 +184,19 @@ def test_log_d_caption_matches_what_is_drawn():
     caption = caption[caption.index("<figcaption>"):caption.index("</figcaption>")]
     assert "not drawn here" not in caption.replace("outside that range are not drawn here", "")
     assert "measured in one phase" in caption and "between 2 and 98 %" in caption
+
+
+def test_log_d_caption_names_the_advised_runs_when_they_are_drawn(demo_dicts):
+    """The advised next runs are drawn on the log D plot as hollow stars: the caption says
+    so exactly when the figure has them."""
+    seen = 0
+    for d in demo_dicts:
+        svg = log_d_plot(d).decode()
+        page = Pages(TEMPLATES).study_page(
+            StudyInput(d["study"], d, plots=tuple(study_plots(d))), DOSSIER)
+        caption = page[page.index(plot_name("log_d")):]
+        caption = caption[caption.index("<figcaption>"):caption.index("</figcaption>")]
+        drawn = 'id="advised-runs"' in svg
+        assert drawn == ("Hollow stars mark the advised next runs" in caption), d["study"]
+        seen += drawn
+    assert seen >= 1
