@@ -28,6 +28,8 @@ from .verdicts import procedure_verdicts, status_summary, study_verdicts
 
 #: AICc difference within which the simpler model is preferred by ``model: auto``
 PARSIMONY_DELTA = 2.0
+#: pH spacing of the fitted log D line in ``curve["fine"]`` (the band is traced every 0.5)
+CURVE_STEP = 0.05
 #: pH span (units) below which ``model: auto`` does not try the ampholyte (two pKa need room).
 AMPHOLYTE_MIN_SPAN = 4.0
 
@@ -293,9 +295,14 @@ class StudyReport:
         b = self.band
         if b is None:
             return None
+        # the estimate alone on a grid ten times finer, so that the plotted line shows no
+        # corners; the band keeps its profile points (each costs a profile search)
+        fine = np.round(np.arange(b.pH[0], b.pH[-1] + CURVE_STEP / 2, CURVE_STEP), 6)
         return {"pH": [clean(x, 6) for x in b.pH], "log_d": [clean(x, 6) for x in b.value],
                 "lo": [clean(x, 6) for x in b.lo], "hi": [clean(x, 6) for x in b.hi],
-                "method": b.method}
+                "method": b.method,
+                "fine": {"pH": [clean(x, 6) for x in fine],
+                         "log_d": [clean(x, 6) for x in self.fit.log_d(fine)]}}
 
     def run_rows(self) -> list[dict]:
         rows = []

@@ -165,6 +165,70 @@ def test_search_finds_a_study_by_its_analyte(served, browser_context, demo_ids):
     page.close()
 
 
+#: study page heights at 1280 px (document.body.scrollHeight), recorded 2026-12-03 after the
+#: citation lines moved to the register: 014 9613, 015 9181, 016 7033, 021 11853, 022 11853
+#: (before: 22830, 21404, 13262, 29935, 29026). The issue's goal is about 6 000; this is the
+#: ceiling that keeps what was gained.
+HEIGHT_CEILING = 12500
+
+
+def test_study_pages_are_short_enough_to_read(served, browser_context, demo_ids):
+    page = browser_context.new_page()
+    page.set_viewport_size({"width": 1280, "height": 900})
+    heights = {}
+    for study_id in demo_ids:
+        page.goto(f"{served}studies/{study_id}/")
+        heights[study_id] = page.evaluate("document.body.scrollHeight")
+    print("study page heights at 1280 px:", heights)
+    assert all(h < HEIGHT_CEILING for h in heights.values()), heights
+    page.close()
+
+
+def test_copy_button_copies_the_citation_line(served, browser_context, demo_ids):
+    """Over http on 127.0.0.1 with the clipboard API, and without it (the fallback through
+    a hidden text area); the copied text is the register's line for that number."""
+    study_id = demo_ids[0]
+    browser_context.grant_permissions(["clipboard-read", "clipboard-write"],
+                                      origin=served.split("/qa/")[0])
+    for without_api in (False, True):
+        page = browser_context.new_page()
+        if without_api:
+            page.add_init_script("Object.defineProperty(navigator, 'clipboard', "
+                                 "{value: undefined, configurable: true})")
+        page.goto(f"{served}studies/{study_id}/")
+        button = page.locator(f'[id="{study_id}/logK"] .xv-copy')
+        expected = button.get_attribute("data-cite")
+        assert expected.startswith(f"{study_id}/logK = ") and "(inputs sv-" in expected
+        button.click()
+        page.wait_for_function("b => b.getAttribute('data-copied') === 'yes'",
+                               arg=button.element_handle())
+        if not without_api:
+            assert page.evaluate("navigator.clipboard.readText()") == expected
+        page.close()
+    page = browser_context.new_page()
+    page.goto(f"{served}register/")
+    line = page.locator(f'[id="{study_id}/logK"] code.xv-cite').inner_text()
+    assert line == expected
+    page.close()
+
+
+def test_runs_table_scrolls_with_its_header_visible(served, browser_context, demo_ids):
+    page = browser_context.new_page()
+    page.set_viewport_size({"width": 1280, "height": 900})
+    page.goto(f"{served}studies/{demo_ids[0]}/")
+    box = page.locator(".xv-scroll:has(table.xv-runs)")
+    box.scroll_into_view_if_needed()
+    size = box.evaluate("b => [b.scrollHeight, b.clientHeight, b.scrollWidth, b.clientWidth]")
+    assert size[0] > size[1], "the demo study's runs do not fill the box; nothing to check"
+    box.evaluate("b => { b.scrollTop = b.scrollHeight; }")
+    head = page.locator("table.xv-runs th").first.bounding_box()
+    frame = box.bounding_box()
+    assert abs(head["y"] - frame["y"]) < 3, (head, frame)
+    assert size[2] <= size[3] + 1, "the runs table is wider than its column"
+    shot(page, "runs-table-scrolled")
+    page.close()
+
+
 def test_no_request_left_127_0_0_1(served, browser_context):
     """Runs last in this module: every request the pages made, fonts and scripts included."""
     page = browser_context.new_page()

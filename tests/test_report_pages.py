@@ -8,6 +8,7 @@ tests/test_report_pages.py`` and read the diff before committing it.
 
 from __future__ import annotations
 
+import copy
 import csv
 import html
 import io
@@ -176,9 +177,9 @@ def _strings(d) -> list[str]:
 def test_every_number_on_the_page_is_the_dicts(live):
     """Each number span holds the dict's value at its pointer and shows it as formatted;
     outside the spans no decimal number appears except inside text the dict itself holds."""
-    shown = StudyInput("SYN-LIVE", live, key="sv-x", plots=(plot_name("design_space"),))
-    page = Pages(TEMPLATES, trace=True).study_page(shown, DOSSIER)
-    published = Pages(TEMPLATES).study_page(shown, DOSSIER)
+    one_study = StudyInput("SYN-LIVE", live, key="sv-x", plots=(plot_name("design_space"),))
+    page = Pages(TEMPLATES, trace=True).study_page(one_study, DOSSIER)
+    published = Pages(TEMPLATES).study_page(one_study, DOSSIER)
     assert "## Design space" in page
     assert SPAN.sub(lambda m: m.group(3), page) == published     # the same page, untraced
     spans = SPAN.findall(page)
@@ -198,19 +199,24 @@ def test_every_number_on_the_page_is_the_dicts(live):
         n = quantities.get(src)
         if n is not None:
             assert fmt_number(n.value, n.style) in (shown, shown.removesuffix(" %")), src
-    # every register number is on the page, except the upper end of an interval whose two
-    # ends are the same bound ("entirely > 99.99 %" is written once)
-    collapsed = {n_hi.source for q in study_register(live)
-                 for n_lo, n_hi in [(q.get("ci95_lo"), q.get("ci95_hi"))]
-                 if n_lo and n_hi and fmt_number(n_lo.value, n_lo.style).startswith(("> ", "< "))
-                 and fmt_number(n_lo.value, n_lo.style) == fmt_number(n_hi.value, n_hi.style)}
-    assert set(quantities) - collapsed <= {html.unescape(s[1]) for s in spans}
-    # citation lines are the register's text: the same numbers, written by the same formatter
-    citations = {str(md_text(q.citation(n, DOSSIER.version, DOSSIER.software)))
+    # every register number is on the register page, most also in the study page's tables
+    register = Pages(TEMPLATES, trace=True).register_page([one_study], DOSSIER)
+    anchored = {html.unescape(a) for a in re.findall(r'<p class="xv-reg" id="([^"]*)"', register)}
+    assert anchored == {n.identifier for n in quantities.values()}
+    on_page = {html.unescape(s[1]) for s in spans}
+    assert len(set(quantities) & on_page) > 0.8 * len(quantities)
+    # citation lines are the register's text, with the inputs key: the same numbers, written
+    # by the same formatter; the copy buttons on the study page carry the same lines
+    citations = {str(md_text(q.citation(n, DOSSIER.version, DOSSIER.software, "sv-x")))
                  for q in study_register(live) for n in q.numbers}
-    shown_citations = re.findall(r'<code class="xv-cite">([^<]*)</code>', page)
+    assert all("(inputs sv-x)" in c for c in citations)
+    shown_citations = re.findall(r'<code class="xv-cite">([^<]*)</code>', register)
     assert len(shown_citations) == len(citations) and set(shown_citations) == citations
-    rest = re.sub(r'<code class="xv-cite">[^<]*</code>', " ", SPAN.sub(" ", page))
+    assert "xv-cite" not in page                     # no citation lines in the page's body
+    buttons = {html.unescape(c) for c in re.findall(r'data-cite="([^"]*)"', page)}
+    assert len(buttons) > 10
+    assert buttons <= {html.unescape(c) for c in citations}
+    rest = re.sub(r'data-cite="[^"]*"', " ", SPAN.sub(" ", page))
     for text in sorted(set(_strings(live)) | {DOSSIER.version, DOSSIER.software,
                                               DOSSIER.build_date}, key=len, reverse=True):
         rest = rest.replace(str(md_text(text)), " ").replace(text, " ")
@@ -227,7 +233,8 @@ def test_flagged_runs_are_shown_beside_the_refit(live):
     page = Pages(TEMPLATES, trace=True).study_page(StudyInput("SYN-LIVE", live), DOSSIER)
     assert "Runs flagged by the screens" in page
     assert 'data-src="/outlier_screen/without_flagged/parameters/logK/value"' in page
-    assert 'id="SYN-LIVE/without_flagged/logK"' in page     # its register line
+    register = Pages(TEMPLATES).register_page([StudyInput("SYN-LIVE", live)], DOSSIER)
+    assert 'id="SYN-LIVE/without_flagged/logK"' in register     # its register line
 
 
 def test_study_text_is_shown_as_text(live):
@@ -264,11 +271,16 @@ def test_identifiers_stable_when_a_study_is_added(gold_dict, live):
 
     assert gold_rows(one) == gold_rows(two)
     assert len(gold_rows(one)) > 50
-    page1 = one[study_page_path("SYN-GOLD")].decode()
-    page2 = two[study_page_path("SYN-GOLD")].decode()
-    anchors1 = re.findall(r'<p class="xv-reg" id="([^"]*)"', page1)
+    page1 = one["register.md"].decode()
+    page2 = two["register.md"].decode()
+    anchors1 = re.findall(r'<p class="xv-reg" id="(SYN-GOLD/[^"]*)"', page1)
     assert len(anchors1) > 50
-    assert anchors1 == re.findall(r'<p class="xv-reg" id="([^"]*)"', page2)
+    assert anchors1 == re.findall(r'<p class="xv-reg" id="(SYN-GOLD/[^"]*)"', page2)
+    # the anchors beside the numbers on the study page do not move either
+    marks1 = re.findall(r'class="xv-idcell" id="([^"]*)"', one[study_page_path("SYN-GOLD")].decode())
+    assert len(marks1) > 5
+    assert marks1 == re.findall(r'class="xv-idcell" id="([^"]*)"',
+                                two[study_page_path("SYN-GOLD")].decode())
 
 
 def test_results_json_values_are_the_dicts(gold_dict):
@@ -283,9 +295,10 @@ def test_results_json_values_are_the_dicts(gold_dict):
     assert by_id["SYN-GOLD/logK/se"]["value"] == p["se"]
     rec = gold_dict["procedures"][0]["recovery_pct"]
     assert by_id["SYN-GOLD/P1/recovery_pct/ci95_hi"]["value"] == rec["ci95"][1]
-    assert by_id["SYN-GOLD/P1/recovery_pct"]["url"] == \
-        "studies/SYN-GOLD/#SYN-GOLD/P1/recovery_pct"
+    assert by_id["SYN-GOLD/P1/recovery_pct"]["url"] == "register/#SYN-GOLD/P1/recovery_pct"
     assert "dv-000000000000" in by_id["SYN-GOLD/P1/recovery_pct"]["citation"]
+    assert "(inputs sv-000000000000)" in by_id["SYN-GOLD/P1/recovery_pct"]["citation"]
+    assert by_id["SYN-GOLD/P1/recovery_pct"]["inputs_key"] == "sv-000000000000"
     assert not any(r["study"] == "SYN-BROKEN" for r in doc["numbers"])   # errors, no numbers
 
 
@@ -294,7 +307,7 @@ def test_results_csv_neutralises_formulas_and_keeps_numbers():
     from memory); a number such as -1.2 stays a number."""
     rows = [{"id": "=HYPERLINK(\"x\")", "study": "@S", "quantity": "+q", "statistic": "value",
              "value": -1.2, "unit": "", "display": "-1.200", "description": "-2+3",
-             "method": None, "citation": "\tx", "url": "u"}]
+             "method": None, "citation": "\tx", "inputs_key": "sv-1", "url": "u"}]
     out = list(csv.reader(io.StringIO(results_csv(rows).decode())))
     assert out[1][:5] == ["'=HYPERLINK(\"x\")", "'@S", "'+q", "value", "-1.2"]
     assert out[1][6:10] == ["-1.200", "'-2+3", "", "'\tx"]
@@ -372,3 +385,30 @@ def test_procedures_off_the_map_are_listed_under_it(live):
     assert f"- {d['design_space']['procedures'][0]['id']}: 5 portions; the map shows 1 to 3" \
         in section
     assert "no target line is drawn" in section and "The dark line is the target" not in section
+
+
+def test_no_repeated_blocks_on_a_study_page(live):
+    """The cautions once per study (a block under each procedure points to them); the pooled
+    RSD and the lack-of-fit F and p once each when the acceptance table judges them; no
+    citation lines in the page's body; the runs table in a scroll box."""
+    page = Pages(TEMPLATES, trace=True).study_page(StudyInput("SYN-LIVE", live, key="sv-x"),
+                                                   DOSSIER)
+    assert page.count("## Before working at the bench") == 1
+    assert page.count("At the bench for ") == len(live["procedures"]) >= 2
+    judged = {v["criterion"] for v in live["verdicts"] if v["value"] is not None}
+    for criterion, pointer_ in (("max_rsd_pct", "/repeatability/rsd_pct"),
+                                ("lack_of_fit", "/lack_of_fit/F")):
+        shown = page.count(f'data-src="{pointer_}"')
+        assert shown == (0 if criterion in judged else 1), (criterion, shown)
+    assert "xv-cite" not in page and "## Number register" not in page
+    if "max_rsd_pct" not in judged:          # judge it, as a study with a target would
+        assert live["repeatability"]["rsd_pct"] is not None
+        judging = copy.deepcopy(live)
+        judging["verdicts"].append({"criterion": "max_rsd_pct", "status": "pass", "limit": 50,
+                                    "value": live["repeatability"]["rsd_pct"], "detail": ""})
+        again = Pages(TEMPLATES, trace=True).study_page(StudyInput("SYN-LIVE", judging),
+                                                        DOSSIER)
+        assert again.count('data-src="/repeatability/rsd_pct"') == 0
+        assert again.count(f'data-src="/verdicts/{len(judging["verdicts"]) - 1}/value"') == 1
+    runs = page.index('<table class="xv-runs">')
+    assert page.rfind('<div class="xv-scroll"', 0, runs) > page.rfind("</div>", 0, runs)

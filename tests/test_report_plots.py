@@ -216,3 +216,40 @@ def test_remembered_text_outlines_draw_the_same_bytes(d, monkeypatch):
     plots.forget_canvases()
     assert study_plots(d) == remembered
     plots.forget_canvases()
+
+
+def test_fitted_line_is_drawn_on_the_fine_grid_from_the_textbook_formula(d):
+    """The estimate line is traced every 0.05 pH (ten times the band's 0.5), so it has no
+    visible corners; its values are the monoprotic base's log D = log K - log10(1 +
+    10^(pKa - pH)) (Henderson-Hasselbalch partition relation, common practice) at the fitted
+    constants, and the plot draws exactly those points."""
+    assert d["model"] == "base"
+    curve, fine = d["curve"], d["curve"]["fine"]
+    ph = np.array(fine["pH"])
+    assert np.allclose(np.diff(ph), 0.05) and ph[0] == curve["pH"][0]
+    assert ph[-1] == pytest.approx(curve["pH"][-1])
+    log_k, pka = d["parameters"]["logK"]["value"], d["parameters"]["pKa"]["value"]
+    textbook = log_k - np.log10(1 + 10 ** (pka - ph))
+    assert np.allclose(fine["log_d"], textbook, rtol=0, atol=5e-5)
+    # the band's own estimate at its profile points is the same curve
+    at = np.searchsorted(ph, np.array(curve["pH"]) - 1e-9)
+    assert np.allclose(np.array(fine["log_d"])[at], curve["log_d"], atol=2e-5)
+    # drawn: no corner of the line turns by more than a few degrees (the 0.5 pH grid alone
+    # turned by more than ten degrees at the bend near the pKa)
+    assert max_turn(d) < 4.0
+    coarse = copy.deepcopy(d)
+    del coarse["curve"]["fine"]
+    assert max_turn(coarse) > 10.0
+
+
+def max_turn(d: dict) -> float:
+    """The largest turn, in degrees, between consecutive segments of the drawn fitted line."""
+    svg = ET.fromstring(plots.log_d_plot(d))
+    line = next(g for g in svg.iter(f"{SVG}g") if g.get("id") == "fit-curve")
+    nums = [float(x) for x in next(line.iter(f"{SVG}path")).get("d").replace("M", " ")
+            .replace("L", " ").split()]
+    xy = np.array(nums).reshape(-1, 2)
+    seg = np.diff(xy, axis=0)
+    seg = seg[np.hypot(*seg.T) > 1e-6]
+    ang = np.degrees(np.arctan2(seg[:, 1], seg[:, 0]))
+    return float(np.max(np.abs(np.diff(ang))))

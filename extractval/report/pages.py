@@ -32,6 +32,10 @@ from .text import html_attr, md_text
 #: the dossier's Markdown files besides the study pages
 INDEX, REGISTER, ABOUT = "index.md", "register.md", "about.md"
 CSS_SOURCE, CSS_PATH = "extra.css", "assets/extractval.css"
+#: the copy-to-clipboard script: local, so it works with no network
+JS_SOURCE, JS_PATH = "extra.js", "assets/extractval.js"
+#: the register page's URL (directory URLs), where every number's citation line is anchored
+REGISTER_URL = "register/"
 
 
 def study_page_path(study_id: str) -> str:
@@ -93,6 +97,8 @@ class StudyView:
     quantities: list[Quantity] = field(default_factory=list)
     tag_study: bool = False          # name the study on each number (pages of many studies)
     trace: bool = False              # wrap each number in a span naming its pointer (tests)
+    key: str = ""                    # the study's inputs key (sv-...), named in citations
+    root: str = "../../"             # the site root relative to the page showing the view
 
     def __post_init__(self):
         self.by_name = {q.name: q for q in self.quantities}
@@ -154,13 +160,18 @@ class StudyView:
         return Markup(f'<span class="xv-iv">{self.cell(name, lo)} to {self.cell(name, hi)}</span>')
 
     def link(self, name: str, statistic: str = "value") -> Markup:
-        """A link to a number's register row on this page."""
+        """A number's identifier beside it: a button copying its citation line (anchored at
+        the identifier, so the page's address with ``#<id>`` still finds the number) and a
+        link to its line in the register."""
         q = self.q(name)
         n = q.get(statistic) if q else None
         if n is None:
             return Markup("")
-        return Markup(f'<a class="xv-ref" href="#{html_attr(n.anchor)}" '
-                      f'title="{html_attr(n.identifier)}">#</a>')
+        return copy_button(n.identifier, self.citation(q, n), self.root + REGISTER_URL,
+                           anchor=n.anchor, shown=n.identifier.split("/", 1)[-1])
+
+    def citation(self, q: Quantity, n) -> str:
+        return q.citation(n, self.dossier.version, self.dossier.software, self.key)
 
     def register(self) -> list[dict]:
         """Rows of the study's register section: identifier, number, citation."""
@@ -175,7 +186,8 @@ class StudyView:
                     "unit": q.unit,
                     "description": q.description,
                     "statistic": n.statistic,
-                    "citation": q.citation(n, self.dossier.version, self.dossier.software),
+                    "citation": self.citation(q, n),
+                    "button": copy_button(n.identifier, self.citation(q, n), ""),
                 })
         return rows
 
@@ -207,6 +219,23 @@ class StudyView:
 
     def status(self) -> tuple[str, str]:
         return study_status(self.d)
+
+
+def copy_button(identifier: str, citation: str, register_url: str,
+                anchor: str | None = None, shown: str | None = None) -> Markup:
+    """A number's id with a button that copies its citation line (assets/extractval.js; works
+    offline, with a fallback where navigator.clipboard is missing, e.g. over plain http).
+    With ``register_url`` the id links to the number's line in the register; ``shown`` is the
+    id as written there (on a study page: without the study id, which heads the page)."""
+    ident = html_attr(identifier)
+    id_attr = f' id="{html_attr(anchor)}"' if anchor else ""
+    label = (f'<a class="xv-id-link" href="{html_attr(register_url)}#{ident}" '
+             f'title="{ident} in the register">{md_text(shown or identifier)}</a>'
+             if register_url else "")
+    return Markup(f'<span class="xv-idcell"{id_attr}>{label}<button type="button" '
+                  f'class="xv-copy" data-cite="{html_attr(citation)}" title="Copy the '
+                  f'citation line of {ident}" aria-label="Copy the citation line of {ident}">'
+                  f'copy</button></span>')
 
 
 def all_verdicts(d: dict) -> list[dict]:
@@ -315,23 +344,26 @@ class Pages:
         if s.data is None:
             return self._render("failed.md.j2", study_id=s.study_id, errors=s.errors,
                                 dossier=dossier, key=s.key)
-        view = StudyView(s.data, dossier, self._register(s.data), trace=self.trace)
+        view = StudyView(s.data, dossier, self._register(s.data), trace=self.trace, key=s.key)
         return self._render("study.md.j2", s=view, d=s.data, dossier=dossier,
                             plots=set(s.plots), key=s.key, labels=SYSTEM_LABELS,
                             target_labels=TARGET_LABELS, names=PARAMETER_LABELS,
                             criteria=CRITERION_LABELS, criterion_style=criterion_style,
                             one_phase=[round(100 * x) for x in ONE_PHASE_PLOT_RANGE],
-                            fact_labels=FACT_LABELS, fact_none=FACT_NONE)
+                            fact_labels=FACT_LABELS, fact_none=FACT_NONE,
+                            register_url=REGISTER_URL)
 
     def index_page(self, studies: list[StudyInput], dossier: Dossier, counts: dict) -> str:
         views = [(s, StudyView(s.data, dossier, self._register(s.data), tag_study=True,
-                               trace=self.trace) if s.data else None) for s in studies]
+                               trace=self.trace, key=s.key, root="")
+                  if s.data else None) for s in studies]
         return self._render("index.md.j2", studies=views, dossier=dossier, counts=counts,
                             url=study_url, names=PARAMETER_LABELS)
 
     def register_page(self, studies: list[StudyInput], dossier: Dossier) -> str:
         views = [StudyView(s.data, dossier, self._register(s.data), tag_study=True,
-                           trace=self.trace) for s in studies if s.data is not None]
+                           trace=self.trace, key=s.key, root="../")
+                 for s in studies if s.data is not None]
         return self._render("register.md.j2", views=views, dossier=dossier, url=study_url)
 
     def about_page(self, dossier: Dossier) -> str:
@@ -340,6 +372,9 @@ class Pages:
     def css(self) -> bytes:
         return (self.templates_dir / CSS_SOURCE).read_bytes()
 
+    def js(self) -> bytes:
+        return (self.templates_dir / JS_SOURCE).read_bytes()
+
     def dossier_files(self, studies: list[StudyInput], dossier: Dossier,
                       counts: dict) -> dict[str, bytes]:
         """Every generated file of the site except the plots, by site path."""
@@ -347,7 +382,7 @@ class Pages:
         files = {INDEX: self.index_page(studies, dossier, counts).encode(),
                  REGISTER: self.register_page(studies, dossier).encode(),
                  ABOUT: self.about_page(dossier).encode(),
-                 CSS_PATH: self.css()}
+                 CSS_PATH: self.css(), JS_PATH: self.js()}
         rows, listing = [], []
         for s in studies:
             files[study_page_path(s.study_id)] = self.study_page(s, dossier).encode()
@@ -358,8 +393,8 @@ class Pages:
                             "verdict": None if s.data is None else s.data.get("status"),
                             "inputs_key": s.key})
             if s.data is not None:
-                rows.extend(register_rows(self._register(s.data), dossier,
-                                          study_url(s.study_id)))
+                rows.extend(register_rows(self._register(s.data), dossier, REGISTER_URL,
+                                          s.key))
         files["results.json"] = results_json(rows, dossier, listing)
         files["results.csv"] = results_csv(rows)
         return files

@@ -304,7 +304,8 @@ def log_d_plot(d: dict) -> bytes | None:
     band = ax.fill_between(curve["pH"], _nan(curve["lo"]), _nan(curve["hi"]), color=BAND,
                            alpha=0.35, linewidth=0, label="95 % band of the fit")
     band.set_gid("fit-band")
-    ax.plot(curve["pH"], _nan(curve["log_d"]), color=CURVE,
+    line = curve.get("fine") or curve       # the finer grid where the dict has one
+    ax.plot(line["pH"], _nan(line["log_d"]), color=CURVE,
             label=f"fitted ({_plain(d['model'])})", gid="fit-curve")
     for ratio, (colour, marker) in styles.items():
         used = [r for r in rows if r["volume_ratio"] == ratio and r["status"] == "used"

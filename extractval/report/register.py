@@ -138,8 +138,10 @@ class Quantity:
         name = "95 % interval" if kind == "ci95" else "95 % prediction interval of one run"
         return f"{name} {shown}"
 
-    def citation(self, number: Number, dossier_version: str, software: str) -> str:
-        """A copy-ready line: identifier, value, interval, unit, study, dossier version."""
+    def citation(self, number: Number, dossier_version: str, software: str,
+                 inputs_key: str = "") -> str:
+        """A copy-ready line: identifier, value, interval, unit, study (with its inputs key,
+        which changes only when the study's own files change), dossier version."""
         shown = number.display
         head = f"{number.identifier} {'' if is_bound(shown) else '= '}{shown}"
         if number.statistic == "value":
@@ -159,7 +161,8 @@ class Quantity:
             body = f"{_STAT_TEXT[number.statistic]} {self.description}".strip()
             if self.unit not in ("", "%"):
                 body += f" [{self.unit}]"
-        return (f"{head} ({body}). Study {self.study}, extraction validation dossier "
+        study = f"Study {self.study}" + (f" (inputs {inputs_key})" if inputs_key else "")
+        return (f"{head} ({body}). {study}, extraction validation dossier "
                 f"{dossier_version}, {software}.")
 
 
@@ -512,7 +515,8 @@ class Dossier:
     build_date: str          # ISO 8601, UTC
 
 
-def register_rows(quantities: list[Quantity], dossier: Dossier, page: str) -> list[dict]:
+def register_rows(quantities: list[Quantity], dossier: Dossier, page: str,
+                  inputs_key: str = "") -> list[dict]:
     """One row per identifier, for results.json and results.csv."""
     rows = []
     for q in quantities:
@@ -527,7 +531,8 @@ def register_rows(quantities: list[Quantity], dossier: Dossier, page: str) -> li
                 "display": n.display,
                 "description": q.description,
                 "method": q.method,
-                "citation": q.citation(n, dossier.version, dossier.software),
+                "citation": q.citation(n, dossier.version, dossier.software, inputs_key),
+                "inputs_key": inputs_key,
                 "url": f"{page}#{n.anchor}",
             })
     return rows
@@ -545,7 +550,7 @@ def results_json(rows: list[dict], dossier: Dossier, studies: list[dict]) -> byt
 
 
 CSV_COLUMNS = ("id", "study", "quantity", "statistic", "value", "unit", "display",
-               "description", "method", "citation", "url")
+               "description", "method", "citation", "inputs_key", "url")
 _NUMBER_TEXT = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?( ?%)?")
 
 

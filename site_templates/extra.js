@@ -1,0 +1,57 @@
+/* Copy a number's citation line: the buttons beside the numbers (class xv-copy) carry it in
+   data-cite. navigator.clipboard needs a secure context (https or localhost); over plain http
+   on an intranet the text is copied through a hidden text area, and where even that is refused
+   it is shown selected in a prompt for Ctrl+C. Nothing is fetched from anywhere. */
+(function () {
+  "use strict";
+
+  function mark(button, ok) {
+    button.setAttribute("data-copied", ok ? "yes" : "no");
+    var label = button.textContent;
+    button.textContent = ok ? "copied" : "select";
+    window.setTimeout(function () {
+      button.textContent = label === "copied" || label === "select" ? "copy" : label;
+      button.removeAttribute("data-copied");
+    }, 1500);
+  }
+
+  function fallback(button, text) {
+    var area = document.createElement("textarea");
+    area.value = text;
+    area.setAttribute("readonly", "");
+    area.style.position = "fixed";
+    area.style.top = "0";
+    area.style.opacity = "0";
+    document.body.appendChild(area);
+    area.select();
+    var ok = false;
+    try {
+      ok = document.execCommand("copy");
+    } catch (e) {
+      ok = false;
+    }
+    document.body.removeChild(area);
+    if (!ok) {
+      window.prompt("Copy this citation line (Ctrl+C):", text);
+    }
+    mark(button, ok);
+  }
+
+  document.addEventListener("click", function (event) {
+    var button = event.target.closest ? event.target.closest(".xv-copy") : null;
+    if (!button) {
+      return;
+    }
+    event.preventDefault();
+    var text = button.getAttribute("data-cite") || "";
+    if (navigator.clipboard && window.isSecureContext) {
+      navigator.clipboard.writeText(text).then(function () {
+        mark(button, true);
+      }, function () {
+        fallback(button, text);
+      });
+    } else {
+      fallback(button, text);
+    }
+  });
+})();
