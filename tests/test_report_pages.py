@@ -277,7 +277,8 @@ def test_identifiers_stable_when_a_study_is_added(gold_dict, live):
     assert len(anchors1) > 50
     assert anchors1 == re.findall(r'<p class="xv-reg" id="(SYN-GOLD/[^"]*)"', page2)
     # the anchors beside the numbers on the study page do not move either
-    marks1 = re.findall(r'class="xv-idcell" id="([^"]*)"', one[study_page_path("SYN-GOLD")].decode())
+    marks1 = re.findall(r'class="xv-idcell" id="([^"]*)"',
+                        one[study_page_path("SYN-GOLD")].decode())
     assert len(marks1) > 5
     assert marks1 == re.findall(r'class="xv-idcell" id="([^"]*)"',
                                 two[study_page_path("SYN-GOLD")].decode())
