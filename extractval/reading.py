@@ -8,10 +8,9 @@ future run, the worst case inside the tolerances), written by :mod:`extractval.f
 
 from __future__ import annotations
 
+from .acceptance import OUTCOME_WORDS
 from .formats import fmt_fraction, fmt_number, fmt_pct, in_words, span_words
 
-#: what the reading says for each verdict status of the recovery criterion
-OUTCOME_WORDS = {"pass": "met", "fail": "not met"}
 
 
 def _volumes(values) -> str:
@@ -75,10 +74,12 @@ def _target_sentence(pr: dict, target_pct: float | None) -> str:
     head = f" Recovery target {fmt_number(target_pct, 'g')} %"
     if v is None:
         return head + ": not judged."
-    outcome = OUTCOME_WORDS.get(v.get("status"))
-    if outcome is None:                 # not assessed, not judged, or a status added later
+    status = v.get("status")
+    # the verdict's own outcome words (acceptance.OUTCOME_WORDS), inside a sentence
+    outcome = OUTCOME_WORDS.get(status, str(status)).lower()
+    if status not in ("pass", "fail"):  # not judged (extrapolated, no data), or a later status
         detail = v.get("detail")
-        return head + f": not judged{f' ({detail})' if detail else ''}."
+        return head + f": {outcome}{f' ({detail})' if detail else ''}."
     lo = (pr["recovery_pct"].get("ci95") or [None])[0]
     wc = pr.get("worst_case") or {}
     worst = wc.get("recovery_pct")

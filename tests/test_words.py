@@ -200,3 +200,16 @@ def test_log_d_caption_names_the_advised_runs_when_they_are_drawn(demo_dicts):
         assert drawn == ("Hollow stars mark the advised next runs" in caption), d["study"]
         seen += drawn
     assert seen >= 1
+
+
+def test_reading_of_a_recovery_not_judged_gives_the_verdicts_reason(edge):
+    """A recovery verdict that is not judged (e.g. a prediction outside the measured runs)
+    reads "not judged" with the verdict's own reason, never "met"."""
+    from extractval.reading import procedure_reading
+    pr = json.loads(json.dumps(_procedure(edge, "EDGE")))
+    pr["verdicts"][0].update(status="not judged",
+                             detail="extrapolated beyond the runs (pH 6.0 to 10.0)")
+    text = procedure_reading(pr, 95.0)
+    assert text.endswith("Recovery target 95 %: not judged (extrapolated beyond the runs "
+                         "(pH 6.0 to 10.0)).")
+    assert ": met" not in text and "not met" not in text
