@@ -60,7 +60,7 @@ class Solvent:
     ich_q3c_class: Fact              # 1, 2, 3 or None (not listed)
     ich_q3c_limit_ppm: Fact | None = None   # class 2 concentration limit
     ester: bool = False              # hydrolysed by strong base
-    notes: tuple[Fact, ...] = ()     # cautions of this solvent alone
+    notes: tuple[tuple[str, Fact], ...] = ()   # (topic, caution) of this solvent alone
 
     @property
     def layer(self) -> str:
@@ -89,7 +89,7 @@ class Solvent:
         facts["ghs_flammable_category"] = {"value": self.ghs_flammable_category,
                                            "source": f"from flash and boiling point by {GHS}"}
         return {"name": self.name, "cas": self.cas, "facts": facts,
-                "notes": [n.to_dict() for n in self.notes]}
+                "notes": [dict(topic=t, **n.to_dict()) for t, n in self.notes]}
 
 
 def ghs_flammable_category(flash_point_C: float | None, boiling_point_C: float) -> int | None:
@@ -123,7 +123,7 @@ def _s(name, cas, synonyms, rho, bp, fp, fp_source, sol, water, perox, halo, q3c
                    Fact(sol, SOLUBILITY), Fact(water, SOLUBILITY),
                    Fact(perox, PEROXIDE_LISTS if perox != "no" else COMMON), Fact(halo, COMMON),
                    Fact(q3c, Q3C), None if limit is None else Fact(limit, Q3C), ester,
-                   tuple(Fact(text, src) for text, src in notes))
+                   tuple((topic, Fact(text, src)) for topic, text, src in notes))
 
 
 NO_FLASH = "no flash point in the standard closed-cup tests (SDS, from memory)"
@@ -133,16 +133,20 @@ SOLVENTS: dict[str, Solvent] = {s.name: s for s in (
     _s("dichloromethane", "75-09-2",
        ("dichloromethane", "methylene chloride", "methylene dichloride", "dcm", "ch2cl2"),
        1.327, 39.8, None, NO_FLASH, 1.3, 0.2, "no", True, 2, 600,
-       notes=(("boils at about 40 °C: the pressure in a shaken funnel rises fast, so vent "
+       notes=(("Pressure",
+               "boils at about 40 °C: the pressure in a shaken funnel rises fast, so vent "
                "early and often.", COMMON),
-              ("is suspected of causing cancer (GHS Carc. 2) and is restricted in several "
+              ("Health",
+               "is suspected of causing cancer (GHS Carc. 2) and is restricted in several "
                "jurisdictions; keep exposure low in a fume hood.",
                "harmonised classification, EU CLP Annex VI (from memory)"))),
     _s("chloroform", "67-66-3", ("chloroform", "trichloromethane", "chcl3"),
        1.479, 61.2, None, NO_FLASH, 0.8, 0.1, "no", True, 2, 60,
-       notes=(("turns slowly into phosgene in light and air; it is sold stabilised (ethanol or "
+       notes=(("Storage",
+               "turns slowly into phosgene in light and air; it is sold stabilised (ethanol or "
                "amylene): use stabilised, dated stock kept dark.", COMMON),
-              ("is suspected of causing cancer (GHS Carc. 2) and is toxic if inhaled; work "
+              ("Health",
+               "is suspected of causing cancer (GHS Carc. 2) and is toxic if inhaled; work "
                "in a fume hood.", "harmonised classification, EU CLP Annex VI (from memory)"))),
     _s("ethyl acetate", "141-78-6",
        ("ethyl acetate", "ethyl ethanoate", "etoac", "acoet"),
@@ -150,7 +154,8 @@ SOLVENTS: dict[str, Solvent] = {s.name: s for s in (
     _s("diethyl ether", "60-29-7",
        ("diethyl ether", "ethyl ether", "ethoxyethane", "et2o"),
        0.714, 34.4, -45.0, IEC, 6.9, 1.3, "yes", False, 3,
-       notes=(("boils at about 34 °C and its vapour, heavier than air, reaches distant "
+       notes=(("Pressure and ignition",
+               "boils at about 34 °C and its vapour, heavier than air, reaches distant "
                "ignition sources: vent the funnel very often and keep every flame and hot "
                "plate away.", COMMON),)),
     _s("methyl tert-butyl ether", "1634-04-4",
@@ -159,13 +164,15 @@ SOLVENTS: dict[str, Solvent] = {s.name: s for s in (
        0.735, 55.1, -27.0, IEC, 4.8, 1.5, "low", False, 3),
     _s("toluene", "108-88-3", ("toluene", "methylbenzene", "toluol"),
        0.862, 110.6, 4.0, IEC, 0.05, 0.03, "no", False, 2, 890,
-       notes=(("is suspected of damaging the unborn child (GHS Repr. 2); keep exposure low "
+       notes=(("Health",
+               "is suspected of damaging the unborn child (GHS Repr. 2); keep exposure low "
                "in a fume hood.", "harmonised classification, EU CLP Annex VI (from memory)"),)),
     _s("n-heptane", "142-82-5", ("n-heptane", "heptane", "heptanes"),
        0.680, 98.4, -7.0, IEC, 0.0003, 0.01, "no", False, 3),
     _s("n-hexane", "110-54-3", ("n-hexane", "hexane", "hexanes"),
        0.661, 68.7, -22.0, IEC, 0.001, 0.01, "no", False, 2, 290,
-       notes=(("damages peripheral nerves on repeated exposure (GHS STOT RE 2); "
+       notes=(("Health",
+               "damages peripheral nerves on repeated exposure (GHS STOT RE 2); "
                "n-heptane is the usual substitute.", "harmonised classification, EU CLP Annex "
                "VI (from memory); the substitution is common practice"),)),
     _s("cyclohexane", "110-82-7", ("cyclohexane",),
@@ -173,7 +180,8 @@ SOLVENTS: dict[str, Solvent] = {s.name: s for s in (
     _s("1-butanol", "71-36-3",
        ("1-butanol", "n-butanol", "butan-1-ol", "n-butyl alcohol", "1-buoh", "n-buoh"),
        0.810, 117.6, 35.0, IEC, 7.7, 20.0, "no", False, 3,
-       notes=(("takes up about a fifth of its mass in water and carries water and salts into "
+       notes=(("Water in the extract",
+               "takes up about a fifth of its mass in water and carries water and salts into "
                "the extract; dry the extract before weighing or concentrating it.", COMMON),)),
     _s("isopropyl acetate", "108-21-4",
        ("isopropyl acetate", "2-propyl acetate", "propan-2-yl acetate", "iproac", "ipac"),
@@ -182,12 +190,14 @@ SOLVENTS: dict[str, Solvent] = {s.name: s for s in (
        ("2-methyltetrahydrofuran", "2-methyl tetrahydrofuran", "2-methyl-tetrahydrofuran",
         "2-methf", "methf", "2-mthf"),
        0.855, 80.0, -11.0, "supplier SDS (from memory)", 14.0, 4.4, "yes", False, 3,
-       notes=(("dissolves less in water as the temperature rises (about 14 g per 100 g "
+       notes=(("Temperature",
+               "dissolves less in water as the temperature rises (about 14 g per 100 g "
                "water at 20 °C): phase volumes depend on the temperature of the separation.",
                "from memory"),)),
     _s("1-octanol", "111-87-5", ("1-octanol", "n-octanol", "octan-1-ol", "octanol"),
        0.826, 194.7, 81.0, IEC, 0.05, 4.9, "no", False, None,
-       notes=(("is viscous and separates slowly; allow time for the layers to clear.",
+       notes=(("Separation",
+               "is viscous and separates slowly; allow time for the layers to clear.",
                COMMON),)),
 )}
 
@@ -346,7 +356,7 @@ def study_cautions(match: SolventMatch) -> list[dict]:
             text = (f"{name} is ICH Q3C(R8) class {q3c}{limit}; if the extract leads to a "
                     "drug substance, its residue must be controlled.")
         out.append(_c("Residual solvent", text))
-        out.extend(_c(name, f"{name} {n.value}") for n in s.notes)
+        out.extend(_c(topic, f"{name} {n.value}") for topic, n in s.notes)
     return out
 
 

@@ -24,6 +24,8 @@ def test_table_shape_and_every_value_has_a_source():
         for name, value in vars(s).items():
             if isinstance(value, Fact):
                 assert value.source.strip(), (s.name, name)
+        for topic, note in s.notes:
+            assert topic and note.source.strip(), (s.name, topic)
         assert s.cas == chemicals.CAS_from_any(s.name), s.name     # the CAS is this solvent's
 
 
