@@ -293,13 +293,57 @@ class FitResult:
             wald = Interval(value - self.t95 * se, value + self.t95 * se, "Wald (delta method)")
             if not self._profiles_log_d:
                 est = Estimate(value, se, wald, wald)
-            else:
-                hint = hint or (None, None)
-                lo = self._log_d_end(key, -1, hint[0])
-                hi = self._log_d_end(key, +1, hint[1])
+            elif self.boundary is not None:
+                lo, hi = (None if np.isnan(x[0]) else float(x[0])
+                          for x in self.boundary.log_d_range(self, key))
                 est = Estimate(value, se, Interval(lo, hi, INTERVAL_METHOD), wald)
+            else:
+                est = self.profile_log_d_interval(key, hint)
             self._log_d_memo[key] = est
         return self._log_d_memo[key]
+
+    def log_d_intervals(self, pH) -> list[Estimate]:
+        """:meth:`log_d_interval` at each pH of a grid, in order; where the joint region is
+        traced, every pH not yet asked for is taken from the boundary in one vectorised pass."""
+        keys = [round(float(x), 9) for x in np.atleast_1d(pH)]
+        new = sorted({k for k in keys if k not in self._log_d_memo})
+        if new and self._profiles_log_d and self.boundary is not None:
+            grid = np.array(new)
+            values, ses = self.log_d_wald(grid)
+            los, his = self.boundary.log_d_range(self, grid)
+            for k, value, se, lo, hi in zip(new, values.tolist(), ses.tolist(), los.tolist(),
+                                            his.tolist()):
+                self._wald_memo.setdefault(k, (value, se))
+                wald = Interval(value - self.t95 * se, value + self.t95 * se,
+                                "Wald (delta method)")
+                self._log_d_memo[k] = Estimate(
+                    value, se, Interval(None if np.isnan(lo) else lo,
+                                        None if np.isnan(hi) else hi, INTERVAL_METHOD), wald)
+        return [self.log_d_interval(k) for k in keys]
+
+    def profile_log_d_interval(self, pH0: float,
+                               hint: tuple[float, float] | None = None) -> Estimate:
+        """log D at pH0 with its interval profiled at that pH alone (two profile fits): what
+        :meth:`log_d_interval` does when the joint region cannot be traced, and the reference
+        the traced intervals are tested against."""
+        key = round(float(pH0), 9)
+        value, se = self._log_d_wald_at(key)
+        wald = Interval(value - self.t95 * se, value + self.t95 * se, "Wald (delta method)")
+        hint = hint or (None, None)
+        lo = self._log_d_end(key, -1, hint[0])
+        hi = self._log_d_end(key, +1, hint[1])
+        return Estimate(value, se, Interval(lo, hi, INTERVAL_METHOD), wald)
+
+    @cached_property
+    def boundary(self) -> _Boundary | None:
+        """The traced boundary of the joint 95 % region, where it gives the log D intervals
+        (two-parameter models of the form logK + h, every parameter interval closed and
+        reproduced by the trace); None where each pH is profiled on its own."""
+        if (self.p != 2 or self.model.h is None or not self._profiles_log_d
+                or any(e.at_bound for e in self.parameters.values())):
+            return None
+        traced = _Boundary(self)
+        return traced if traced.valid else None
 
     def log_d_lower(self, pH0: float) -> float | None:
         """The lower end of the 95 % interval of log D at pH0 alone (None when open): what a
@@ -310,6 +354,9 @@ class FitResult:
         if not self._profiles_log_d:
             value, se = self._log_d_wald_at(key)
             return value - self.t95 * se
+        if self.boundary is not None:
+            lo = float(self.boundary.log_d_range(self, key)[0][0])
+            return None if np.isnan(lo) else lo
         return self._log_d_end(key, -1)
 
     @property
@@ -924,3 +971,173 @@ class _Profile:
             # brentq evaluates both points again, and on a flat profile the warm-started
             # profile fits can disagree once more: the same conservative choice
             return outside
+
+
+# -- the joint region's boundary ---------------------------------------------------------------
+#: rays along which the boundary of the two-parameter region is traced (a root of S = S_crit
+#: on each), evenly spaced in angle in the coordinates whitened by J'J
+BOUNDARY_RAYS = 64
+#: points of the boundary used for the ranges: the radius, a smooth periodic function of the
+#: angle, is interpolated from the rays by its Fourier series (spectrally accurate); the
+#: extremum of a quantity over the points is refined by a parabola through the best point and
+#: its two neighbours, which leaves an error of order (2 pi / n)^4 of the half-width
+BOUNDARY_POINTS = 512
+#: the traced region must give each parameter's profile interval to within this share of its
+#: half-width (plus BOUNDARY_ABS_TOL), or the region is not the simple closed curve the trace
+#: assumes and every log D interval is profiled pH by pH instead
+BOUNDARY_REL_TOL = 1e-4
+BOUNDARY_ABS_TOL = 1e-7
+#: relative precision of each radius: S at the point is S_crit to ~1e-12 of S_crit - S_min
+_RADIUS_TOL = 1e-10
+_RADIUS_ITER = 40
+
+
+def _batch_ss(fit: FitResult, thetas: np.ndarray) -> np.ndarray:
+    """The weighted SS at each row of ``thetas`` (m, p) in one vectorised pass; only for
+    models of the form log D = logK + h(pH; rest), whose h broadcasts."""
+    obs = fit.obs
+    rest = [thetas[:, k:k + 1] for k in range(1, thetas.shape[1])]
+    log_d = thetas[:, :1] + fit.model.h(obs.pH[None, :], *rest)
+    r = (obs.predict(log_d)[0] - obs.y) / obs.sd_factor
+    return np.einsum("ij,ij->i", r, r)
+
+
+class _Boundary:
+    """The boundary S(theta) = S_crit of the joint region of a two-parameter fit, traced once.
+
+    S_crit is the profile threshold S_min (1 + F(1, n - p) / (n - p)) (one degree of freedom,
+    not p): the profile interval of any quantity g(theta) is then exactly {g(theta): S(theta)
+    <= S_crit}, and for a g without a stationary point inside (log D at any pH: dg/dlogK = 1)
+    its ends are g's extremes on the boundary. So one trace of the boundary gives the interval
+    of log D at every pH, where profiling needs two fits per pH.
+
+    The boundary is sampled along ``n`` rays from the estimate, evenly spaced in angle in the
+    coordinates whitened by J'J (where the region is close to a circle); each radius is the
+    root of tau(rho) = sqrt(S - S_min) = sqrt(S_crit - S_min), nearly linear in rho, found for
+    all rays at once by a bracketed secant method (three or four vectorised evaluations of S).
+    The radius is then interpolated to ``m`` points by its Fourier series. ``valid`` is False (and the caller profiles
+    instead) when a ray leaves the search box or does not settle, or when the traced ranges of
+    the parameters do not reproduce their profile intervals (a region that is not star-shaped
+    around the estimate, or not closed).
+    """
+
+    def __init__(self, fit: FitResult, n: int | None = None, m: int | None = None):
+        n, m = n or BOUNDARY_RAYS, m or BOUNDARY_POINTS
+        self.valid = False
+        self.points = self.rays = np.zeros((0, fit.p))
+        theta, lo_b, hi_b = fit.theta, fit.bounds[0], fit.bounds[1]
+        target = float(np.sqrt(fit.s_crit - fit.rss))
+        try:
+            chol = np.linalg.cholesky(fit.jac.T @ fit.jac)      # J'J = L L'
+            whiten = np.linalg.inv(chol.T)                      # theta - theta_hat = W z
+        except np.linalg.LinAlgError:
+            return
+        def directions(k):
+            phi = 2.0 * np.pi * np.arange(k) / k
+            return np.column_stack([np.cos(phi), np.sin(phi)]) @ whiten.T
+
+        dirs = directions(n)
+        # largest radius along each ray that stays inside the search box
+        with np.errstate(divide="ignore", invalid="ignore"):
+            to_box = np.where(dirs > 0, (hi_b - theta) / dirs,
+                              np.where(dirs < 0, (lo_b - theta) / dirs, np.inf))
+        rho_box = to_box.min(axis=1)
+
+        def tau(rho, rows):
+            s = _batch_ss(fit, theta + rho[:, None] * dirs[rows])
+            return np.sqrt(np.maximum(s - fit.rss, 0.0))
+
+        rows = np.arange(n)
+        rho = np.minimum(np.full(n, target), 0.5 * rho_box)   # exact if S were quadratic
+        t = tau(rho, rows)
+        inside = np.where(t < target, rho, 0.0)
+        outside = np.where(t >= target, rho, np.inf)
+        prev_rho, prev_t = np.zeros(n), np.zeros(n)
+        done = np.abs(t - target) <= _RADIUS_TOL * target
+        for _ in range(_RADIUS_ITER):
+            if done.all():
+                break
+            k = np.flatnonzero(~done)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                slope = (t[k] - prev_t[k]) / (rho[k] - prev_rho[k])
+                new = rho[k] + (target - t[k]) / slope
+            # outside the bracket (or no usable slope): double outward, or bisect
+            bad = ~np.isfinite(new) | (new <= inside[k]) | (new >= outside[k])
+            grow = np.minimum(2.0 * rho[k], rho_box[k])
+            mid = 0.5 * (inside[k] + outside[k])
+            new = np.where(bad, np.where(np.isfinite(outside[k]), mid, grow), new)
+            prev_rho[k], prev_t[k] = rho[k], t[k]
+            rho[k] = new
+            t[k] = tau(new, k)
+            inside[k] = np.where(t[k] < target, np.maximum(inside[k], new), inside[k])
+            outside[k] = np.where(t[k] >= target, np.minimum(outside[k], new), outside[k])
+            done[k] = np.abs(t[k] - target) <= _RADIUS_TOL * target
+            # a ray that reaches the box without crossing S_crit: the region is not closed
+            if np.any((new >= rho_box[k]) & (t[k] < target)):
+                return
+        if not done.all() or np.any(rho >= rho_box):
+            return
+        self.rays = theta + rho[:, None] * dirs
+        # the radius between the rays: its Fourier series, zero-padded from n to m terms
+        spectrum = np.fft.rfft(rho)
+        if n % 2 == 0:
+            spectrum[-1] *= 0.5      # the Nyquist term is shared by +/- frequency
+        radius = np.fft.irfft(spectrum, m) * (m / n)
+        self.points = theta + radius[:, None] * directions(m)
+        self.valid = self._reproduces(fit)
+
+    def _reproduces(self, fit: FitResult) -> bool:
+        """Do the traced ranges of the parameters match their profile intervals?"""
+        for j, name in enumerate(fit.model.params):
+            ci = fit.parameters[name].ci95
+            if ci.lo is None or ci.hi is None or ci.method != INTERVAL_METHOD:
+                return False
+            lo, hi = self.range_of(self.points[:, j][:, None])
+            tol = BOUNDARY_REL_TOL * 0.5 * (ci.hi - ci.lo) + BOUNDARY_ABS_TOL
+            if abs(lo[0] - ci.lo) > tol or abs(hi[0] - ci.hi) > tol:
+                return False
+        return True
+
+    @staticmethod
+    def _range_1d(g: np.ndarray) -> tuple[float, float]:
+        """:meth:`range_of` for one quantity, in scalars (the common call, one pH at a time)."""
+        n = g.size
+        ends = []
+        for sign in (-1.0, 1.0):
+            i = int(np.argmax(sign * g))
+            a, b, c = sign * g[i - 1], sign * g[i], sign * g[(i + 1) % n]
+            curv = a - 2.0 * b + c
+            shift = min(max(0.5 * (a - c) / curv, -1.0), 1.0) if curv < 0 else 0.0
+            ends.append(sign * (b - 0.25 * (a - c) * shift))
+        return ends[0], ends[1]
+
+    @staticmethod
+    def range_of(g: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Least and greatest value of a quantity over the boundary, per column of ``g`` (its
+        values at the sampled points, (n, k)), each refined by a parabola through the best
+        sample and its two neighbours (the samples go round a closed curve)."""
+        def refine(v):
+            n = v.shape[0]
+            i = np.argmax(v, axis=0)
+            cols = np.arange(v.shape[1])
+            a, b, c = v[(i - 1) % n, cols], v[i, cols], v[(i + 1) % n, cols]
+            curv = a - 2.0 * b + c
+            with np.errstate(divide="ignore", invalid="ignore"):
+                shift = np.where(curv < 0, 0.5 * (a - c) / curv, 0.0)
+            return b - 0.25 * (a - c) * np.clip(shift, -1.0, 1.0)
+
+        return -refine(-g), refine(g)
+
+    def log_d_range(self, fit: FitResult, pH) -> tuple[np.ndarray, np.ndarray]:
+        """Ends of the 95 % interval of log D at each pH (NaN beyond LOG_D_LIMITS: open)."""
+        if np.ndim(pH) == 0:
+            g = self.points[:, 0] + fit.model.h(float(pH), *self.points[:, 1:].T)
+            lo, hi = (np.array([x]) for x in self._range_1d(g))
+        else:
+            pH = np.asarray(pH, dtype=float)
+            g = self.points[:, :1] + fit.model.h(pH[None, :], *[self.points[:, k:k + 1]
+                                                                 for k in range(1, fit.p)])
+            lo, hi = self.range_of(g)
+        lo = np.where(lo <= LOG_D_LIMITS[0], np.nan, lo)
+        hi = np.where(hi >= LOG_D_LIMITS[1], np.nan, hi)
+        return lo, hi

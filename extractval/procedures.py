@@ -170,8 +170,9 @@ def log_d_band(fit: FitResult, step: float = BAND_STEP) -> LogDBand:
     lo_ph = max(0.0, np.floor((fit.obs.pH.min() - BAND_MARGIN) / step) * step)
     hi_ph = min(14.0, np.ceil((fit.obs.pH.max() + BAND_MARGIN) / step) * step)
     grid = np.round(np.arange(lo_ph, hi_ph + step / 2, step), 6)
-    # in order, so that each point's end search starts from its neighbour's ends
-    ests = [fit.log_d_interval(float(x)) for x in grid]
+    # in order, so that each point's end search starts from its neighbour's ends (or all at
+    # once from the traced boundary of the joint region)
+    ests = fit.log_d_intervals(grid)
 
     def arr(get):
         return np.array([np.nan if get(e) is None else get(e) for e in ests], dtype=float)
