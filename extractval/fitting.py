@@ -198,6 +198,7 @@ class FitResult:
     _end_memo: dict = field(default_factory=dict, repr=False)       # (pH, side) -> end, theta
     _wald_memo: dict = field(default_factory=dict, repr=False)      # pH -> value, se
     _profile_memo: dict = field(default_factory=dict, repr=False)   # pH -> _Profile
+    _trace: _Boundary | None = field(default=None, repr=False)     # traced, not yet checked
 
     def __post_init__(self):
         if self.residuals is None:
@@ -342,8 +343,8 @@ class FitResult:
         if (self.p != 2 or self.model.h is None or not self._profiles_log_d
                 or any(e.at_bound for e in self.parameters.values())):
             return None
-        traced = _Boundary(self)
-        return traced if traced.valid else None
+        traced = self._trace if self._trace is not None else _Boundary(self)
+        return traced if traced.traced and traced.reproduces(self) else None
 
     def log_d_lower(self, pH0: float) -> float | None:
         """The lower end of the 95 % interval of log D at pH0 alone (None when open): what a
@@ -609,6 +610,22 @@ def _correlation_warnings(fit: FitResult) -> None:
                     "of the pKa separate them")
 
 
+def _traced_steps(fit: FitResult, j: int) -> tuple[float, float] | None:
+    """First distances to try for parameter j's profile ends: its range over the traced
+    boundary of the joint region (two-parameter models). Like ``hint`` of log_d_interval they
+    only speed the search up: the ends are still where the profile from the estimate crosses
+    the threshold, so the trace is then checked against them (_Boundary.reproduces)."""
+    if fit.p != 2 or fit.model.h is None or not fit._profiles_log_d:
+        return None
+    if fit._trace is None:
+        fit._trace = _Boundary(fit)
+    if not fit._trace.traced:
+        return None
+    lo, hi = fit._trace.range_of(fit._trace.points[:, j][:, None])
+    value = float(fit.theta[j])
+    return value - float(lo[0]), float(hi[0]) - value
+
+
 def _fill_parameters(fit: FitResult, intervals: bool) -> None:
     se_all = np.sqrt(np.clip(np.diag(fit.covariance), 0, None))
     lo_b, hi_b = fit.bounds
@@ -620,7 +637,7 @@ def _fill_parameters(fit: FitResult, intervals: bool) -> None:
         reasons: dict[int, str] = {}
         if intervals and fit.rss > _NOISE_FREE_RSS * fit.n:
             prof = _Profile(fit, param=j)
-            lo, hi = prof.interval(se, float(lo_b[j]), float(hi_b[j]))
+            lo, hi = prof.interval(se, float(lo_b[j]), float(hi_b[j]), _traced_steps(fit, j))
             ci = Interval(lo, hi, INTERVAL_METHOD)
             reasons = prof.open_reason
         else:
@@ -874,10 +891,14 @@ class _Profile:
         step = self.t_crit * se if np.isfinite(se) and se > 1e-8 else 0.5
         return float(np.clip(step, 1e-6, 2.0))
 
-    def interval(self, se: float, lo_lim: float, hi_lim: float) -> tuple[float | None,
-                                                                            float | None]:
+    def interval(self, se: float, lo_lim: float, hi_lim: float,
+                 steps: tuple[float, float] | None = None) -> tuple[float | None, float | None]:
+        """Both ends; ``steps`` are the first distances to try below and above (default: the
+        Wald half-width)."""
         step = self.wald_step(se)
-        return self.end(-1, lo_lim, step)[0], self.end(+1, hi_lim, step)[0]
+        d_lo, d_hi = (step, step) if steps is None else (
+            d if np.isfinite(d) and d > 1e-6 else step for d in steps)
+        return self.end(-1, lo_lim, d_lo)[0], self.end(+1, hi_lim, d_hi)[0]
 
     def end(self, sign: int, limit: float, d0: float,
             start: np.ndarray | None = None) -> tuple[float | None, _Point | None]:
@@ -1015,15 +1036,15 @@ class _Boundary:
     coordinates whitened by J'J (where the region is close to a circle); each radius is the
     root of tau(rho) = sqrt(S - S_min) = sqrt(S_crit - S_min), nearly linear in rho, found for
     all rays at once by a bracketed secant method (three or four vectorised evaluations of S).
-    The radius is then interpolated to ``m`` points by its Fourier series. ``valid`` is False (and the caller profiles
-    instead) when a ray leaves the search box or does not settle, or when the traced ranges of
-    the parameters do not reproduce their profile intervals (a region that is not star-shaped
-    around the estimate, or not closed).
+    The radius is then interpolated to ``m`` points by its Fourier series. ``traced`` is False
+    when a ray leaves the search box or does not settle; :meth:`reproduces` is False when the
+    traced ranges of the parameters do not match their profile intervals (a region that is not
+    star-shaped around the estimate, or not closed). Either way the caller profiles instead.
     """
 
     def __init__(self, fit: FitResult, n: int | None = None, m: int | None = None):
         n, m = n or BOUNDARY_RAYS, m or BOUNDARY_POINTS
-        self.valid = False
+        self.traced = False
         self.points = self.rays = np.zeros((0, fit.p))
         theta, lo_b, hi_b = fit.theta, fit.bounds[0], fit.bounds[1]
         target = float(np.sqrt(fit.s_crit - fit.rss))
@@ -1084,9 +1105,9 @@ class _Boundary:
             spectrum[-1] *= 0.5      # the Nyquist term is shared by +/- frequency
         radius = np.fft.irfft(spectrum, m) * (m / n)
         self.points = theta + radius[:, None] * directions(m)
-        self.valid = self._reproduces(fit)
+        self.traced = True
 
-    def _reproduces(self, fit: FitResult) -> bool:
+    def reproduces(self, fit: FitResult) -> bool:
         """Do the traced ranges of the parameters match their profile intervals?"""
         for j, name in enumerate(fit.model.params):
             ci = fit.parameters[name].ci95

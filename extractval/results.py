@@ -12,6 +12,9 @@ from dataclasses import dataclass
 from .formats import fmt_pct  # noqa: F401  (re-exported: the engine's sentences use it)
 
 
+_SPECS = {d: f".{d}g" for d in range(1, 18)}
+
+
 def clean(x: float | None, digits: int = 10) -> float | None:
     """A float fit for JSON: None for missing or non-finite, rounded to ``digits`` significant."""
     if x is None:
@@ -19,7 +22,8 @@ def clean(x: float | None, digits: int = 10) -> float | None:
     x = float(x)
     if not math.isfinite(x):
         return None
-    return float(f"{x:.{digits}g}")
+    # a report calls this thousands of times: the format specification is built once
+    return float(format(x, _SPECS.get(digits) or f".{digits}g"))
 
 
 @dataclass(frozen=True)
