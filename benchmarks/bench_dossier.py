@@ -123,7 +123,7 @@ _STEP = re.compile(r"([a-z][a-z ]*?) (\d+(?:\.\d+)?) s")
 def build(folder: Path, jobs: int) -> dict:
     """One ``extractval build`` in its own process: wall seconds, steps, peak memory."""
     cmd = [sys.executable, "-m", "extractval.cli", "build", "--config",
-           str(folder / "mkdocs.yml")]
+           str(folder / "mkdocs.yml"), "--cache-dir", str(folder / ".cache")]
     if jobs:
         cmd += ["--jobs", str(jobs)]
     env = dict(os.environ, PYTHONPATH=os.pathsep.join(

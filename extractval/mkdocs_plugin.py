@@ -7,6 +7,7 @@ can move to another site generator by replacing this module alone.
 
 from __future__ import annotations
 
+import contextlib
 import logging
 import os
 import re
@@ -14,6 +15,7 @@ from pathlib import Path
 
 os.environ.setdefault("NO_MKDOCS_2_WARNING", "1")   # our users did not choose the theme
 
+from mkdocs.commands import build as _mkdocs_build_module  # noqa: E402
 from mkdocs.commands.build import build as _mkdocs_build  # noqa: E402
 from mkdocs.config import config_options as c  # noqa: E402
 from mkdocs.config.base import Config  # noqa: E402
@@ -42,6 +44,7 @@ class DossierPlugin(BasePlugin[DossierConfig]):
         super().__init__()
         self.prepared: site.Prepared | None = None     # set by `extractval build`
         self._blocks: dict[str, list[str]] = {}
+        self._done: set[str] = set()     # files already written with this build's values
 
     def _studies(self, config) -> Path:
         root = Path(config.config_file_path or ".").resolve().parent
@@ -83,6 +86,25 @@ class DossierPlugin(BasePlugin[DossierConfig]):
 
     def on_post_page(self, output, *, page, config):
         return put_back_html(output, self._blocks.pop(page.file.src_uri, ()), searchable=False)
+
+    def on_post_build(self, *, config):
+        """Put this build's dossier version and date in place of the tokens, in every page
+        not yet written with them (the theme's 404 page; every page of a plain `mkdocs
+        build`) and in the search index."""
+        tokens = self.prepared.tokens if self.prepared is not None else {}
+        if not tokens:
+            return
+        root = Path(config.site_dir)
+        found = [Path(d) / f for d, _, names in os.walk(root) for f in names
+                 if f.endswith(".html") or f == "search_index.json"]
+        for path in sorted(found):
+            if str(path) in self._done:
+                continue
+            data = path.read_bytes()
+            new = site.put_tokens(data, tokens)
+            if new != data:
+                path.write_bytes(new)
+        self._done.clear()
 
     def on_serve(self, server, *, config, builder):
         server.watch(str(self._studies(config)))
@@ -183,12 +205,83 @@ def build_site(config_file: Path, site_dir: Path, prepared: site.Prepared,
             raise site.SiteBuildError(f"{config_file}: the '{PLUGIN}' plugin is not listed "
                                       "under plugins:; the dossier pages come from it")
         plugin.prepared = prepared
-        _mkdocs_build(cfg)
+        with _reusing_pages(cfg, plugin, prepared):
+            _mkdocs_build(cfg)
     except MkDocsException as exc:
         found = "".join(f"\n  warning: {line}" for line in collect.lines)
         raise site.SiteBuildError(f"the site generator stopped: {exc}{found}") from None
     finally:
         logger.removeHandler(collect)
+
+
+def _search_entries(cfg) -> list | None:
+    """The search plugin's list of index entries (None without a search plugin)."""
+    for plugin in cfg.plugins.values():
+        index = getattr(plugin, "search_index", None)
+        if index is not None and isinstance(getattr(index, "entries", None), list):
+            return index.entries
+    return None
+
+
+@contextlib.contextmanager
+def _reusing_pages(cfg, plugin: DossierPlugin, prepared: site.Prepared):
+    """During one build, pages whose finished HTML the cache holds are written from it (the
+    generator neither converts their Markdown nor renders its theme around them, and their
+    search-index entries come from the cache too); every other page of ``prepared.page_keys``
+    is kept in the cache once the generator has written it. Either way the file is written
+    with this build's version and date in place of the tokens.
+
+    MkDocs has no incremental build of its own; this wraps its two per-page steps
+    (``_populate_page``, ``_build_page``) for the length of the build and puts them back
+    after. A page made from the cache is the same bytes a full build writes
+    (tests/test_site_build.py); its links were checked when it was first built, with the
+    same navigation and list of files (both are in its key).
+    """
+    cache, keys, reused = prepared.page_cache, prepared.page_keys, prepared.reused
+    populate = getattr(_mkdocs_build_module, "_populate_page", None)
+    build_page = getattr(_mkdocs_build_module, "_build_page", None)
+    if cache is None or populate is None or build_page is None:
+        yield
+        return
+    tokens, kept = prepared.tokens, reused
+
+    def populate_page(page, config, files, dirty=False):
+        if page.file.src_uri in kept:
+            return None
+        return populate(page, config, files, dirty)
+
+    def write(page, html: bytes) -> None:
+        dest = page.file.abs_dest_path
+        os.makedirs(os.path.dirname(dest), exist_ok=True)
+        with open(dest, "wb") as fh:
+            fh.write(site.put_tokens(html, tokens))
+        plugin._done.add(str(Path(dest)))
+
+    def build_one(page, config, doc_files, nav, env, dirty=False, excluded=False):
+        uri = page.file.src_uri
+        entries = _search_entries(config)
+        if uri in kept:
+            html, found = kept[uri]
+            write(page, html)
+            if entries is not None:
+                entries.extend(found)
+            return None
+        n0 = len(entries) if entries is not None else 0
+        out = build_page(page, config, doc_files, nav, env, dirty, excluded)
+        if uri in keys and os.path.isfile(page.file.abs_dest_path):
+            with open(page.file.abs_dest_path, "rb") as fh:
+                html = fh.read()
+            cache.put(uri, keys[uri], html, [] if entries is None else entries[n0:])
+            write(page, html)
+        return out
+
+    _mkdocs_build_module._populate_page = populate_page
+    _mkdocs_build_module._build_page = build_one
+    try:
+        yield
+    finally:
+        _mkdocs_build_module._populate_page = populate
+        _mkdocs_build_module._build_page = build_page
 
 
 def _docs_dir_option(docs_dir: Path | None) -> dict[str, str]:

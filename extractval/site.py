@@ -35,7 +35,6 @@ from typing import Callable
 
 from . import __version__
 from .report.pages import Pages, StudyInput, TemplateProblem, nav, study_page_path
-from .report.plots import study_plots
 from .report.register import Dossier
 
 SOFTWARE = f"extractval {__version__}"
@@ -50,6 +49,14 @@ PACKAGE = Path(__file__).resolve().parent
 PACKAGED = PACKAGE / "dossier"
 #: names the cache folder for every build (also `extractval serve` and `mkdocs build`)
 ENV_CACHE = "EXTRACTVAL_CACHE_DIR"
+
+
+#: What the pages carry in place of the dossier version and the build date while they are
+#: generated; the real values are put in as each file is written (mkdocs_plugin). A study's
+#: page is then the same text in every build until that study (or the software, templates,
+#: navigation) changes, and the generator's finished page can be kept and reused.
+VERSION_TOKEN = "XVDOSSIERVERSIONTOKENXV"
+DATE_TOKEN = "XVBUILDDATETOKENXV"
 
 
 class SiteBuildError(Exception):
@@ -74,10 +81,10 @@ def software_fingerprint() -> str:
     and plots depend on besides the inputs (a code change invalidates the cache)."""
     global _SOFTWARE_FP
     if _SOFTWARE_FP is None:
-        import matplotlib
-
+        from importlib.metadata import version   # not the import of matplotlib: a warm
+                                                 # rebuild that draws nothing never needs it
         pkg = Path(__file__).resolve().parent
-        parts: list[bytes | str] = [__version__, matplotlib.__version__]
+        parts: list[bytes | str] = [__version__, version("matplotlib")]
         for f in sorted(pkg.rglob("*.py")):
             parts += [f.relative_to(pkg).as_posix(), f.read_bytes()]
         _SOFTWARE_FP = _sha(*parts)
@@ -151,6 +158,7 @@ def discover(studies_dir: Path) -> list[Source]:
 def compute(study) -> tuple[str, dict[str, bytes]]:
     """Fit one study: its dict as JSON text, and its plots. Runs in a worker process."""
     from .analysis import fit_study
+    from .report.plots import study_plots
 
     text = json.dumps(fit_study(study).to_dict(), allow_nan=False)
     return text, study_plots(json.loads(text))
@@ -227,6 +235,7 @@ class Outcome:
     runs: int = 0
     cached: bool = False
     seconds: float = 0.0
+    text_sha: str = ""          # SHA-256 of the report's JSON text: what its page is made of
 
     @property
     def problems(self) -> list[str]:
@@ -238,13 +247,24 @@ class Outcome:
 
 @dataclass
 class Prepared:
-    """Everything the site generator needs: files by site path, the navigation, the footer."""
+    """Everything the site generator needs: files by site path, the navigation, the footer.
+
+    Pages and footer hold VERSION_TOKEN and DATE_TOKEN; ``tokens`` maps them to this build's
+    values, which the generator's plugin puts in as it writes each file. ``page_keys`` are
+    the keys of the pages whose finished HTML may be kept in ``page_cache``; the pages in
+    ``reused`` were not rendered (their content is empty): their finished HTML and search
+    entries, read from the cache, are here.
+    """
 
     files: dict[str, bytes]
     nav: list
     footer: str
     dossier: Dossier
     outcomes: list[Outcome] = field(default_factory=list)
+    tokens: dict[str, str] = field(default_factory=dict)
+    page_keys: dict[str, str] = field(default_factory=dict)
+    reused: dict[str, tuple[bytes, list]] = field(default_factory=dict)
+    page_cache: PageCache | None = None
 
     @property
     def failed(self) -> list[Outcome]:
@@ -325,7 +345,7 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
 
     def from_cache(src, text, plots, meta) -> Outcome:
         return Outcome(src.study_id, json.loads(text), plots, [], meta["inputs_key"],
-                       meta["runs"], cached=True)
+                       meta["runs"], cached=True, text_sha=_sha(text))
 
     for src in sources:
         t0 = time.perf_counter()
@@ -362,7 +382,7 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
         meta = {"inputs_key": inputs_key(study), "runs": len(study.runs)}
         cache.put(src.study_id, key, text, plots, meta)
         report(Outcome(src.study_id, json.loads(text), plots, [], meta["inputs_key"],
-                       meta["runs"], seconds=seconds))
+                       meta["runs"], seconds=seconds, text_sha=_sha(text)))
 
     def failed(src, study, exc):
         report(Outcome(src.study_id, None, {}, [
@@ -407,11 +427,24 @@ def dossier_version(outcomes: list[Outcome], templates_dir: Path, config_file: P
 
 
 def render(outcomes: list[Outcome], templates_dir: Path, config_file: Path | None,
-           date: str) -> Prepared:
-    """All files of the site from the outcomes (pages, plots, exports, CSS)."""
+           date: str, page_cache: PageCache | None = None) -> Prepared:
+    """All files of the site from the outcomes (pages, plots, exports, CSS).
+
+    With a ``page_cache``, a study page whose finished HTML the cache holds is not rendered.
+    """
     dossier = Dossier(dossier_version(outcomes, templates_dir, config_file), SOFTWARE, date)
+    shown = Dossier(VERSION_TOKEN, SOFTWARE, DATE_TOKEN)
+    tokens = {VERSION_TOKEN: dossier.version, DATE_TOKEN: date}
     inputs = [StudyInput(o.study_id, o.data, tuple(o.errors), tuple(sorted(o.plots)), o.key)
               for o in outcomes]
+    site_nav = nav(inputs)
+    page_keys = _page_keys(outcomes, site_nav, templates_dir, config_file)
+    reused: dict[str, tuple[bytes, list]] = {}
+    if page_cache is not None:
+        for path, key in page_keys.items():
+            hit = page_cache.get(path, key)
+            if hit is not None:       # a missing or unreadable entry: the page is rendered
+                reused[path] = hit
     ok = [o for o in outcomes if o.data is not None]
     runs = {k: sum(o.data["runs"][k] for o in ok) for k in ("total", "used", "excluded")}
     n_failed = len(outcomes) - len(ok)
@@ -421,15 +454,93 @@ def render(outcomes: list[Outcome], templates_dir: Path, config_file: Path | Non
         "runs_text": f"{runs['total']} ({runs['used']} used, {runs['excluded']} excluded)",
     }
     try:
-        files = Pages(templates_dir).dossier_files(inputs, dossier, counts)
+        files = Pages(templates_dir).dossier_files(inputs, shown, counts, skip=reused)
     except TemplateProblem as exc:
         raise SiteBuildError(f"a page template failed: {exc}") from None
+    for path in list(files):
+        if not path.endswith(".md"):          # exports: this build's values right away
+            files[path] = put_tokens(files[path], tokens)
     for o in outcomes:
         folder = study_page_path(o.study_id).rsplit("/", 1)[0]
         for name, data in sorted(o.plots.items()):
             files[f"{folder}/{name}"] = data
-    footer = f"Dossier {dossier.version} · {dossier.software} · built {dossier.build_date}"
-    return Prepared(files, nav(inputs), footer, dossier, outcomes)
+    footer = f"Dossier {shown.version} · {shown.software} · built {shown.build_date}"
+    return Prepared(files, site_nav, footer, dossier, outcomes, tokens, page_keys, reused,
+                    page_cache)
+
+
+def put_tokens(data: bytes, tokens: dict[str, str]) -> bytes:
+    """``data`` with each token replaced by its value."""
+    for token, value in tokens.items():
+        data = data.replace(token.encode(), value.encode())
+    return data
+
+
+# -- finished pages, kept between builds ----------------------------------------------------------
+def _page_keys(outcomes: list[Outcome], site_nav: list, templates_dir: Path,
+               config_file: Path | None) -> dict[str, str]:
+    """The key of each study page's finished HTML: the study's report (its JSON text), errors
+    and plots, and everything of the site that shows on every page or decides how a page is
+    made (software with the generator and theme versions, templates, mkdocs.yml, navigation,
+    the list of the site's files). The index and register pages show every study and are
+    made every build."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    parts: list[bytes | str] = [software_fingerprint()]
+    for dist in ("mkdocs", "mkdocs-material", "markdown", "jinja2", "pymdown-extensions"):
+        try:
+            parts.append(f"{dist} {version(dist)}")
+        except PackageNotFoundError:
+            parts.append(f"{dist} -")
+    for f in sorted(p for p in Path(templates_dir).rglob("*") if p.is_file()):
+        parts += [f.relative_to(templates_dir).as_posix(), f.read_bytes()]
+    if config_file is not None and Path(config_file).is_file():
+        parts.append(Path(config_file).read_bytes())
+    paths = []
+    for o in outcomes:
+        page = study_page_path(o.study_id)
+        paths += [page] + [f"{page.rsplit('/', 1)[0]}/{n}" for n in sorted(o.plots)]
+    parts += [json.dumps(site_nav, sort_keys=True), json.dumps(sorted(paths))]
+    site_key = _sha(*parts)
+    return {study_page_path(o.study_id): _sha(site_key, o.study_id, o.key, o.text_sha,
+                                              *o.errors, *sorted(o.plots))[:32]
+            for o in outcomes}
+
+
+class PageCache:
+    """Finished HTML pages (with the tokens, not this build's version and date) and their
+    search-index entries, one entry per page: ``<root>/pages/<page-hash>/<key>.html`` and
+    ``.json``. Written whole or not at all; safe to delete."""
+
+    def __init__(self, root: Path):
+        self.root = Path(root) / "pages"
+
+    def _folder(self, page: str) -> Path:
+        return self.root / _sha(page)[:16]
+
+    def get(self, page: str, key: str) -> tuple[bytes, list] | None:
+        base = self._folder(page) / key
+        try:
+            html = base.with_suffix(".html").read_bytes()
+            entries = json.loads(base.with_suffix(".json").read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            return None
+        return html, entries
+
+    def put(self, page: str, key: str, html: bytes, entries: list) -> None:
+        folder = self._folder(page)
+        try:
+            folder.mkdir(parents=True, exist_ok=True)
+            for old in folder.iterdir():
+                if not old.name.startswith(key + "."):
+                    old.unlink(missing_ok=True)
+            for suffix, data in ((".json", json.dumps(entries).encode()), (".html", html)):
+                fd, tmp = tempfile.mkstemp(prefix=".tmp-", dir=folder)
+                with os.fdopen(fd, "wb") as fh:
+                    fh.write(data)
+                os.replace(tmp, folder / (key + suffix))
+        except OSError:
+            pass        # a cache that cannot be written only costs time
 
 
 def _failure_text(failed: list[Outcome]) -> str:
@@ -443,8 +554,11 @@ def _failure_text(failed: list[Outcome]) -> str:
 def prepare(studies_dir: Path | None, templates_dir: Path, config_file: Path | None, *,
             keep_going: bool = False, cache_dir: Path | None = None, jobs: int = 0,
             progress: Callable[[str], None] | None = None,
-            sources: list[Source] | None = None) -> Prepared:
+            sources: list[Source] | None = None, reuse_pages: bool = False) -> Prepared:
     """Read, fit and render every study: the site's files, ready for the generator.
+
+    With ``reuse_pages`` (``extractval build``, whose generator step can put kept pages in
+    place), study pages whose finished HTML is in the cache are not rendered again.
 
     Raises :class:`SiteBuildError` (with every located error) when a study cannot be read,
     unless ``keep_going``.
@@ -462,7 +576,9 @@ def prepare(studies_dir: Path | None, templates_dir: Path, config_file: Path | N
         raise SiteBuildError(_failure_text(failed) + "\nthe site was not built; correct the "
                              "files above, or use --keep-going to publish the other studies")
     date, _ = build_date()
-    return render(outcomes, Path(templates_dir), config_file, date)
+    page_cache = (PageCache(Path(cache_dir) / CACHE_FORMAT)
+                  if reuse_pages and cache_dir is not None else None)
+    return render(outcomes, Path(templates_dir), config_file, date, page_cache)
 
 
 # -- publishing -----------------------------------------------------------------------------------
@@ -576,7 +692,8 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
         protected.append(Path(studies_dir))
     _check_target(site_dir, protected)
     prepared = prepare(studies_dir, templates_dir, config_file, keep_going=keep_going,
-                       cache_dir=cache_dir, jobs=jobs, progress=progress, sources=sources)
+                       cache_dir=cache_dir, jobs=jobs, progress=progress, sources=sources,
+                       reuse_pages=True)
     t1 = time.perf_counter()
     site_dir.parent.mkdir(parents=True, exist_ok=True)
     sweep_leftovers(site_dir)

@@ -376,8 +376,9 @@ class Pages:
         return (self.templates_dir / JS_SOURCE).read_bytes()
 
     def dossier_files(self, studies: list[StudyInput], dossier: Dossier,
-                      counts: dict) -> dict[str, bytes]:
-        """Every generated file of the site except the plots, by site path."""
+                      counts: dict, skip: set[str] = frozenset()) -> dict[str, bytes]:
+        """Every generated file of the site except the plots, by site path. A study page
+        whose path is in ``skip`` is left empty (the build reuses its finished HTML)."""
         studies = sorted(studies, key=lambda s: s.study_id)
         files = {INDEX: self.index_page(studies, dossier, counts).encode(),
                  REGISTER: self.register_page(studies, dossier).encode(),
@@ -385,7 +386,8 @@ class Pages:
                  CSS_PATH: self.css(), JS_PATH: self.js()}
         rows, listing = [], []
         for s in studies:
-            files[study_page_path(s.study_id)] = self.study_page(s, dossier).encode()
+            path = study_page_path(s.study_id)
+            files[path] = b"" if path in skip else self.study_page(s, dossier).encode()
             status = ("not published: input errors" if s.data is None
                       else study_status(s.data)[1])
             listing.append({"study": s.study_id, "page": study_url(s.study_id),
