@@ -16,8 +16,9 @@ studies measure both phases (ratios 1:2, 1:1, 2:1), half report recovery only (r
 from the expected log K so that r K is near 1, as TG 107 advises for the one-phase case);
 relative error per measured amount 2-6 %. Truth drawn per study: log K 1 to 3.5, pKa 3.5 to 9.5.
 
-Timing is single-process, wall clock, the two methods alternating study by study. Coverage is counted over more studies than are timed; the
-baseline's extra coverage studies run in a process pool across the cores (untimed).
+Timing is single-process, wall clock, the two methods alternating study by study. Coverage
+is counted over more studies than are timed; the baseline's extra coverage studies run in a
+process pool across the cores (untimed).
 
 Run:  python benchmarks/bench_baseline.py [--quick]
 Writes benchmarks/out/bench_baseline.json beside the printed table.
