@@ -1,4 +1,4 @@
-"""The ``extractval`` command line: check, fit, advise, build, serve, new.
+"""The ``extractval`` command line: check, fit, advise, build, serve, compare, new.
 
 Errors in the input are printed as located messages on stderr with exit status 1; no traceback
 reaches the user for bad input. Exit status 2 is a usage error.
@@ -114,6 +114,12 @@ def cmd_serve(args) -> int:
     return serve_command(args)
 
 
+def cmd_compare(args) -> int:
+    from .compare import compare_command
+
+    return compare_command(args)
+
+
 def cmd_new(args) -> int:
     from .scaffold import new_command
 
@@ -174,12 +180,23 @@ def make_parser() -> argparse.ArgumentParser:
                         "delete)")
     p.add_argument("--jobs", type=int, default=0,
                    help="worker processes for fitting (default: one per core)")
+    p.add_argument("--archive", default=None, metavar="DIR",
+                   help="folder beside the site that keeps every published version "
+                        "(DIR/dv-.../results.json, results.csv, register.html); read and "
+                        "added to on each build")
     p.set_defaults(func=cmd_build)
 
     p = sub.add_parser("serve", help="live preview of the dossier")
     _site_options(p)
     p.add_argument("--addr", default="127.0.0.1:8000", help="address to serve on")
     p.set_defaults(func=cmd_serve)
+
+    p = sub.add_parser("compare", help="what changed between two versions of the dossier")
+    p.add_argument("old", metavar="OLD", help="a dossier site, a version folder "
+                   "(site/versions/dv-... or ARCHIVE/dv-...) or a results.json file")
+    p.add_argument("new", metavar="NEW", help="the same, for the newer version")
+    p.add_argument("--json", action="store_true", help="print the comparison as JSON")
+    p.set_defaults(func=cmd_compare)
 
     p = sub.add_parser("new", help="scaffold a new study folder")
     p.add_argument("study_id", metavar="STUDY-ID")

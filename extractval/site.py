@@ -671,10 +671,12 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
           keep_going: bool = False, cache_dir: Path | None = None, jobs: int = 0,
           progress: Callable[[str], None] | None = None,
           sources: list[Source] | None = None,
-          templates_dir: Path | None = None) -> BuildResult:
+          templates_dir: Path | None = None, archive: Path | None = None) -> BuildResult:
     """The whole build; on any failure the published ``site_dir`` is left as it was.
 
     ``templates_dir`` replaces the configuration's ``docs_dir`` (the templates and CSS).
+    Every version already published (in the site's versions/ and in ``archive``) is carried
+    into the new site; this version is added to ``archive`` once it is published.
     """
     from . import mkdocs_plugin
 
@@ -691,9 +693,15 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
     if studies_dir is not None:
         protected.append(Path(studies_dir))
     _check_target(site_dir, protected)
+    if archive is not None:
+        archive = Path(archive).resolve()
+        if archive == site_dir or archive.is_relative_to(site_dir):
+            raise SiteBuildError(f"{archive}: the archive would be inside the site folder, "
+                                 "which each build replaces; choose a folder beside it")
     prepared = prepare(studies_dir, templates_dir, config_file, keep_going=keep_going,
                        cache_dir=cache_dir, jobs=jobs, progress=progress, sources=sources,
                        reuse_pages=True)
+    own = _add_versions(prepared, templates_dir, site_dir, archive)
     t1 = time.perf_counter()
     site_dir.parent.mkdir(parents=True, exist_ok=True)
     sweep_leftovers(site_dir)
@@ -715,9 +723,33 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
+    if archive is not None:
+        from .versions import archive_version
+
+        try:
+            archive_version(archive, prepared.dossier.version, own)
+        except OSError as exc:
+            raise SiteBuildError(f"{archive}: the site was published but this version could "
+                                 f"not be archived ({exc.strerror or exc})") from None
     t2 = time.perf_counter()
     return BuildResult(site_dir, prepared, t2 - t0,
                        {"studies and pages": t1 - t0, "site generator": t2 - t1})
+
+
+def _add_versions(prepared: Prepared, templates_dir: Path, site_dir: Path,
+                  archive: Path | None) -> dict[str, bytes]:
+    """versions/ and the Changes page (extractval.versions); this version's files."""
+    from .versions import add_versions
+
+    pages = Pages(templates_dir)
+    try:
+        return add_versions(prepared.files, prepared.nav, site_dir, archive,
+                            pages.changes_page)
+    except TemplateProblem as exc:
+        raise SiteBuildError(f"a page template failed: {exc}") from None
+    except (OSError, ValueError, KeyError) as exc:
+        raise SiteBuildError(f"{site_dir}: the published versions could not be read "
+                             f"({type(exc).__name__}: {exc})") from None
 
 
 # -- where a build reads and writes --------------------------------------------------------------
@@ -841,7 +873,8 @@ def build_command(args) -> int:
         result = build(paths.studies, paths.site, paths.config,
                        keep_going=getattr(args, "keep_going", False), cache_dir=paths.cache,
                        jobs=getattr(args, "jobs", 0) or 0, progress=say,
-                       templates_dir=paths.templates)
+                       templates_dir=paths.templates,
+                       archive=Path(args.archive) if getattr(args, "archive", None) else None)
     except SiteBuildError as exc:
         print(str(exc), file=sys.stderr)
         print("build failed: the published site was left as it was", file=sys.stderr)

@@ -366,6 +366,10 @@ class Pages:
                  for s in studies if s.data is not None]
         return self._render("register.md.j2", views=views, dossier=dossier, url=study_url)
 
+    def changes_page(self, comparison, versions: list[dict], current: str) -> str:
+        """The Changes page: a :class:`~extractval.compare.Comparison` (or None) rendered."""
+        return self._render("changes.md.j2", c=comparison, versions=versions, current=current)
+
     def about_page(self, dossier: Dossier) -> str:
         return self._render("about.md.j2", dossier=dossier)
 
@@ -393,13 +397,21 @@ class Pages:
             listing.append({"study": s.study_id, "page": study_url(s.study_id),
                             "status": status,
                             "verdict": None if s.data is None else s.data.get("status"),
-                            "inputs_key": s.key})
+                            "inputs_key": s.key, "runs": run_record(s.data)})
             if s.data is not None:
                 rows.extend(register_rows(self._register(s.data), dossier, REGISTER_URL,
                                           s.key))
         files["results.json"] = results_json(rows, dossier, listing)
         files["results.csv"] = results_csv(rows)
         return files
+
+
+def run_record(d: dict | None) -> list[dict]:
+    """Each run's inputs and status as results.json keeps them (for `extractval compare`)."""
+    from ..compare import RUN_FIELDS
+
+    return [{"run": r["run"], **{k: r.get(k) for k in RUN_FIELDS}}
+            for r in (d or {}).get("run_table") or []]
 
 
 def nav(studies: list[StudyInput]) -> list:
