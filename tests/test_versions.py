@@ -58,7 +58,8 @@ def test_a_move_beyond_the_old_half_width_is_marked():
 
 def test_studies_and_runs_added_removed_changed():
     run = {"run": "R1", "pH": 7.0, "aqueous_mL": 10.0, "organic_mL": 10.0, "status": "used"}
-    old = _doc("dv-a", [], [{"study": "A", "inputs_key": "sv-1", "runs": [run, dict(run, run="R2")]},
+    old = _doc("dv-a", [], [{"study": "A", "inputs_key": "sv-1",
+                             "runs": [run, dict(run, run="R2")]},
                             {"study": "B", "inputs_key": "sv-2", "runs": []}])
     new = _doc("dv-b", [], [{"study": "A", "inputs_key": "sv-3",
                              "runs": [dict(run, pH=7.2), dict(run, run="R3")]},
