@@ -701,6 +701,7 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
     prepared = prepare(studies_dir, templates_dir, config_file, keep_going=keep_going,
                        cache_dir=cache_dir, jobs=jobs, progress=progress, sources=sources,
                        reuse_pages=True)
+    _add_approvals(prepared, templates_dir, studies_dir)
     own = _add_versions(prepared, templates_dir, site_dir, archive)
     t1 = time.perf_counter()
     site_dir.parent.mkdir(parents=True, exist_ok=True)
@@ -734,6 +735,26 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
     t2 = time.perf_counter()
     return BuildResult(site_dir, prepared, t2 - t0,
                        {"studies and pages": t1 - t0, "site generator": t2 - t1})
+
+
+def _add_approvals(prepared: Prepared, templates_dir: Path, studies_dir: Path | None) -> None:
+    """The Review and approval page from approvals.yaml (extractval.approvals); a malformed
+    file stops the build with its located errors."""
+    from .approvals import approval_rows, read_approvals
+
+    approvals, errors = ([], []) if studies_dir is None else read_approvals(Path(studies_dir))
+    if errors:
+        raise SiteBuildError("\n".join(errors) + "\nthe site was not built; correct "
+                             "approvals.yaml")
+    keys = {o.study_id: o.key for o in prepared.outcomes}
+    try:
+        page = Pages(templates_dir).approvals_page(approval_rows(approvals, keys), keys)
+    except TemplateProblem as exc:
+        raise SiteBuildError(f"a page template failed: {exc}") from None
+    prepared.files["approvals.md"] = page.encode("utf-8")
+    at = next((i for i, item in enumerate(prepared.nav) if "About this dossier" in item),
+              len(prepared.nav))
+    prepared.nav.insert(at, {"Review and approval": "approvals.md"})
 
 
 def _add_versions(prepared: Prepared, templates_dir: Path, site_dir: Path,

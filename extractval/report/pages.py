@@ -370,6 +370,11 @@ class Pages:
         """The Changes page: a :class:`~extractval.compare.Comparison` (or None) rendered."""
         return self._render("changes.md.j2", c=comparison, versions=versions, current=current)
 
+    def approvals_page(self, rows: list, keys: dict[str, str]) -> str:
+        """The Review and approval page: ApprovalRows and each study's inputs key now."""
+        return self._render("approvals.md.j2", rows=rows, studies=sorted(keys.items()),
+                            url=study_url)
+
     def about_page(self, dossier: Dossier) -> str:
         return self._render("about.md.j2", dossier=dossier)
 
