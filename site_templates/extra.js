@@ -54,4 +54,19 @@
       fallback(button, text);
     }
   });
+
+  // a printed copy shows the folded parts too; they fold again afterwards
+  var opened = [];
+  window.addEventListener("beforeprint", function () {
+    var folded = document.querySelectorAll("details:not([open])");
+    for (var i = 0; i < folded.length; i++) {
+      folded[i].setAttribute("open", "");
+      opened.push(folded[i]);
+    }
+  });
+  window.addEventListener("afterprint", function () {
+    while (opened.length) {
+      opened.pop().removeAttribute("open");
+    }
+  });
 })();

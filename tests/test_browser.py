@@ -230,6 +230,41 @@ def test_runs_table_scrolls_with_its_header_visible(served, browser_context, dem
     page.close()
 
 
+def test_a_study_prints_to_pdf_with_its_running_head(served, browser_context, demo_ids):
+    """Chromium's print of a study page (Playwright page.pdf, A4 from the page's CSS): every
+    page names the study, the dossier version and its number "Page i of N"; no navigation
+    is printed; the text holds the study's log K as the register shows it."""
+    import io
+    import json
+    import urllib.request
+
+    try:
+        from pypdf import PdfReader
+    except ImportError:
+        _unavailable("the pypdf package is not installed (pip install -e '.[test]')")
+    study_id = demo_ids[0]
+    with urllib.request.urlopen(f"{served}results.json") as fh:
+        doc = json.load(fh)
+    log_k = next(r["display"] for r in doc["numbers"] if r["id"] == f"{study_id}/logK")
+    page = browser_context.new_page()
+    page.goto(f"{served}studies/{study_id}/")
+    page.emulate_media(media="print")
+    page.evaluate("window.dispatchEvent(new Event('beforeprint'))")   # as a browser does
+    reader = PdfReader(io.BytesIO(page.pdf(prefer_css_page_size=True)))
+    n = len(reader.pages)
+    assert 3 <= n <= 60, n
+    texts = [p.extract_text() for p in reader.pages]
+    for i, text in enumerate(texts, 1):
+        assert f"Study {study_id}" in text, i
+        assert f"Dossier {doc['dossier_version']}" in text, i
+        assert f"Page {i} of {n}" in text, i
+    whole = "\n".join(texts)
+    assert log_k in whole and "log K" in whole
+    assert "Number register" not in texts[0].split("\n")[0]      # no navigation on top
+    assert "Error model" in whole and "Residual SD" in whole    # folded parts printed
+    page.close()
+
+
 def test_no_request_left_127_0_0_1(served, browser_context):
     """Runs last in this module: every request the pages made, fonts and scripts included."""
     page = browser_context.new_page()

@@ -80,7 +80,24 @@ def environment(templates_dir: Path) -> jinja2.Environment:
         trim_blocks=True, lstrip_blocks=True)
     env.filters["text"] = md_text
     env.filters["attr"] = html_attr
+    env.filters["css_string"] = css_string
     return env
+
+
+def css_string(text) -> Markup:
+    """Text for inside a double-quoted CSS string in a <style> block: quotes, backslashes,
+    line breaks and '<' escaped as CSS escapes, so nothing ends the string or the block.
+
+    >>> print(css_string('A"B</style>'))
+    A\\22 B\\3c /style\\3e
+    """
+    out = []
+    for ch in str(text):
+        if ch in '"\\<>&\n\r' or ord(ch) < 32:
+            out.append(f"\\{ord(ch):x} ")
+        else:
+            out.append(ch)
+    return Markup("".join(out))
 
 
 # -- one study ----------------------------------------------------------------------------------
