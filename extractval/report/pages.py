@@ -31,6 +31,8 @@ from .text import html_attr, md_text
 
 #: the dossier's Markdown files besides the study pages
 INDEX, REGISTER, ABOUT = "index.md", "register.md", "about.md"
+#: studies of one analyte in several solvents, side by side (extractval.solvent_choice)
+SOLVENTS = "solvents.md"
 CSS_SOURCE, CSS_PATH = "extra.css", "assets/extractval.css"
 #: the copy-to-clipboard script: local, so it works with no network
 JS_SOURCE, JS_PATH = "extra.js", "assets/extractval.js"
@@ -184,8 +186,12 @@ class StudyView:
         n = q.get(statistic) if q else None
         if n is None:
             return Markup("")
+        # a page of one study names numbers without its id, a page of many with it (and
+        # leaves the anchors to the study page, where each number has its one anchor)
         return copy_button(n.identifier, self.citation(q, n), self.root + REGISTER_URL,
-                           anchor=n.anchor, shown=n.identifier.split("/", 1)[-1])
+                           anchor=None if self.tag_study else n.anchor,
+                           shown=n.identifier if self.tag_study else
+                           n.identifier.split("/", 1)[-1])
 
     def citation(self, q: Quantity, n) -> str:
         return q.citation(n, self.dossier.version, self.dossier.software, self.key)
@@ -392,6 +398,19 @@ class Pages:
         return self._render("approvals.md.j2", rows=rows, studies=sorted(keys.items()),
                             url=study_url)
 
+    def solvents_page(self, studies: list[StudyInput], dossier: Dossier) -> str:
+        """Studies of one analyte in different solvents, side by side; each number through
+        its own study's register (the identifiers of the study pages)."""
+        from ..solvent_choice import BEST_RULE, comparisons
+        from ..solvents import Q3C
+
+        views = {s.study_id: StudyView(s.data, dossier, self._register(s.data), tag_study=True,
+                                       trace=self.trace, key=s.key, root="../")
+                 for s in studies if s.data is not None}
+        groups = comparisons([s.data for s in studies if s.data is not None])
+        return self._render("solvents.md.j2", groups=groups, views=views, dossier=dossier,
+                            url=study_url, best_rule=BEST_RULE, q3c_source=Q3C)
+
     def about_page(self, dossier: Dossier) -> str:
         return self._render("about.md.j2", dossier=dossier)
 
@@ -423,7 +442,12 @@ class Pages:
             if s.data is not None:
                 rows.extend(register_rows(self._register(s.data), dossier, REGISTER_URL,
                                           s.key))
-        files["results.json"] = results_json(rows, dossier, listing)
+        groups = solvent_groups(studies)
+        if groups:
+            files[SOLVENTS] = self.solvents_page(studies, dossier).encode()
+        files["results.json"] = results_json(rows, dossier, listing,
+                                             {"solvent_comparison": [g.to_dict()
+                                                                     for g in groups]})
         files["results.csv"] = results_csv(rows)
         return files
 
@@ -436,10 +460,19 @@ def run_record(d: dict | None) -> list[dict]:
             for r in (d or {}).get("run_table") or []]
 
 
+def solvent_groups(studies: list[StudyInput]) -> list:
+    """The analytes studied in two or more solvents (extractval.solvent_choice)."""
+    from ..solvent_choice import comparisons
+
+    return comparisons([s.data for s in studies if s.data is not None])
+
+
 def nav(studies: list[StudyInput]) -> list:
-    """The site's navigation, in the plain structure MkDocs' ``nav`` setting takes."""
+    """The site's navigation, in the plain structure MkDocs' ``nav`` setting takes; the
+    "Solvents compared" page only when an analyte was studied in two or more solvents."""
     return [{"Overview": INDEX},
             {"Studies": [{safe_name(s.study_id): study_page_path(s.study_id)}
                          for s in sorted(studies, key=lambda s: s.study_id)]},
+            *([{"Solvents compared": SOLVENTS}] if solvent_groups(studies) else []),
             {"Number register": REGISTER},
             {"About this dossier": ABOUT}]

@@ -254,7 +254,30 @@ def study_register(d: dict) -> list[Quantity]:
                       VALUE_CI, "pct", d))
     out.extend(_calibration_register(sid, d))
     out.extend(_next_runs_register(sid, d))
+    out.extend(_solvent_register(sid, d))
     return [q for q in out if q is not None]
+
+
+def _solvent_register(sid: str, d: dict) -> list[Quantity | None]:
+    """The ICH Q3C(R8) class (and class 2 limit) of each solvent of the table that the study's
+    organic phase names: ``<study>/solvent/<name>/ich_q3c_class``, ``.../ich_q3c_limit_ppm``."""
+    from ..solvent_choice import solvent_quantity
+
+    out: list[Quantity | None] = []
+    for i, s in enumerate((d.get("solvent") or {}).get("solvents") or []):
+        facts = s["facts"]
+        base = ["solvent", "solvents", i, "facts"]
+        if facts["ich_q3c_class"]["value"] is not None:
+            out.append(_q(sid, solvent_quantity(s["name"], "ich_q3c_class"),
+                          f"ICH Q3C(R8) residual-solvent class of {s['name']}", "",
+                          facts["ich_q3c_class"]["source"], base + ["ich_q3c_class"],
+                          ("value",), "int", d))
+        if facts.get("ich_q3c_limit_ppm"):
+            out.append(_q(sid, solvent_quantity(s["name"], "ich_q3c_limit_ppm"),
+                          f"ICH Q3C(R8) concentration limit of {s['name']} (class 2)", "ppm",
+                          facts["ich_q3c_limit_ppm"]["source"], base + ["ich_q3c_limit_ppm"],
+                          ("value",), "g", d))
+    return out
 
 
 _CURVE_PARAMETER_TEXT = {"intercept": "y-intercept", "slope": "slope",
@@ -538,13 +561,17 @@ def register_rows(quantities: list[Quantity], dossier: Dossier, page: str,
     return rows
 
 
-def results_json(rows: list[dict], dossier: Dossier, studies: list[dict]) -> bytes:
+def results_json(rows: list[dict], dossier: Dossier, studies: list[dict],
+                 extra: dict | None = None) -> bytes:
+    """The export: provenance, the studies, every number's row, and ``extra`` keys (e.g.
+    ``solvent_comparison``, which names numbers by their identifiers)."""
     doc = {
         "dossier_version": dossier.version,
         "software": dossier.software,
         "build_date": dossier.build_date,
         "studies": studies,
         "numbers": rows,
+        **(extra or {}),
     }
     return (json.dumps(doc, indent=1, ensure_ascii=True, allow_nan=False) + "\n").encode()
 
