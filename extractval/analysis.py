@@ -450,7 +450,8 @@ def _impurity_fit(imp, ph_tolerance: float = PH_TOLERANCE) -> dict:
 def fit_study(study: Study) -> StudyReport:
     """Fit the study's model and predict its procedures. Never raises for data problems."""
     obs, outcomes = build_observations(study.runs, study.replicate_pH_tolerance)
-    warnings = [str(p) for p in study.warnings]
+    # located input warnings without their 'warning:' (the list says what they are)
+    warnings = [p.text() for p in study.warnings]
     for o in outcomes:
         if o.status == "not usable":
             warnings.append(f"{o.run.location}: run {o.run.run_id!r} not used in the fit: "

@@ -14,7 +14,7 @@ import threading
 from pathlib import Path
 
 from . import __version__
-from .errors import Problem, StudyError
+from .errors import Problem, StudyError, grouped_lines
 
 
 def _discover(paths: list[str]) -> tuple[list[Path], list[Problem]]:
@@ -45,7 +45,9 @@ def cmd_check(args) -> int:
         study, found = check_study(folder)
         errors = [p for p in found if p.severity == "error"]
         n_err += len(errors)
-        _print_problems(found)
+        # warnings that say the same about several runs: one line naming every run
+        for line in grouped_lines(found):
+            print(line, file=sys.stderr)
         if errors:
             print(f"{folder.name}: {len(errors)} error(s), "
                   f"{len(found) - len(errors)} warning(s)", file=sys.stderr)
@@ -73,7 +75,7 @@ def cmd_fit(args) -> int:
         if args.json:
             sys.stdout.write(json.dumps(data, allow_nan=False) + "\n")
         else:
-            sys.stdout.write(render_summary(data) + "\n")
+            sys.stdout.write(render_summary(data, found) + "\n")
         sys.stdout.flush()
     return status
 

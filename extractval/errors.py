@@ -52,10 +52,12 @@ class Problem:
         return ", ".join(parts)
 
     def __str__(self) -> str:
-        text = f"{self.severity}: "
+        return f"{self.severity}: {self.text()}"
+
+    def text(self) -> str:
+        """The located message without its severity (where a list already says which)."""
         where = self.where()
-        if where:
-            text += f"{where}: "
+        text = f"{where}: " if where else ""
         text += self.message
         if self.found is not None:
             text += f"; found {self.found!r}"
@@ -65,6 +67,55 @@ class Problem:
 
     def to_dict(self) -> dict:
         return {k: v for k, v in asdict(self).items() if v is not None}
+
+
+def grouped_lines(problems) -> list[str]:
+    """The problems as lines, one per problem, except that warnings saying the same thing
+    about several runs of one file and column become one line listing every run (with its
+    line or row and what was found there), at the place of the first.
+
+    Errors stay one per line: each must be fixed where it is.
+
+    >>> w = [Problem("recovery above 100 %", file="r.csv", line=n, run=r, column="found",
+    ...              found=f, expected="at most 100 %", severity="warning")
+    ...      for n, r, f in ((3, "R2", "102 %"), (5, "R4", "104 %"))]
+    >>> print(grouped_lines(w)[0])  # doctest: +NORMALIZE_WHITESPACE
+    warning: r.csv, column 'found': recovery above 100 % in 2 runs: R2 (line 3, found '102 %'),
+    R4 (line 5, found '104 %'); expected at most 100 %
+    """
+    def key(p: Problem):
+        if p.severity != "warning" or p.run is None:
+            return None
+        return (p.file, p.sheet, p.column, p.key, p.message, p.expected)
+
+    groups: dict = {}
+    for p in problems:
+        k = key(p)
+        if k is not None:
+            groups.setdefault(k, []).append(p)
+    out: list[str] = []
+    for p in problems:
+        k = key(p)
+        same = groups.get(k) if k is not None else None
+        if not same or len(same) == 1:
+            out.append(str(p))
+            continue
+        if same[0] is not p:
+            continue
+        head = Problem(p.message, file=p.file, sheet=p.sheet, column=p.column, key=p.key,
+                       severity=p.severity)
+        runs = []
+        for q in same:
+            at = ", ".join(x for x in (f"line {q.line}" if q.line is not None else "",
+                                       f"row {q.row}" if q.row is not None else "",
+                                       f"found {q.found!r}" if q.found is not None else "") if x)
+            runs.append(f"{q.run}" + (f" ({at})" if at else ""))
+        text = f"{head.severity}: {head.where()}: {p.message} in {len(same)} runs: " \
+            + ", ".join(runs)
+        if p.expected is not None:
+            text += f"; expected {p.expected}"
+        out.append(text)
+    return out
 
 
 @dataclass

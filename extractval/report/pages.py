@@ -25,7 +25,8 @@ from markupsafe import Markup
 from .plots import plot_name
 from ..analysis import ONE_PHASE_PLOT_RANGE
 from ..formats import is_bound
-from .register import (Dossier, Quantity, criterion_style, fmt_number, pointer, register_rows,
+from .register import (CRITERION_LABELS, Dossier, Quantity, criterion_style, fmt_number,
+                       pointer, register_rows, study_status,
                        resolve, results_csv, results_json, safe_name, study_register)
 from .text import html_attr, md_text
 
@@ -267,32 +268,6 @@ def all_verdicts(d: dict) -> list[dict]:
     for pr in d.get("procedures", []):
         out.extend(pr.get("verdicts") or [])
     return out
-
-
-def study_status(d: dict) -> tuple[str, str]:
-    """(css class, words) for a study's state: the engine's status and its words
-    (``status``, ``status_text``), or why there are none."""
-    if d.get("problems"):
-        return "bad", "not fitted"
-    status, text = d.get("status"), d.get("status_text")
-    if text and status in ("pass", "fail", "not judged"):
-        css = {"pass": "good", "fail": "bad", "not judged": "warn"}[status]
-        return css, text
-    warn = len(d.get("warnings", []))
-    if warn:
-        return "warn", f"fitted, {warn} warning{'s' if warn != 1 else ''} to read"
-    return "good", "fitted"
-
-
-CRITERION_LABELS = {
-    "recovery_pct": "Recovery at the worst case inside the tolerances (%)",
-    "max_rsd_pct": "Repeatability, pooled RSD (%)",
-    "mass_balance_pct": "Mass balance of every run (%)",
-    "ratio_agreement_log": "Agreement of log D between volume ratios",
-    "lack_of_fit": "Lack of fit (p value)",
-    "aoac_recovery_pct": "AOAC recovery range for the analyte level (%)",
-    "horrat_r": "HorRat(r), repeatability against the Horwitz value",
-}
 
 
 SYSTEM_LABELS = {"aqueous": "Aqueous phase", "organic": "Organic phase (solvent)",

@@ -66,6 +66,32 @@ CRITERION_STYLES = {"recovery_pct": "pct", "aoac_recovery_pct": "pct", "horrat_r
                     "ratio_agreement_log": "log"}
 
 
+def study_status(d: dict) -> tuple[str, str]:
+    """(css class, words) for a study's state: the engine's status and its words
+    (``status``, ``status_text``), or why there are none."""
+    if d.get("problems"):
+        return "bad", "not fitted"
+    status, text = d.get("status"), d.get("status_text")
+    if text and status in ("pass", "fail", "not judged"):
+        css = {"pass": "good", "fail": "bad", "not judged": "warn"}[status]
+        return css, text
+    warn = len(d.get("warnings", []))
+    if warn:
+        return "warn", f"fitted, {warn} warning{'s' if warn != 1 else ''} to read"
+    return "good", "fitted"
+
+
+CRITERION_LABELS = {
+    "recovery_pct": "Recovery at the worst case inside the tolerances (%)",
+    "max_rsd_pct": "Repeatability, pooled RSD (%)",
+    "mass_balance_pct": "Mass balance of every run (%)",
+    "ratio_agreement_log": "Agreement of log D between volume ratios",
+    "lack_of_fit": "Lack of fit (p value)",
+    "aoac_recovery_pct": "AOAC recovery range for the analyte level (%)",
+    "horrat_r": "HorRat(r), repeatability against the Horwitz value",
+}
+
+
 def criterion_style(criterion: str) -> str:
     return CRITERION_STYLES.get(criterion, "g")
 

@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
-from ..formats import fmt_fraction, fmt_pct
+from ..errors import grouped_lines
+from ..formats import fmt_fraction, fmt_number, fmt_pct
+from .register import CRITERION_LABELS, criterion_style, study_status
 
 
 def fmt(x, digits: int = 3) -> str:
@@ -12,7 +14,13 @@ def fmt(x, digits: int = 3) -> str:
     return f"{x:.{digits}f}"
 
 
-def render_summary(d: dict) -> str:
+def render_summary(d: dict, input_warnings=()) -> str:
+    """The study's summary for the terminal, from its report dict.
+
+    ``input_warnings`` are the located Problems behind the first of ``d["warnings"]`` (what
+    reading the study found); given, those that say the same thing about several runs are
+    printed as one line listing every run (errors.grouped_lines).
+    """
     lines = [f"== {d['study']}: {d['title']}",
              f"   analyte {d['analyte']}, model {d['model']}"
              + (f" (requested {d['model_requested']})" if d["model_requested"] != d["model"]
@@ -39,10 +47,64 @@ def render_summary(d: dict) -> str:
         left = f", left in the water {fmt_fraction(left)}" if left is not None else ""
         lines.append(f"   {pr['id']}: recovery {fmt_pct(rec['value'])} % "
                      f"[{fmt_pct(lo)}, {fmt_pct(hi)}]{one_run}{left}  ({pr['label']})")
+    lines.extend(verdict_lines(d))
     lines.extend(calibration_lines(d.get("calibration")))
-    for w in d["warnings"]:
-        lines.append(f"   warning: {w}")
+    lines.extend(warning_lines(d, input_warnings))
     return "\n".join(lines)
+
+
+def _limit(limit) -> str:
+    if limit is None:
+        return "none set"
+    if isinstance(limit, list):
+        return f"{fmt_number(limit[0], 'g')} to {fmt_number(limit[1], 'g')}"
+    return fmt_number(limit, "g")
+
+
+def _verdict_line(owner: str, v: dict) -> str:
+    label = CRITERION_LABELS.get(v["criterion"], v["criterion"])
+    value = "none" if v.get("value") is None else fmt_number(v["value"],
+                                                               criterion_style(v["criterion"]))
+    basis = " (default)" if v.get("basis") == "default" else ""
+    line = (f"     {owner:<6} {label}{basis}: {v.get('outcome') or v['status']}; "
+            f"value {value}; limit {_limit(v.get('limit'))}")
+    if v["status"] not in ("pass", "fail") and v.get("detail"):
+        line += f" ({v['detail']})"
+    return line
+
+
+def verdict_lines(d: dict) -> list[str]:
+    """The study's status in the dossier's words, every verdict (criterion, outcome, value,
+    limit) and each procedure's worst case; nothing when the study was not fitted."""
+    if d.get("problems"):
+        return []
+    _, text = study_status(d)
+    out = [f"   status: {text}"]
+    rows = [("study", v) for v in d.get("verdicts") or []]
+    rows += [(pr["id"], v) for pr in d["procedures"] for v in pr.get("verdicts") or []]
+    if rows:
+        out.append("   verdicts (criterion: outcome; value; limit):")
+        out.extend(_verdict_line(owner, v) for owner, v in rows)
+    for pr in d["procedures"]:
+        wc = pr.get("worst_case")
+        if not wc:
+            continue
+        solvent = " + ".join(fmt_number(v, "mL") for v in wc["organic_mL"])
+        out.append(f"   {pr['id']} worst case: lower 95 % end "
+                   f"{fmt_number(wc.get('recovery_pct'), 'pct')} % (predicted "
+                   f"{fmt_number(wc.get('predicted_recovery_pct'), 'pct')} %) at pH "
+                   f"{fmt_number(wc['pH'], 'pH')}, {fmt_number(wc['aqueous_mL'], 'mL')} mL "
+                   f"water, solvent {solvent} mL")
+    return out
+
+
+def warning_lines(d: dict, input_warnings=()) -> list[str]:
+    """Every warning once, prefixed 'warning:'; repeated input warnings grouped by run."""
+    problems = [p for p in input_warnings if p.severity == "warning"]
+    texts = {p.text() for p in problems}
+    out = [f"   {line}" for line in grouped_lines(problems)]
+    out += [f"   warning: {w}" for w in d["warnings"] if w not in texts]
+    return out
 
 
 def calibration_lines(cal: dict | None) -> list[str]:
