@@ -1,5 +1,6 @@
-"""Engine speed: one ~50-run study, 60 studies through one `extractval fit --json` call, and
-ampholyte studies measured at too few pH values to determine all three parameters.
+"""Engine speed: one ~50-run study, 60 studies through one `extractval fit --json` call,
+ampholyte studies measured at too few pH values to determine all three parameters, and a
+100-run study given as instrument responses (2 calibration sequences, a suitability table).
 
 Run:  python benchmarks/bench_engine.py
 Prints a small table; the README quotes its figures. Timings are wall-clock medians unless
@@ -102,11 +103,91 @@ def time_few_pH_ampholytes(n_studies: int = 30) -> dict:
             "open_parameter_ends": open_ends}
 
 
+def instrument_study_folder(folder: Path, rng) -> Path:
+    """A 100-run base study (10 pH x 5 ratios x 2) written as instrument responses: two
+    sequences with their own straight calibration line (8 levels in duplicate, 2 % noise),
+    runs alternating between them, and a suitability table of 6 injections per sequence."""
+    import csv
+
+    pH = np.round(np.linspace(6.0, 11.0, 10), 2)
+    s = simulated_study("BENCH-RESP", "base", (2.2, 8.4), pH, PROCS,
+                        targets=Targets(recovery_pct=95), sigma=0.03, form="both",
+                        ratios=(0.25, 0.5, 1.0, 2.0, 4.0), replicates=2, rng=rng)
+    write_study_folder(s, folder)
+    lines = {"S1": (150.0, 2400.0), "S2": (90.0, 2650.0)}          # intercept, slope
+    amounts = [a for r in s.runs for a in (r.found_aqueous, r.found_organic)]
+    levels = np.geomspace(0.8 * min(amounts), 1.1 * max(amounts), 8)
+    with open(folder / "calibration.csv", "w", newline="") as fh:
+        w = csv.writer(fh)
+        w.writerow(["standard", "level", "response", "sequence"])
+        for seq, (a, b) in lines.items():
+            for i, x in enumerate(levels):
+                for k in range(2):
+                    y = (a + b * x) * (1 + 0.02 * rng.standard_normal())
+                    w.writerow([f"C{i + 1}-{k + 1}", repr(float(x)), repr(float(y)), seq])
+    with open(folder / "runs.csv", "w", newline="") as fh:
+        w = csv.writer(fh)
+        w.writerow(["run", "sequence", "pH", "aqueous_mL", "organic_mL", "spiked",
+                    "response_aqueous", "response_organic", "replicate"])
+        for k, r in enumerate(s.runs):
+            seq = "S1" if k % 2 == 0 else "S2"
+            a, b = lines[seq]
+            w.writerow([r.run_id, seq, r.pH, r.aqueous_mL, r.organic_mL, r.spiked,
+                        repr(float(a + b * r.found_aqueous)), repr(float(a + b * r.found_organic)),
+                        r.replicate])
+    with open(folder / "suitability.csv", "w", newline="") as fh:
+        w = csv.writer(fh)
+        w.writerow(["sequence", "injection", "rt_analyte", "rt_neighbour", "rt_unretained",
+                    "w_half_analyte", "w_half_neighbour", "w_5pct", "f_5pct", "response"])
+        for seq in lines:
+            for i in range(6):
+                j = 1 + 0.004 * rng.standard_normal(4)
+                w.writerow([seq, f"I{i + 1}"] + [f"{x:.4g}" for x in (
+                    6.20 * j[0], 5.40 * j[1], 1.00, 0.19 * j[2], 0.17, 0.44, 0.16 * j[3],
+                    50000 * (1 + 0.005 * rng.standard_normal()))])
+    y = (folder / "study.yaml").read_text()
+    (folder / "study.yaml").write_text(y.replace("runs: runs.csv\n", "runs: runs.csv\n"
+                                                 "calibration: calibration.csv\n"
+                                                 "suitability: suitability.csv\n"))
+    return folder
+
+
+def time_instrument_study(n_rep: int = 15) -> dict:
+    """Reading (tables, both calibration fits, suitability), fit, the full report dict and its
+    JSON: what `extractval fit --json` computes for the study, start-up aside."""
+    import json
+
+    from extractval.study import load_study
+
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = instrument_study_folder(Path(tmp) / "BENCH-RESP", np.random.default_rng(11))
+        load_study(folder)                        # first call: imports, statsmodels set-up
+        read, full = [], []
+        for _ in range(n_rep):
+            t0 = time.perf_counter()
+            st = load_study(folder)
+            t1 = time.perf_counter()
+            d = fit_study(st).to_dict()
+            json.dumps(d)
+            t2 = time.perf_counter()
+            read.append(t1 - t0)
+            full.append(t2 - t0)
+    return {"runs": len(st.runs), "curves": len(st.calibration.curves),
+            "sequences": len(st.suitability.report.sequences), "used": d["runs"]["used"],
+            "read_ms": 1e3 * statistics.median(read), "full_ms": 1e3 * statistics.median(full),
+            "full_max_ms": 1e3 * max(full)}
+
+
 def main() -> None:
     one = time_one()
     print(f"one study, {one['runs']} runs: fit + intervals + procedure predictions "
           f"{one['fit_intervals_predictions_ms']:.0f} ms; with log D band, procedure design "
           f"and design-space map {one['with_band_design_map_ms']:.0f} ms (median)")
+    inst = time_instrument_study()
+    print(f"one study of {inst['runs']} runs as responses ({inst['curves']} calibration curves, "
+          f"{inst['sequences']} suitability sequences, {inst['used']} runs fitted): read "
+          f"{inst['read_ms']:.0f} ms, full report with JSON {inst['full_ms']:.0f} ms (median; "
+          f"max {inst['full_max_ms']:.0f} ms; goal < 150 ms)")
     many = time_cli()
     print(f"`extractval fit --json` on {many['studies']} studies: "
           f"{many['wall_s_including_startup']:.1f} s wall including start-up "

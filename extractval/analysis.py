@@ -95,6 +95,11 @@ def build_observations(runs, ph_tolerance: float = PH_TOLERANCE,
         if run.excluded:
             outcomes.append(RunOutcome(run, "excluded", run.excluded))
             continue
+        if run.suitability:
+            # never silently used: visible in run_table, "not usable", with the reason
+            outcomes.append(RunOutcome(run, "not usable", f"{run.suitability}: left out of "
+                                                          "the fit"))
+            continue
         got = _observation(run)
         if isinstance(got, str):
             # a run whose responses fell outside the calibration says so, not "nothing found"
@@ -205,7 +210,7 @@ class StudyReport:
                     "summary": {"status": "not judged", "text": "not fitted", "counts": {}}}
         targets = self.study.targets
         study_v, details = study_verdicts(self.fit, self.outcomes, targets)
-        study_v = study_v + calibration_verdicts(self.study)
+        study_v = study_v + calibration_verdicts(self.study) + suitability_verdicts(self.study)
         proc_v = [procedure_verdicts(p, d, targets, self.outcomes)
                   for p, d in zip(self.predictions, self.designs)]
         summary = status_summary(study_v + [v for vs in proc_v for v in vs])
@@ -327,6 +332,8 @@ class StudyReport:
                 row["fitted_log_d"] = clean(float(self.fit.log_d(r.pH)))
             if self.study.calibration is not None:
                 row.update(calibration_run_fields(r))
+            if self.study.suitability is not None:
+                row.update(suitability_run_fields(r, self.study.suitability))
             rows.append(row)
         return rows
 
@@ -393,6 +400,8 @@ class StudyReport:
         out["next_runs"] = None if self.next_runs is None else self.next_runs.to_dict()
         if s.calibration is not None:
             out["calibration"] = self.calibration_dict()
+        if s.suitability is not None:
+            out["suitability"] = s.suitability.to_dict()
         out["solvent"] = solvent_report(s.system.get("organic"), s.procedures,
                                         s.system.get("aqueous"))
         out["run_table"] = self.run_rows()
@@ -452,7 +461,19 @@ def fit_study(study: Study) -> StudyReport:
     obs, outcomes = build_observations(study.runs, study.replicate_pH_tolerance)
     # located input warnings without their 'warning:' (the list says what they are)
     warnings = [p.text() for p in study.warnings]
+    if study.suitability is not None:
+        # one warning per failing sequence, naming its runs (not one per run)
+        left_out = {o.run.run_id for o in outcomes
+                    if o.status == "not usable" and o.run.suitability}
+        for seq, reason in study.suitability.report.failed().items():
+            ids = [r for r in study.suitability.runs.get(seq, ()) if r in left_out]
+            warnings.append(f"{study.suitability.settings.shown}: sequence {seq!r} fails system "
+                            f"suitability ({reason}); "
+                            + (f"its {len(ids)} run(s) ({', '.join(ids)}) are left out of the "
+                               "fit" if ids else "no fitted run was quantified in it"))
     for o in outcomes:
+        if o.status == "not usable" and o.run.suitability:
+            continue
         if o.status == "not usable":
             warnings.append(f"{o.run.location}: run {o.run.run_id!r} not used in the fit: "
                             f"{o.reason}")
@@ -540,6 +561,41 @@ def calibration_verdicts(study: Study) -> list:
         out.append(Verdict(f"calibration {c.id} (ICH M10)", acc["status"],
                            100.0 * acc["standards_passing"] / acc["standards"], 75.0, detail))
     return out
+
+
+def suitability_verdicts(study: Study) -> list:
+    """One verdict per sequence of the suitability table: failing when any of its criteria
+    fails (the criteria themselves are under to_dict()["suitability"])."""
+    if study.suitability is None:
+        return []
+    from .acceptance import verdict
+
+    out = []
+    for seq in study.suitability.report.sequences:
+        judged = [v for v in seq.verdicts if v.status != "not judged"]
+        basis = "target" if any(v.basis == "target" for v in seq.verdicts) else "default"
+        if seq.status == "fail":
+            detail = "; ".join(seq.failures)
+        elif judged:
+            detail = (f"{sum(v.status == 'pass' for v in judged)} of {len(seq.verdicts)} "
+                      "criteria met" + (f", {len(seq.verdicts) - len(judged)} not judged"
+                                        if len(judged) < len(seq.verdicts) else ""))
+        else:
+            detail = "no criterion could be judged from the table"
+        n = len(study.suitability.runs.get(seq.sequence, ()))
+        detail += f" ({n} run{'s' if n != 1 else ''} in the sequence)"
+        out.append(verdict(seq.status, f"system suitability {seq.sequence}", None, None,
+                           detail, basis))
+    return out
+
+
+def suitability_run_fields(run: Run, suit) -> dict:
+    """A run's sequence and its system-suitability outcome, for run_table."""
+    seqs = suit.report.by_sequence()
+    seq = run.sequence or (next(iter(seqs)) if len(seqs) == 1 else None)
+    status = seqs[seq].status if seq in seqs else "not recorded"
+    return {"sequence": run.sequence, "suitability_sequence": seq,
+            "suitability": status, "suitability_reason": run.suitability}
 
 
 def calibration_run_fields(run: Run) -> dict:

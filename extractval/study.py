@@ -59,6 +59,7 @@ import yaml
 
 if TYPE_CHECKING:
     from .calibration_input import CalibrationSet
+    from .suitability_input import SuitabilitySet
 from .errors import Problem, StudyError
 from .replicates import PH_TOLERANCE, precision_groups
 from .tables import (EXTENSIONS, HeaderRules, Location, Table, TableRow, decode_text,
@@ -100,6 +101,9 @@ class Run:
     sequence: str | None = None
     quantities: tuple = ()
     censored: str | None = None
+    #: why the run is left out of the fit: its sequence fails system suitability
+    #: (suitability_input.py); None when it passes, or is not recorded
+    suitability: str | None = None
 
     @property
     def measurement(self) -> str:
@@ -242,6 +246,7 @@ class Study:
     advice: AdviceRequest = field(default_factory=AdviceRequest)
     impurities: tuple[Impurity, ...] = ()
     calibration: CalibrationSet | None = None   # curves, when runs give responses
+    suitability: SuitabilitySet | None = None   # system suitability per sequence, when given
     #: pH units within which runs are replicates (replicates.py; ``replicate_pH_tolerance``)
     replicate_pH_tolerance: float = PH_TOLERANCE
 
@@ -273,7 +278,8 @@ ONE_PHASE_HIGH_PCT = 100.0
 
 _KEYS = {
     "": ("title", "analyte", "system", "runs", "sheet", "header_row", "replicate_pH_tolerance",
-         "targets", "procedures", "advice", "impurities", "calibration"),
+         "targets", "procedures", "advice", "impurities", "calibration", "suitability",
+         "suitability_limits"),
     "analyte": ("name", "model", "ion_pair", "level"),
     "system": ("aqueous", "organic", "temperature_C"),
     "targets": ("recovery_pct", "max_rsd_pct", "mass_balance_pct", "ratio_agreement_log",
@@ -1498,6 +1504,7 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
     impurities = _impurity_records(doc, impurity_specs, table if runs_path else None,
                                    runs, problems)
     calibration, runs = _calibration(doc, entries, folder, runs, problems)
+    suitability, runs = _suitability(doc, entries, folder, runs, problems)
 
     # a replicate label shared by runs at different conditions is named here, once
     problems.extend(precision_groups([r for r in runs if not r.excluded], ph_tolerance).warnings)
@@ -1511,10 +1518,14 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
         inputs += (InputFile(f"{study_id}/"
                              f"{calibration.settings.table.relative_to(folder).as_posix()}",
                              calibration.sha256, "calibration"),)
+    if suitability is not None:
+        inputs += (InputFile(f"{study_id}/{suitability.settings.relative}", suitability.sha256,
+                             "suitability"),)
     warnings = tuple(p for p in problems if p.severity == "warning")
     study = Study(study_id, folder, title, name, model, tuple(runs), tuple(procedures),
                   targets, ion_pair, system, inputs, warnings, advice, tuple(impurities),
-                  calibration=calibration, replicate_pH_tolerance=ph_tolerance)
+                  calibration=calibration, replicate_pH_tolerance=ph_tolerance,
+                  suitability=suitability)
     return study, problems
 
 
@@ -1548,6 +1559,30 @@ def _calibration(doc: _Yaml, entries, folder: Path, runs: list[Run],
                                 expected="response_aqueous / response_organic in the runs"))
     runs = cal_in.quantify_runs(runs, curves, settings, problems)
     return cal_in.CalibrationSet(settings, curves, digest), runs
+
+
+def _suitability(doc: _Yaml, entries, folder: Path, runs: list[Run],
+                 problems: list[Problem]) -> tuple[SuitabilitySet | None, list[Run]]:
+    """The suitability table (suitability_input.py), judged, and its failing runs marked."""
+    if "suitability" not in entries or _is_null(entries["suitability"][1]):
+        if "suitability_limits" in entries and not _is_null(entries["suitability_limits"][1]):
+            doc.report("suitability limits are given but no suitability table",
+                       entries["suitability_limits"][0], "suitability_limits",
+                       severity="warning", expected="'suitability: <file>' in study.yaml, or "
+                                                    "no suitability_limits")
+        return None, runs
+    from . import suitability_input as su_in
+
+    settings = su_in.read_settings(
+        doc, entries, folder,
+        lambda text, node, key: _table_path(doc, text, node, key, folder, "suitability"))
+    limits = su_in.read_limits(doc, entries)
+    if settings is None:
+        return None, runs
+    injections, digest = su_in.read_injections(settings, problems)
+    if injections is None:
+        return None, runs
+    return su_in.judge_runs(settings, injections, limits, runs, problems, digest)
 
 
 def _in_file_order(problems: list[Problem]) -> list[Problem]:

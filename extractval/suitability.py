@@ -1,6 +1,7 @@
 """System suitability of chromatographic sequences: k, alpha, Rs, N, tailing, injection RSD.
 
-Pure functions and records, no I/O: the suitability table is read in :mod:`extractval.method_io`.
+Pure functions and records, no I/O: the suitability table is read in
+:mod:`extractval.suitability_input`.
 
 Formulas (United States Pharmacopeia general chapter <621> Chromatography and European
 Pharmacopoeia 2.2.46 Chromatographic separation techniques; recalled from memory):
@@ -192,6 +193,10 @@ class SuitabilityLimits:
     def source(self, name: str) -> str:
         return "study.yaml" if name in self.from_study else "default (common practice)"
 
+    def basis(self, name: str) -> str:
+        """The verdict basis of a criterion (acceptance.BASES): set by the study or a default."""
+        return "target" if name in self.from_study else "default"
+
     def to_dict(self) -> dict:
         out = {}
         for name in ("resolution_min", "tailing_max", "injection_rsd_max_pct",
@@ -199,6 +204,8 @@ class SuitabilityLimits:
             value = getattr(self, name)
             if value is not None:
                 out[name] = {"value": value, "source": self.source(name)}
+            elif name in self.from_study:
+                out[name] = {"value": None, "source": "switched off in study.yaml"}
         return out
 
 
@@ -284,12 +291,13 @@ def _verdicts(seq: str, worst: dict, rsd: float | None, n_resp: int,
         value = worst.get(name)
         if value is None:
             out.append(verdict("not assessed", f"suitability_{criterion}", None, limit,
-                               f"sequence {seq}: the table gives no inputs for {label}"))
+                               f"sequence {seq}: the table gives no inputs for {label}",
+                               limits.basis(criterion)))
             return
         ok = _at_least(value, limit)
         out.append(verdict("pass" if ok else "fail", f"suitability_{criterion}", value, limit,
                            f"sequence {seq}: smallest {label} {value:{fmt}} "
-                           f"{'>=' if ok else '<'} {limit:g} ({src})"))
+                           f"{'>=' if ok else '<'} {limit:g} ({src})", limits.basis(criterion)))
 
     minimum("resolution_min", "resolution", limits.resolution_min,
             "resolution from the nearest neighbour", ".2f")
@@ -299,13 +307,15 @@ def _verdicts(seq: str, worst: dict, rsd: float | None, n_resp: int,
         if value is None:
             out.append(verdict("not assessed", "suitability_tailing_max", None,
                                limits.tailing_max,
-                               f"sequence {seq}: the table gives no W0.05 and f"))
+                               f"sequence {seq}: the table gives no W0.05 and f",
+                               limits.basis("tailing_max")))
         else:
             ok = _at_most(value, limits.tailing_max)
             out.append(verdict("pass" if ok else "fail", "suitability_tailing_max", value,
                                limits.tailing_max,
                                f"sequence {seq}: largest tailing factor {value:.2f} "
-                               f"{'<=' if ok else '>'} {limits.tailing_max:g} ({src})"))
+                               f"{'<=' if ok else '>'} {limits.tailing_max:g} ({src})",
+                               limits.basis("tailing_max")))
     minimum("plates_min", "plate_number", limits.plates_min, "plate number", ".0f")
     minimum("retention_factor_min", "retention_factor", limits.retention_factor_min,
             "retention factor", ".2f")
@@ -315,18 +325,19 @@ def _verdicts(seq: str, worst: dict, rsd: float | None, n_resp: int,
         if n_resp == 0:
             out.append(verdict("not assessed", "suitability_injection_rsd_max_pct", None, lim,
                                f"sequence {seq}: the table gives no replicate injection "
-                               "responses"))
+                               "responses", limits.basis("injection_rsd_max_pct")))
         elif rsd is None or n_resp < limits.injections_min:
             out.append(verdict("fail", "suitability_injection_rsd_max_pct", rsd, lim,
                                f"sequence {seq}: {n_resp} replicate injection(s); at least "
                                f"{limits.injections_min} are needed "
-                               f"({limits.source('injections_min')})"))
+                               f"({limits.source('injections_min')})",
+                               limits.basis("injection_rsd_max_pct")))
         else:
             ok = _at_most(rsd, lim)
             out.append(verdict("pass" if ok else "fail", "suitability_injection_rsd_max_pct",
                                rsd, lim, f"sequence {seq}: RSD of {n_resp} replicate "
                                f"injections {rsd:.2f} % {'<=' if ok else '>'} {lim:g} % "
-                               f"({src})"))
+                               f"({src})", limits.basis("injection_rsd_max_pct")))
     return out
 
 

@@ -23,6 +23,7 @@ import jinja2
 from markupsafe import Markup
 
 from .plots import plot_name
+from ..acceptance import OUTCOME_WORDS
 from ..analysis import ONE_PHASE_PLOT_RANGE
 from ..formats import is_bound
 from .register import (CRITERION_LABELS, Dossier, Quantity, criterion_style, fmt_number,
@@ -270,6 +271,14 @@ def all_verdicts(d: dict) -> list[dict]:
     return out
 
 
+#: the suitability limits as the System suitability section names them
+LIMIT_WORDS = {"resolution_min": "resolution at least", "tailing_max": "tailing factor at most",
+               "injection_rsd_max_pct": "RSD of replicate injections at most",
+               "injections_min": "replicate injections at least",
+               "plates_min": "plate number at least",
+               "retention_factor_min": "retention factor at least"}
+
+
 SYSTEM_LABELS = {"aqueous": "Aqueous phase", "organic": "Organic phase (solvent)",
                  "temperature_C": "Temperature"}
 TARGET_LABELS = {"recovery_pct": "Target recovery (%)", "max_rsd_pct": "Largest RSD (%)",
@@ -349,7 +358,8 @@ class Pages:
                             criteria=CRITERION_LABELS, criterion_style=criterion_style,
                             one_phase=[round(100 * x) for x in ONE_PHASE_PLOT_RANGE],
                             fact_labels=FACT_LABELS, fact_none=FACT_NONE,
-                            register_url=REGISTER_URL)
+                            register_url=REGISTER_URL, limit_words=LIMIT_WORDS,
+                            outcome_words=OUTCOME_WORDS)
 
     def index_page(self, studies: list[StudyInput], dossier: Dossier, counts: dict) -> str:
         views = [(s, StudyView(s.data, dossier, self._register(s.data), tag_study=True,

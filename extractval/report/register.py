@@ -89,6 +89,11 @@ CRITERION_LABELS = {
     "lack_of_fit": "Lack of fit (p value)",
     "aoac_recovery_pct": "AOAC recovery range for the analyte level (%)",
     "horrat_r": "HorRat(r), repeatability against the Horwitz value",
+    "suitability_resolution_min": "Resolution from the nearest neighbour, smallest",
+    "suitability_tailing_max": "Tailing factor, largest",
+    "suitability_injection_rsd_max_pct": "RSD of replicate injections (%)",
+    "suitability_plates_min": "Plate number, smallest",
+    "suitability_retention_factor_min": "Retention factor, smallest",
 }
 
 
@@ -279,6 +284,7 @@ def study_register(d: dict) -> list[Quantity]:
                       ["outlier_screen", "without_flagged", "procedures", k, "recovery_pct"],
                       VALUE_CI, "pct", d))
     out.extend(_calibration_register(sid, d))
+    out.extend(_suitability_register(sid, d))
     out.extend(_next_runs_register(sid, d))
     out.extend(_solvent_register(sid, d))
     return [q for q in out if q is not None]
@@ -364,6 +370,54 @@ def _calibration_register(sid: str, d: dict) -> list[Quantity | None]:
                               f"{r['run']}, {q['phase']} phase", "", "inverse prediction, "
                               "delta method", ["run_table", i, "quantitation", j, key],
                               ("value",), "g", d))
+    return out
+
+
+#: suitability quantities: key, words, style (the page's digits)
+_SUITABILITY_QUANTITIES = (
+    ("resolution", "resolution from the nearest neighbour", "f2"),
+    ("plate_number", "plate number", "int"),
+    ("tailing_factor", "tailing factor", "f2"),
+    ("retention_factor", "retention factor", "f2"),
+    ("selectivity", "selectivity (alpha)", "f2"),
+)
+
+
+def _suitability_register(sid: str, d: dict) -> list[Quantity | None]:
+    """System suitability: ``suitability/<sequence>/<quantity>`` (the worst injection's value,
+    the one judged: Rs, N, T, and k when a limit is set),
+    ``suitability/<sequence>/injection_rsd_pct`` and per injection
+    ``suitability/<sequence>/<injection>/<quantity>``."""
+    su = d.get("suitability")
+    if not su:
+        return []
+    out: list[Quantity | None] = []
+    method = "USP <621>, Ph. Eur. 2.2.46"
+    for k, seq in enumerate(su["sequences"]):
+        name = f"suitability/{safe_name(seq['sequence'])}"
+        base = ["suitability", "sequences", k]
+        what = f"sequence {seq['sequence']}"
+        judged = ("resolution", "plate_number", "tailing_factor") + (
+            ("retention_factor",) if (su["limits"].get("retention_factor_min") or {}).get(
+                "value") is not None else ())
+        for key, text, style in _SUITABILITY_QUANTITIES:
+            if key not in judged:       # the page's sequence table shows the judged ones
+                continue
+            worst = "largest" if key == "tailing_factor" else "smallest"
+            out.append(_q(sid, f"{name}/{key}", f"{worst} {text} over the injections of {what}",
+                          "", method, base + ["worst", key], ("value",), style, d))
+        out.append(_q(sid, f"{name}/injection_rsd_pct", f"RSD of the replicate standard "
+                      f"injections of {what}", "%", None, base + ["injection_rsd_pct"],
+                      ("value",), "f2", d))
+        for i, inj in enumerate(seq["injections"]):
+            label = safe_name(inj["injection"] or f"injection-{i + 1}")
+            for key, text, style in _SUITABILITY_QUANTITIES:
+                out.append(_q(sid, f"{name}/{label}/{key}", f"{text}, injection "
+                              f"{inj['injection'] or i + 1} of {what}", "", method,
+                              base + ["injections", i, key], ("value",), style, d))
+            out.append(_q(sid, f"{name}/{label}/response", f"response of the standard, "
+                          f"injection {inj['injection'] or i + 1} of {what}", "", None,
+                          base + ["injections", i, "response"], ("value",), "g6", d))
     return out
 
 

@@ -49,6 +49,7 @@ def render_summary(d: dict, input_warnings=()) -> str:
                      f"[{fmt_pct(lo)}, {fmt_pct(hi)}]{one_run}{left}  ({pr['label']})")
     lines.extend(verdict_lines(d))
     lines.extend(calibration_lines(d.get("calibration")))
+    lines.extend(suitability_lines(d.get("suitability")))
     lines.extend(warning_lines(d, input_warnings))
     return "\n".join(lines)
 
@@ -125,4 +126,29 @@ def calibration_lines(cal: dict | None) -> list[str]:
                    f"{acc['levels_passing']}/{acc['levels']} levels pass: {acc['status']}")
     if cal.get("uncertainty"):
         out.append(f"   {cal['uncertainty']['statement']}")
+    return out
+
+
+def suitability_lines(suit: dict | None) -> list[str]:
+    """One line per sequence of the suitability table: worst Rs, N, T, injection RSD, verdict
+    (and, when it fails, the failing criteria and what happened to its runs)."""
+    if not suit:
+        return []
+    out = []
+    for s in suit["sequences"]:
+        w = s["worst"]
+        parts = []
+        if w.get("resolution") is not None:
+            parts.append(f"Rs {w['resolution']:.2f}")
+        if w.get("plate_number") is not None:
+            parts.append(f"N {w['plate_number']:.0f}")
+        if w.get("tailing_factor") is not None:
+            parts.append(f"tailing {w['tailing_factor']:.2f}")
+        if s["injection_rsd_pct"] is not None:
+            parts.append(f"injection RSD {s['injection_rsd_pct']:.2f} % (n {s['n_responses']})")
+        line = (f"   suitability {s['sequence']}: {s['status']}"
+                + (f" ({', '.join(parts)}; worst injection)" if parts else ""))
+        if s["status"] == "fail":
+            line += f"; {len(s['runs'])} run(s) left out of the fit"
+        out.append(line)
     return out
