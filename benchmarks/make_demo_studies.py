@@ -358,6 +358,137 @@ def make_workup(sid: str) -> None:
            WORKUP_YAML.format(solvent=t["solvent"], solvent_name=name).encode("utf-8"))
 
 
+# -- HPA-2026-030: responses, calibration, method recovery, matrix effect, precision --------------
+
+#: truth of the method-validation study (invented values): the amine KRV-517 extracted from
+#: plasma into MTBE; the runs give LC-MS peak areas with an internal standard
+METHOD_TRUTH = {
+    "logK": 2.4, "pKa": 8.8, "seed": 30_2027,
+    "slope": 0.021,               # analyte / IS area ratio per ug in the final extract
+    "is_area": 84_000.0,          # internal-standard peak area in a neat extract
+    "recovery": {"low": 0.885, "mid": 0.905, "high": 0.912},   # absolute recovery
+    "spiked": {"low": 1.5, "mid": 20.0, "high": 45.0},         # ug per sample
+    "mf_analyte": 0.86, "mf_is": 0.87,   # matrix factors of analyte and IS (mean of lots)
+    "lot_sd": 0.05, "is_norm_lot_sd": 0.035,
+    "day_sd": 0.018, "analyst_sd": 0.010, "rep_sd": 0.022,   # relative, on recovery
+    "area_rsd": 0.012,            # injection-to-injection scatter of a peak area
+    "flask_rsd": 0.025,           # scatter of a shake-flask run's amount in a phase
+}
+METHOD_LOTS = ("PL-0311", "PL-0327", "PL-0402", "PL-0419", "PL-0505", "PL-0522")
+METHOD_SEQUENCES = ("SEQ-A", "SEQ-B")
+#: calibration standards (ug in the final extract), in duplicate in each sequence
+METHOD_STANDARDS = (0.2, 0.5, 1.0, 2.5, 10.0, 25.0, 60.0)
+
+METHOD_YAML = """\
+title: KRV-517 from plasma into MTBE, method validation with LC-MS responses (demo data)
+analyte:
+  name: KRV-517
+  model: base
+system:
+  aqueous: 0.05 M phosphate and carbonate buffers; plasma diluted 1 + 1 with pH 10.5 buffer
+  organic: methyl tert-butyl ether, pre-saturated with buffer
+  temperature_C: 22
+runs: runs.csv
+calibration:
+  table: calibration.csv
+  level: amount
+  unit: ug
+targets:
+  recovery_pct: 95
+method_targets:
+  recovery_rsd_max_pct: 15
+  repeatability_rsd_max_pct: 10
+  intermediate_rsd_max_pct: 15
+procedures:
+  - id: P1
+    label: One 6 mL portion of MTBE at pH 10.5 (the SOP)
+    pH: 10.5
+    aqueous_mL: 2
+    organic_mL: [6]
+"""
+
+
+def make_method() -> None:
+    """Shake-flask runs (both phases as peak areas) in two sequences, and the method runs:
+    pre-spiked samples in six plasma lots at three levels on three days by two analysts,
+    post-spiked blank extracts of every lot at every level, neat standards."""
+    t = METHOD_TRUTH
+    sid = "HPA-2026-030"
+    rng = np.random.default_rng(t["seed"])
+
+    def areas(amount: float, mf: float = 1.0, mf_is: float = 1.0) -> tuple[float, float]:
+        e = 1.0 + t["area_rsd"] * rng.standard_normal(2)
+        is_area = t["is_area"] * mf_is * e[1]
+        return t["slope"] * amount * mf * t["is_area"] * e[0], is_area
+
+    cal = ["standard,level,response,is_response,sequence"]
+    for seq in METHOD_SEQUENCES:
+        for i, x in enumerate(METHOD_STANDARDS):
+            for k in range(2):
+                a, b = areas(x)
+                cal.append(f"{seq[-1]}CS{i + 1}-{k + 1},{x:g},{a:.0f},{b:.0f},{seq}")
+    _write(OUT / sid / "calibration.csv", ("\n".join(cal) + "\n").encode("utf-8"))
+
+    head = ("run,pH,aqueous_mL,organic_mL,spiked,response_aqueous,response_organic,"
+            "is_response_aqueous,is_response_organic,sequence,replicate,matrix,spike_stage,"
+            "level,day,analyst,note")
+    lines = [head]
+    k = 0
+    for nominal in (6.8, 8.8, 10.8):
+        for v_org in ORGANIC_ML:
+            for rep in range(REPLICATES):
+                k += 1
+                pH = round(nominal + PH_SCATTER * rng.standard_normal(), 2)
+                d = 10.0 ** log_d("base", pH, t["logK"], t["pKa"])
+                q = 1.0 / (1.0 + d * v_org / AQUEOUS_ML)
+                e = 1.0 + t["flask_rsd"] * rng.standard_normal(2)
+                a_aq, i_aq = areas(50.0 * q * e[0])
+                a_org, i_org = areas(50.0 * (1.0 - q) * e[1])
+                lines.append(",".join([
+                    f"M30-{k:02d}", f"{pH:.2f}", _sig(AQUEOUS_ML, 3), _sig(v_org, 3), "50.00",
+                    f"{a_aq:.0f}", f"{a_org:.0f}", f"{i_aq:.0f}", f"{i_org:.0f}",
+                    METHOD_SEQUENCES[rep], f"pH{nominal:g}-{v_org / AQUEOUS_ML:g}",
+                    "", "", "", "", "", ""]))
+    # matrix lots: analyte and IS suppression share most of the lot's effect
+    z = rng.standard_normal((len(METHOD_LOTS), 2))
+    mf_is = {lot: t["mf_is"] * (1 + t["lot_sd"] * z[i, 0]) for i, lot in enumerate(METHOD_LOTS)}
+    mf_an = {lot: mf_is[lot] * t["mf_analyte"] / t["mf_is"] * (1 + t["is_norm_lot_sd"] * z[i, 1])
+             for i, lot in enumerate(METHOD_LOTS)}
+    day_eff = 1 + t["day_sd"] * rng.standard_normal(3)
+    analyst_eff = 1 + t["analyst_sd"] * rng.standard_normal(2)
+    method_rows = []
+
+    def row(run_id, stage, level, amount, a_org, i_org, seq, lot="", day="", analyst=""):
+        method_rows.append(",".join([
+            run_id, "10.50", "2.00", "6.00", f"{amount:g}", "", f"{a_org:.0f}", "",
+            f"{i_org:.0f}", seq, "", lot, stage, level, day, analyst, ""]))
+
+    n = 0
+    for level, amount in t["spiked"].items():
+        for day in range(3):
+            for an in range(2):
+                lot = METHOD_LOTS[2 * day + an]
+                for _ in range(2):
+                    n += 1
+                    rec = (t["recovery"][level] * day_eff[day] * analyst_eff[an]
+                           * (1 + t["rep_sd"] * rng.standard_normal()))
+                    a, b = areas(amount * rec, mf_an[lot], mf_is[lot])
+                    row(f"V30-{n:03d}", "pre", level, amount, a, b, METHOD_SEQUENCES[an], lot,
+                        f"D{day + 1}", ("AN", "JS")[an])
+        for i, lot in enumerate(METHOD_LOTS):
+            for _ in range(2):
+                n += 1
+                a, b = areas(amount, mf_an[lot], mf_is[lot])
+                row(f"V30-{n:03d}", "post", level, amount, a, b, METHOD_SEQUENCES[i % 2], lot)
+        for j in range(3):
+            n += 1
+            a, b = areas(amount)
+            row(f"V30-{n:03d}", "neat", level, amount, a, b, METHOD_SEQUENCES[j % 2])
+    lines.extend(method_rows)
+    _write(OUT / sid / "runs.csv", ("\n".join(lines) + "\n").encode("utf-8"))
+    _write(OUT / sid / "study.yaml", METHOD_YAML.encode("utf-8"))
+
+
 README = """\
 # Demo studies
 
@@ -372,6 +503,10 @@ of three invented intermediates. The numbers are simulated from a known model by
 | HPA-2026-016 | KRV-311 | neutral | 0.9 | - | `runs.csv`, organic phase only |
 | HPA-2026-021 | KRV-402 in ethyl acetate, by-product KRV-402-A | base / acid | 2.3 / 2.0 | 9.1 / 8.0 | `runs.csv`, impurity columns, work-up steps |
 | HPA-2026-022 | KRV-402 in toluene, by-product KRV-402-A | base / acid | 1.8 / 1.2 | 9.1 / 8.0 | `runs.csv`, impurity columns, work-up steps |
+| HPA-2026-030 | KRV-517 from plasma into MTBE | base | 2.4 | 8.8 | `runs.csv` with LC-MS peak areas and an internal standard, `calibration.csv` (two sequences); method runs: six plasma lots, pre/post/neat spikes, three levels, three days x two analysts |
+
+In HPA-2026-030 each day x analyst group of pre-spiked samples uses its own plasma lot, so the
+between-group component of the precision also holds the lots' differences in recovery.
 """
 
 
@@ -381,6 +516,7 @@ def main() -> None:
     make_neutral()
     for sid in WORKUP_TRUTH:
         make_workup(sid)
+    make_method()
     _write(OUT / "README.md", README.encode("utf-8"))
     print(f"demo studies written to {OUT}")
 

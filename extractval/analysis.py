@@ -211,11 +211,24 @@ class StudyReport:
         targets = self.study.targets
         study_v, details = study_verdicts(self.fit, self.outcomes, targets)
         study_v = study_v + calibration_verdicts(self.study) + suitability_verdicts(self.study)
+        if self.method is not None:
+            study_v = study_v + list(self.method.verdicts)
         proc_v = [procedure_verdicts(p, d, targets, self.outcomes)
                   for p, d in zip(self.predictions, self.designs)]
         summary = status_summary(study_v + [v for vs in proc_v for v in vs])
         return {"study": study_v, "procedures": proc_v, "details": details,
                 "status": summary["status"], "summary": summary}
+
+    @cached_property
+    def method(self):
+        """Method recovery, matrix factor and precision of the method-validation runs
+        (method.py), or None when the study has none."""
+        if not self.study.method_runs:
+            return None
+        from .method import method_report
+        from .method_input import method_runs, method_targets
+
+        return method_report(method_runs(self.study), method_targets(self.study))
 
     @cached_property
     def outlier_screen(self) -> dict | None:
@@ -402,6 +415,9 @@ class StudyReport:
             out["calibration"] = self.calibration_dict()
         if s.suitability is not None:
             out["suitability"] = s.suitability.to_dict()
+        if self.method is not None:
+            out["method_recovery"] = self.method.to_dict()
+            out["precision"] = self.method.precision_dict()
         out["solvent"] = solvent_report(s.system.get("organic"), s.procedures,
                                         s.system.get("aqueous"))
         out["run_table"] = self.run_rows()
@@ -482,6 +498,8 @@ def fit_study(study: Study) -> StudyReport:
                             f"the study: {o.reason}")
         elif o.reason:
             warnings.append(f"{o.run.location}: run {o.run.run_id!r}: {o.reason}")
+    warnings.extend(f"{r.location}: method-validation run {r.run_id!r} excluded by the study: "
+                    f"{r.excluded}" for r in study.method_runs if r.excluded)
     candidates: list[Candidate] = []
     try:
         if study.model == "auto":

@@ -33,10 +33,11 @@ FRACTION_FLOOR = 1e-6
 
 #: digits of each plain number style (format specifications)
 _FORMAT_SPECS = {"log": ".3f", "pH": ".2f", "r": ".3f", "se": ".2g", "f2": ".2f", "mL": "g",
-                 "g": ".4g", "r4": ".4f", "f1": ".1f", "g6": ".6g"}
+                 "g": ".4g", "r4": ".4f", "f1": ".1f", "g6": ".6g",
+                "f3": ".3f"}
 #: the styles :func:`fmt_number` knows
 STYLES = ("int", "log", "pH", "r", "se", "frac", "pct", "f2", "rel", "mL", "g", "r4", "f1",
-          "g6")
+          "g6", "f3")
 _NEGATIVE_ZERO = re.compile(r"-(?=0*\.?0*(e[+-]?\d+)?(\s?%)?$)")
 
 

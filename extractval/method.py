@@ -21,8 +21,11 @@ so the calibration's slope cancels.
   words the matrix effect instead as accuracy within +/-15 % and CV <= 15 % of low and high
   QCs in each of at least 6 lots; that needs calibration standards taken through the whole
   method, which this tool cannot know, so it is not judged here.
+* Per-run recovery: each pre run over the mean of the post runs at its level in its own lot
+  when that lot has post runs (the lot's matrix effect cancels), else over all post runs at
+  the level. The RSD of a level and the precision components are of these values.
 * Consistency of recovery across levels: one-way ANOVA F test of the per-run recoveries
-  (each pre run over the mean of the post runs at its level) between levels, at the 5 % level.
+  between levels, at the 5 % level.
 * Intermediate precision (ISO 5725-3:1994, one-way random-effects model): pre runs that name a
   ``day``, ``analyst`` and/or ``instrument`` are grouped by the combination of the factors they
   give; the one-way ANOVA mean squares (statsmodels OLS on the group dummies) give
@@ -55,6 +58,10 @@ MF_MIN_LOTS = 6
 #: level of the F test of consistency of recovery across levels
 ALPHA = 0.05
 NO_LEVEL = "(no level)"
+PRECISION_MODEL = ("ISO 5725-3 one-way random-effects ANOVA of the pre runs' recoveries at each "
+                   "level, grouped by the combination of the day / analyst / instrument cells "
+                   "they give: s_r (repeatability, within groups), s_L (between groups), "
+                   "s_I = sqrt(s_r^2 + s_L^2) (intermediate precision)")
 
 
 @dataclass(frozen=True)
@@ -252,12 +259,18 @@ class MethodReport:
     consistency: dict | None = None
     precision: list = field(default_factory=list)
     verdicts: list[Verdict] = field(default_factory=list)
+    recovery_overall: dict | None = None
+    matrix_factor_lots: dict | None = None
 
     def to_dict(self) -> dict:
+        """The ``method_recovery`` entry of a study dict (precision: :meth:`precision_dict`)."""
         used = [r for r in self.runs if r.left_out is None]
         bases = sorted({r.basis for r in used if r.basis})
+        per_run = {x["run"]: x["recovery_pct"] for rec in self.recovery.values()
+                   for x in rec.get("runs", ())}
         return {
             "basis": bases[0] if len(bases) == 1 else bases,
+            "is_normalised": bool(bases) and all("internal-standard" in b for b in bases),
             "targets": self.targets.to_dict(),
             "runs": {"total": len(self.runs), "used": len(used),
                      "by_stage": {s: sum(r.tags.spike_stage == s for r in used)
@@ -265,10 +278,22 @@ class MethodReport:
             "left_out": [{"run": r.run_id, "location": str(r.location), "reason": r.left_out}
                          for r in self.runs if r.left_out],
             "recovery": self.recovery,
+            "recovery_overall": self.recovery_overall,
             "recovery_consistency": self.consistency,
             "matrix_factor": self.matrix_factor,
+            "matrix_factor_lots": self.matrix_factor_lots,
             "verdicts": [v.to_dict() for v in self.verdicts],
+            "run_table": [{"run": r.run_id, "stage": r.tags.spike_stage,
+                           "matrix": r.tags.matrix, "level": r.tags.level,
+                           "day": r.tags.day, "analyst": r.tags.analyst,
+                           "instrument": r.tags.instrument, "sequence": r.tags.sequence,
+                           "value": clean(r.value), "recovery_pct": per_run.get(r.run_id),
+                           "left_out": r.left_out} for r in self.runs],
         }
+
+    def precision_dict(self) -> dict:
+        """The ``precision`` entry of a study dict: ISO 5725-3 components per level."""
+        return {"model": PRECISION_MODEL, "runs": "pre", "levels": self.precision}
 
 
 def _by(runs, key) -> dict:
@@ -300,7 +325,11 @@ def method_report(runs, targets: MethodTargets) -> MethodReport:
             continue
         entry = ratio_of_means([r.value for r in lp], [r.value for r in lq])
         m_post = float(np.mean([r.value for r in lq]))
-        recs = [100.0 * r.value / m_post for r in lp]
+        # each pre run over the post runs of its own lot when that lot has some (the lot's
+        # matrix effect then cancels), else over all post runs at the level
+        lot_post = {lot: float(np.mean([r.value for r in v]))
+                    for lot, v in _by(lq, lambda r: r.tags.matrix).items() if lot is not None}
+        recs = [100.0 * r.value / lot_post.get(r.tags.matrix, m_post) for r in lp]
         per_run[level] = recs
         entry["rsd_pct"] = mean_interval(recs)["cv_pct"]
         entry["runs"] = [{"run": r.run_id, "recovery_pct": clean(x)} for r, x in zip(lp, recs)]
@@ -334,23 +363,43 @@ def method_report(runs, targets: MethodTargets) -> MethodReport:
         entry = mean_interval(list(lots.values()))
         entry.update(lots=lots, n_lots=len(lots), n_neat=len(ln))
         rep.matrix_factor[level] = entry
-    rep.precision = _precision(pre)
+    all_recs = [x for v in per_run.values() for x in v]
+    if all_recs:
+        rep.recovery_overall = dict(mean_interval(all_recs), levels=len(per_run))
+    lot_mfs: dict[str, list[float]] = {}
+    for mf in rep.matrix_factor.values():
+        for lot, v in mf.get("lots", {}).items():
+            lot_mfs.setdefault(lot, []).append(v)
+    if lot_mfs:
+        means = {lot: clean(float(np.mean(v))) for lot, v in lot_mfs.items()}
+        rep.matrix_factor_lots = dict(mean_interval(list(means.values())), lots=means,
+                                      n_lots=len(means),
+                                      levels=len([m for m in rep.matrix_factor.values()
+                                                  if "lots" in m]))
+    rec_of = {x["run"]: x["recovery_pct"] for e in rep.recovery.values()
+              for x in e.get("runs", ())}
+    rep.precision = _precision(pre, rec_of)
     rep.verdicts = _verdicts(rep)
     return rep
 
 
-def _precision(pre) -> list[dict]:
+def _precision(pre, rec_of: dict) -> list[dict]:
+    """Components per level, of the runs' recoveries (%) where the level has post runs, else
+    of their measured values (the relative components are the same: one divisor per level)."""
     out = []
     with_factors = [r for r in pre if r.tags.factors()]
     for level in _levels(with_factors):
         lr = [r for r in with_factors if r.level == level]
         names = [f for f in FACTORS if any(getattr(r.tags, f) for r in lr)]
+        as_rec = all(rec_of.get(r.run_id) is not None for r in lr)
         groups: dict[str, list[float]] = {}
         for r in lr:
             label = " / ".join(f"{f} {getattr(r.tags, f) or '-'}" for f in names)
-            groups.setdefault(label, []).append(r.value)
+            groups.setdefault(label, []).append(rec_of[r.run_id] if as_rec else r.value)
         vc = variance_components(groups)
         entry = {"level": level, "factors": names, "n_runs": len(lr), "n_groups": len(groups),
+                 "grouping": " x ".join(names) + " (one-way, each combination a group)",
+                 "unit": "recovery, %" if as_rec else "measured value",
                  "groups": {g: len(v) for g, v in groups.items()}}
         if vc is None:
             entry["note"] = ("variance components need two groups and a replicate within one "
@@ -369,10 +418,11 @@ def _verdicts(rep: MethodReport) -> list[Verdict]:
             continue
         lim, lots = t.matrix_factor_cv_max_pct, mf["n_lots"]
         src = t.source("matrix_factor_cv_max_pct")
+        basis = "target" if "matrix_factor_cv_max_pct" in t.from_study else "default"
         cv = mf["cv_pct"]
         if cv is None:
-            out.append(verdict("not assessed", "matrix_factor_cv_pct", None, lim,
-                               f"level {level}: one lot only, no CV"))
+            out.append(verdict("not assessed", f"matrix_factor_cv_pct[{level}]", None, lim,
+                               f"level {level}: one lot only, no CV", basis=basis))
             continue
         ok_cv, ok_n = _at_most(cv, lim), lots >= t.matrix_lots_min
         why = (f"level {level}: CV of the matrix factor {cv:.1f} % over {lots} lots "
@@ -380,8 +430,8 @@ def _verdicts(rep: MethodReport) -> list[Verdict]:
         if not ok_n:
             why += (f"; fewer lots than the {t.matrix_lots_min} required "
                     f"({t.source('matrix_lots_min')})")
-        out.append(verdict("pass" if ok_cv and ok_n else "fail", "matrix_factor_cv_pct", cv,
-                           lim, why))
+        out.append(verdict("pass" if ok_cv and ok_n else "fail",
+                           f"matrix_factor_cv_pct[{level}]", cv, lim, why, basis=basis))
     for level, rec in rep.recovery.items():
         if "value" not in rec:
             continue
@@ -389,17 +439,20 @@ def _verdicts(rep: MethodReport) -> list[Verdict]:
             lo, hi = t.recovery_pct
             v = rec["value"]
             ok = _at_least(v, lo) and _at_most(v, hi)
-            out.append(verdict("pass" if ok else "fail", "method_recovery_pct", v, (lo, hi),
+            out.append(verdict("pass" if ok else "fail", f"method_recovery_pct[{level}]", v,
+                               (lo, hi),
                                f"level {level}: mean absolute recovery {v:.1f} % "
                                f"{'within' if ok else 'outside'} {lo:g}-{hi:g} % (study.yaml)"))
         if t.recovery_rsd_max_pct is not None:
             lim, v = t.recovery_rsd_max_pct, rec.get("rsd_pct")
             if v is None:
-                out.append(verdict("not assessed", "method_recovery_rsd_pct", None, lim,
+                out.append(verdict("not assessed", f"method_recovery_rsd_pct[{level}]", None,
+                                   lim,
                                    f"level {level}: a single pre run"))
             else:
                 ok = _at_most(v, lim)
-                out.append(verdict("pass" if ok else "fail", "method_recovery_rsd_pct", v, lim,
+                out.append(verdict("pass" if ok else "fail",
+                                   f"method_recovery_rsd_pct[{level}]", v, lim,
                                    f"level {level}: RSD of recovery {v:.2f} % "
                                    f"{'<=' if ok else '>'} {lim:g} % (study.yaml)"))
     for p in rep.precision:
@@ -409,7 +462,7 @@ def _verdicts(rep: MethodReport) -> list[Verdict]:
             lim = getattr(t, key)
             if lim is None:
                 continue
-            crit = key.replace("_max", "")
+            crit = f"{key.replace('_max', '')}[{p['level']}]"
             v = p.get(stat)
             if v is None:
                 out.append(verdict("not assessed", crit, None, lim,

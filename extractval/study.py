@@ -60,6 +60,7 @@ import yaml
 if TYPE_CHECKING:
     from .calibration_input import CalibrationSet
     from .suitability_input import SuitabilitySet
+from . import method_input
 from .errors import Problem, StudyError
 from .replicates import PH_TOLERANCE, precision_groups
 from .tables import (EXTENSIONS, HeaderRules, Location, Table, TableRow, decode_text,
@@ -104,6 +105,13 @@ class Run:
     #: why the run is left out of the fit: its sequence fails system suitability
     #: (suitability_input.py); None when it passes, or is not recorded
     suitability: str | None = None
+    # method-validation cells (method_input.py): a run with a spike_stage is not fitted
+    matrix: str | None = None
+    spike_stage: str | None = None
+    level: str | None = None
+    day: str | None = None
+    analyst: str | None = None
+    instrument: str | None = None
 
     @property
     def measurement(self) -> str:
@@ -247,6 +255,9 @@ class Study:
     impurities: tuple[Impurity, ...] = ()
     calibration: CalibrationSet | None = None   # curves, when runs give responses
     suitability: SuitabilitySet | None = None   # system suitability per sequence, when given
+    #: runs with a spike_stage (method_input.py): method recovery, matrix factor, precision
+    method_runs: tuple[Run, ...] = ()
+    method_targets: dict = field(default_factory=dict)   # the ``method_targets:`` set
     #: pH units within which runs are replicates (replicates.py; ``replicate_pH_tolerance``)
     replicate_pH_tolerance: float = PH_TOLERANCE
 
@@ -279,7 +290,7 @@ ONE_PHASE_HIGH_PCT = 100.0
 _KEYS = {
     "": ("title", "analyte", "system", "runs", "sheet", "header_row", "replicate_pH_tolerance",
          "targets", "procedures", "advice", "impurities", "calibration", "suitability",
-         "suitability_limits"),
+         "suitability_limits", "method_targets"),
     "analyte": ("name", "model", "ion_pair", "level"),
     "system": ("aqueous", "organic", "temperature_C"),
     "targets": ("recovery_pct", "max_rsd_pct", "mass_balance_pct", "ratio_agreement_log",
@@ -301,6 +312,9 @@ COLUMNS = {
     "response_aqueous": "response_aqueous", "response_organic": "response_organic",
     "is_response_aqueous": "is_response_aqueous", "is_response_organic": "is_response_organic",
     "sequence": "sequence",
+    # method validation (method_input.py)
+    "matrix": "matrix", "spike_stage": "spike_stage", "level": "level", "day": "day",
+    "analyst": "analyst", "instrument": "instrument",
 }
 REQUIRED_COLUMNS = ("run", "ph", "aqueous_ml", "organic_ml")
 AMOUNT_COLUMNS = ("spiked", "found_aqueous", "found_organic")
@@ -1114,12 +1128,13 @@ def _run(reader: _RowReader, row: TableRow, seen: dict, check_forms: bool) -> Ru
         volumes[col] = v
 
     amounts = _measurement(reader, row, run, excluded, check_forms)
-    if amounts is None or not isinstance(pH, float) or any(
+    tags = method_input.read_tags(reader, row, run)
+    if amounts is None or tags is None or not isinstance(pH, float) or any(
             not isinstance(v, float) for v in volumes.values()) or run is None:
         return None
     return Run(run, pH, volumes["aqueous_ml"], volumes["organic_ml"], row.location,
                **amounts, replicate=row.raw("replicate") or None, excluded=excluded,
-               note=row.raw("note") or None)
+               note=row.raw("note") or None, **tags)
 
 
 def _short(loc: Location) -> str:
@@ -1503,8 +1518,22 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
 
     impurities = _impurity_records(doc, impurity_specs, table if runs_path else None,
                                    runs, problems)
-    calibration, runs = _calibration(doc, entries, folder, runs, problems)
-    suitability, runs = _suitability(doc, entries, folder, runs, problems)
+    method_runs = [r for r in runs if r.spike_stage is not None]
+    runs = [r for r in runs if r.spike_stage is None]
+    method_input.check_method_runs(method_runs, problems)
+    method_targets = method_input.read_targets(doc, entries, _is_null, _positive,
+                                               _non_negative)
+    if method_runs and not runs and not _n_errors(problems):
+        problems.append(Problem("every run is a method-validation run (spike_stage): no "
+                                "shake-flask run is left to fit", file=table.file,
+                                expected="shake-flask runs without spike_stage beside the "
+                                         "method-validation runs"))
+    calibration, runs = _calibration(doc, entries, folder, runs, problems,
+                                     any(r.response_organic is not None for r in method_runs))
+    # method runs sit in sequences too: a failing sequence leaves them out as well
+    suitability, both = _suitability(doc, entries, folder, runs + method_runs, problems)
+    runs = [r for r in both if r.spike_stage is None]
+    method_runs = [r for r in both if r.spike_stage is not None]
 
     # a replicate label shared by runs at different conditions is named here, once
     problems.extend(precision_groups([r for r in runs if not r.excluded], ph_tolerance).warnings)
@@ -1525,12 +1554,14 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
     study = Study(study_id, folder, title, name, model, tuple(runs), tuple(procedures),
                   targets, ion_pair, system, inputs, warnings, advice, tuple(impurities),
                   calibration=calibration, replicate_pH_tolerance=ph_tolerance,
-                  suitability=suitability)
+                  suitability=suitability, method_runs=tuple(method_runs),
+                  method_targets=method_targets)
     return study, problems
 
 
 def _calibration(doc: _Yaml, entries, folder: Path, runs: list[Run],
-                 problems: list[Problem]) -> tuple[CalibrationSet | None, list[Run]]:
+                 problems: list[Problem], method_responses: bool = False
+                 ) -> tuple[CalibrationSet | None, list[Run]]:
     """The calibration table (calibration_input.py) and the runs' amounts read off it."""
     from . import calibration_input as cal_in   # numpy and the curve fit: only when needed
 
@@ -1552,7 +1583,7 @@ def _calibration(doc: _Yaml, entries, folder: Path, runs: list[Run],
     curves, digest = cal_in.read_curves(settings, problems)
     if not curves or any(c.fit is None for c in curves):
         return None, runs
-    if not uses:
+    if not uses and not method_responses:
         problems.append(Problem("a calibration table is given but no run gives responses: the "
                                 "curves are reported, no amount is read off them",
                                 file=settings.shown, severity="warning",

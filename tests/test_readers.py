@@ -376,12 +376,13 @@ def test_header_names_ignore_case_and_spaces(tmp_path):
 
 
 def test_misspelt_column_is_an_error_and_unknown_one_a_warning(tmp_path):
-    header = ",".join(HEADER) + ",exluded,analyst"
+    # "analyst" is a method-validation column now (method_input.py); "bench_id" is unknown
+    header = ",".join(HEADER) + ",exluded,bench_id"
     csv = f"{header}\nR1,7.0,10,10,100,40,59,,AB\nR2,8.0,10,10,100,20,79,,CD\n"
     _, problems = check_csv(tmp_path, csv)
     typo = only(problems, "misspelling", column="exluded")
     assert (typo.severity, typo.line, typo.expected) == ("error", 1, "excluded")
-    other = only(problems, "unknown column, ignored", column="analyst")
+    other = only(problems, "unknown column, ignored", column="bench_id")
     assert other.severity == "warning"
 
 

@@ -85,6 +85,7 @@ def environment(templates_dir: Path) -> jinja2.Environment:
     env.filters["text"] = md_text
     env.filters["attr"] = html_attr
     env.filters["css_string"] = css_string
+    env.globals["idname"] = safe_name          # a label as an identifier segment
     return env
 
 

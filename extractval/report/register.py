@@ -81,7 +81,24 @@ def study_status(d: dict) -> tuple[str, str]:
     return "good", "fitted"
 
 
-CRITERION_LABELS = {
+class _Labels(dict):
+    """Criterion labels; a per-level criterion ``name[level]`` (method.py) reads as the
+    label of ``name`` followed by ", level <level>"."""
+
+    def __missing__(self, key: str) -> str:
+        name, sep, level = key.partition("[")
+        if sep and key.endswith("]") and name in self:
+            return f"{self[name]}, level {level[:-1]}"
+        raise KeyError(key)
+
+    def get(self, key, default=None):
+        try:
+            return self[key]
+        except KeyError:
+            return default
+
+
+CRITERION_LABELS = _Labels({
     "recovery_pct": "Recovery at the worst case inside the tolerances (%)",
     "max_rsd_pct": "Repeatability, pooled RSD (%)",
     "mass_balance_pct": "Mass balance of every run (%)",
@@ -89,16 +106,21 @@ CRITERION_LABELS = {
     "lack_of_fit": "Lack of fit (p value)",
     "aoac_recovery_pct": "AOAC recovery range for the analyte level (%)",
     "horrat_r": "HorRat(r), repeatability against the Horwitz value",
+    "matrix_factor_cv_pct": "CV of the matrix factor over the matrix lots (%)",
+    "method_recovery_pct": "Absolute recovery of the method at a level (%)",
+    "method_recovery_rsd_pct": "RSD of the method's recovery at a level (%)",
+    "repeatability_rsd_pct": "Repeatability RSD, ISO 5725-3 (%)",
+    "intermediate_rsd_pct": "Intermediate-precision RSD, ISO 5725-3 (%)",
     "suitability_resolution_min": "Resolution from the nearest neighbour, smallest",
     "suitability_tailing_max": "Tailing factor, largest",
     "suitability_injection_rsd_max_pct": "RSD of replicate injections (%)",
     "suitability_plates_min": "Plate number, smallest",
     "suitability_retention_factor_min": "Retention factor, smallest",
-}
+})
 
 
 def criterion_style(criterion: str) -> str:
-    return CRITERION_STYLES.get(criterion, "g")
+    return CRITERION_STYLES.get(criterion.partition("[")[0], "g")
 
 
 def parameter_text(name: str) -> str:
@@ -285,6 +307,7 @@ def study_register(d: dict) -> list[Quantity]:
                       VALUE_CI, "pct", d))
     out.extend(_calibration_register(sid, d))
     out.extend(_suitability_register(sid, d))
+    out.extend(_method_register(sid, d))
     out.extend(_next_runs_register(sid, d))
     out.extend(_solvent_register(sid, d))
     return [q for q in out if q is not None]
@@ -418,6 +441,98 @@ def _suitability_register(sid: str, d: dict) -> list[Quantity | None]:
             out.append(_q(sid, f"{name}/{label}/response", f"response of the standard, "
                           f"injection {inj['injection'] or i + 1} of {what}", "", None,
                           base + ["injections", i, "response"], ("value",), "g6", d))
+    return out
+
+
+def _qp(study, name, description, unit, method, d, value: list, ci: list | None = None,
+        style: str = "g", se: list | None = None) -> Quantity | None:
+    """A quantity whose value, SE and interval sit at any pointers (``ci`` names the pair)."""
+    nums = []
+    for stat, parts in (("value", value), ("se", se), ("ci95_lo", ci and ci + [0]),
+                        ("ci95_hi", ci and ci + [1])):
+        if parts is None:
+            continue
+        v = _get(d, parts)
+        if v is None or isinstance(v, (dict, list)):
+            continue
+        nums.append(Number(study, name, stat, v, "se" if stat == "se" else style,
+                           pointer(*parts), unit))
+    if not nums or nums[0].statistic != "value":
+        return None
+    return Quantity(study, name, description, unit, method, tuple(nums))
+
+
+def _method_register(sid: str, d: dict) -> list[Quantity | None]:
+    """Method recovery (``method/recovery/<level>``, per lot ``.../<lot>``), matrix factor
+    (``method/matrix_factor/<level>``, ``.../<lot>``, ``method/matrix_factor/lots/<lot>``)
+    and precision components (``precision/<level>/s_r`` ...)."""
+    m = d.get("method_recovery")
+    if not m:
+        return []
+    out: list[Quantity | None] = []
+    rq = "ratio of means, delta method, t interval"
+    for level, r in m["recovery"].items():
+        if "value" not in r:
+            continue
+        base, name = ["method_recovery", "recovery", level], f"method/recovery/{safe_name(level)}"
+        out.append(_qp(sid, name, f"absolute recovery (pre / post) at level {level}", "%", rq,
+                       d, base + ["value"], base + ["ci95"], "f1", base + ["se"]))
+        out.append(_qp(sid, f"{name}/rsd_pct", f"RSD of the runs' recoveries at level {level}",
+                       "%", None, d, base + ["rsd_pct"], style="f1"))
+        for lot in r.get("lots", {}):
+            out.append(_qp(sid, f"{name}/{safe_name(lot)}", f"absolute recovery at level "
+                           f"{level} in matrix lot {lot}", "%", rq, d,
+                           base + ["lots", lot, "value"], base + ["lots", lot, "ci95"], "f1"))
+    if m.get("recovery_overall"):
+        base = ["method_recovery", "recovery_overall"]
+        out.append(_qp(sid, "method/recovery/overall", "mean of the runs' absolute recoveries "
+                       "over all levels", "%", "t interval of the mean", d, base + ["mean"],
+                       base + ["ci95"], "f1"))
+    if m.get("recovery_consistency"):
+        out.append(_qp(sid, "method/recovery/consistency_p", "p value of the F test of equal "
+                       "recovery at all levels", "", "one-way ANOVA", d,
+                       ["method_recovery", "recovery_consistency", "p_value"], style="g"))
+    word = "IS-normalised matrix factor" if m.get("is_normalised") else "matrix factor"
+    for level, mf in m["matrix_factor"].items():
+        if "lots" not in mf:
+            continue
+        base, name = (["method_recovery", "matrix_factor", level],
+                      f"method/matrix_factor/{safe_name(level)}")
+        out.append(_qp(sid, name, f"mean {word} over the lots at level {level}", "",
+                       "t interval of the mean", d, base + ["mean"], base + ["ci95"], "f3"))
+        out.append(_qp(sid, f"{name}/cv_pct", f"CV of the {word} over the lots at level "
+                       f"{level}", "%", None, d, base + ["cv_pct"], style="f1"))
+        for lot in mf["lots"]:
+            out.append(_qp(sid, f"{name}/{safe_name(lot)}", f"{word} of lot {lot} at level "
+                           f"{level}", "", None, d, base + ["lots", lot], style="f3"))
+    ml = m.get("matrix_factor_lots")
+    if ml:
+        base = ["method_recovery", "matrix_factor_lots"]
+        out.append(_qp(sid, "method/matrix_factor/overall", f"mean {word} of the lots "
+                       "(each lot's mean over the levels)", "", "t interval of the mean", d,
+                       base + ["mean"], base + ["ci95"], "f3"))
+        out.append(_qp(sid, "method/matrix_factor/overall/cv_pct", f"CV of the lots' mean "
+                       f"{word}", "%", None, d, base + ["cv_pct"], style="f1"))
+        for lot in ml["lots"]:
+            out.append(_qp(sid, f"method/matrix_factor/lots/{safe_name(lot)}", f"{word} of lot "
+                           f"{lot}, mean over the levels", "", None, d,
+                           base + ["lots", lot], style="f3"))
+    for i, p in enumerate((d.get("precision") or {}).get("levels", [])):
+        if p.get("s_r") is None:
+            continue
+        base, name = ["precision", "levels", i], f"precision/{safe_name(p['level'])}"
+        what = f"at level {p['level']} ({p['grouping']})"
+        iso = "ISO 5725-3 one-way components"
+        for key, ci, text in (("s_r", "s_r_ci95", "repeatability SD s_r"),
+                              ("s_L", None, "between-group SD s_L"),
+                              ("s_I", "s_I_ci95", "intermediate-precision SD s_I")):
+            out.append(_qp(sid, f"{name}/{key}", f"{text} {what} [{p['unit']}]", "",
+                           iso + ("; chi-square interval" if ci else ""), d, base + [key],
+                           base + [ci] if ci else None, "f2"))
+        for key, text in (("rsd_r_pct", "repeatability RSD"), ("rsd_L_pct", "between-group RSD"),
+                          ("rsd_I_pct", "intermediate-precision RSD")):
+            out.append(_qp(sid, f"{name}/{key}", f"{text} {what}", "%", iso, d, base + [key],
+                           style="f2"))
     return out
 
 

@@ -50,6 +50,7 @@ def render_summary(d: dict, input_warnings=()) -> str:
     lines.extend(verdict_lines(d))
     lines.extend(calibration_lines(d.get("calibration")))
     lines.extend(suitability_lines(d.get("suitability")))
+    lines.extend(method_lines(d.get("method_recovery"), d.get("precision")))
     lines.extend(warning_lines(d, input_warnings))
     return "\n".join(lines)
 
@@ -151,4 +152,47 @@ def suitability_lines(suit: dict | None) -> list[str]:
         if s["status"] == "fail":
             line += f"; {len(s['runs'])} run(s) left out of the fit"
         out.append(line)
+    return out
+
+
+def _ci(ci, digits: int = 1) -> str:
+    lo, hi = ci
+    return f"[{fmt(lo, digits)}, {fmt(hi, digits)}]"
+
+
+def method_lines(m: dict | None, prec: dict | None) -> list[str]:
+    """Method recovery per level, matrix factor per level, precision components (their
+    verdicts are among the study's, printed by :func:`verdict_lines`)."""
+    if not m:
+        return []
+    st = m["runs"]["by_stage"]
+    out = [f"   method runs: {st['pre']} pre, {st['post']} post, {st['neat']} neat used of "
+           f"{m['runs']['total']}; values: {m['basis']}"]
+    for level, r in m["recovery"].items():
+        if "value" not in r:
+            out.append(f"   recovery {level}: {r['note']}")
+            continue
+        rsd = f", RSD {r['rsd_pct']:.1f} %" if r.get("rsd_pct") is not None else ""
+        out.append(f"   recovery {level}: {r['value']:.1f} % {_ci(r['ci95'])}{rsd}, "
+                   f"{r['n_num']} pre / {r['n_den']} post")
+    c = m.get("recovery_consistency")
+    if c:
+        out.append(f"   recovery across levels: F {c['F']:.2f}, p {c['p_value']:.3g}: "
+                   + ("consistent" if c["consistent"] else "differs between levels")
+                   + f" at alpha {c['alpha']:g}")
+    word = "IS-normalised matrix factor" if m.get("is_normalised") else "matrix factor"
+    for level, mf in m["matrix_factor"].items():
+        if "lots" not in mf:
+            out.append(f"   {word} {level}: {mf['note']}")
+            continue
+        cv = f", CV {mf['cv_pct']:.1f} %" if mf.get("cv_pct") is not None else ""
+        out.append(f"   {word} {level}: {mf['mean']:.3f} {_ci(mf['ci95'], 3)} over "
+                   f"{mf['n_lots']} lots{cv}")
+    for p in (prec or {}).get("levels", []):
+        if p.get("rsd_r_pct") is None:
+            out.append(f"   precision {p['level']}: {p.get('note', 'no estimate')}")
+            continue
+        out.append(f"   precision {p['level']} ({p['grouping'].split(' (')[0]}, "
+                   f"{p['n_groups']} groups, {p['n_runs']} runs): RSD_r {p['rsd_r_pct']:.2f} %, "
+                   f"RSD_L {p['rsd_L_pct']:.2f} %, RSD_I {p['rsd_I_pct']:.2f} %")
     return out
