@@ -55,6 +55,26 @@
     }
   });
 
+  // a link to a number inside a folded part (site_templates/fold.md.j2) opens the fold
+  function openTarget() {
+    var id = window.location.hash ? decodeURIComponent(window.location.hash.slice(1)) : "";
+    var el = id ? document.getElementById(id) : null;
+    var found = false;
+    for (var d = el ? el.closest("details") : null; d; d = d.parentElement.closest("details")) {
+      d.setAttribute("open", "");
+      found = true;
+    }
+    if (found) {
+      el.scrollIntoView();
+    }
+  }
+  window.addEventListener("hashchange", openTarget);
+  if (document.readyState === "loading") {
+    document.addEventListener("DOMContentLoaded", openTarget);
+  } else {
+    openTarget();
+  }
+
   // a printed copy shows the folded parts too; they fold again afterwards
   var opened = [];
   window.addEventListener("beforeprint", function () {
