@@ -94,7 +94,7 @@ class MethodTargets:
 
     def source(self, name: str) -> str:
         return "study.yaml" if name in self.from_study else (
-            "default, EMA 2011 bioanalytical guideline")
+            "default: EMA 2011 bioanalytical guideline, common practice for the matrix factor")
 
     def to_dict(self) -> dict:
         out = {}

@@ -209,3 +209,46 @@ def test_unset_limits_are_not_judged(tmp_path):
     assert "matrix_factor_cv_pct" in crit          # the guideline default
     assert not crit & {"intermediate_rsd_pct", "repeatability_rsd_pct",
                        "method_recovery_rsd_pct", "method_recovery_pct"}
+
+
+def test_method_section_numbers_are_the_dicts_and_in_the_register():
+    import html
+    import re
+
+    from extractval.report.pages import Pages, StudyInput
+    from extractval.report.register import fmt_number, resolve, study_register
+    from tests.test_report_pages import DOSSIER, SPAN, TEMPLATES
+
+    d = fit_study(load_study(DEMO)).to_dict()
+    page = Pages(TEMPLATES, trace=True).study_page(StudyInput("HPA-2026-030", d), DOSSIER)
+    section = page[page.index("## Method recovery"):page.index("## Fitted constants")]
+    spans = SPAN.findall(section)
+    assert len(spans) > 150
+    styles = ("int", "g", "f1", "f2", "f3")
+    for _, src, text in spans:
+        value = resolve(d, html.unescape(src))
+        text = html.unescape(text)
+        assert any(fmt_number(value, st) in (text, text.removesuffix(" %")) for st in styles), \
+            (src, text)
+    # the level table, the lots' matrix factors and the precision components are all there
+    for ptr in ("/method_recovery/recovery/low/value", "/method_recovery/recovery/high/ci95/1",
+                "/method_recovery/matrix_factor/mid/lots/PL-0402",
+                "/method_recovery/matrix_factor_lots/cv_pct", "/precision/levels/2/s_I",
+                "/precision/levels/0/rsd_r_pct", "/method_recovery/recovery_consistency/p_value"):
+        assert ptr in {html.unescape(s[1]) for s in spans}, ptr
+    register = {n.source: n for q in study_register(d) for n in q.numbers}
+    ids = [n.identifier for n in register.values()]
+    assert len(ids) == len(set(ids))
+    for ident in ("HPA-2026-030/method/recovery/low", "HPA-2026-030/method/recovery/low/ci95_lo",
+                  "HPA-2026-030/method/matrix_factor/high/cv_pct",
+                  "HPA-2026-030/method/matrix_factor/mid/PL-0311",
+                  "HPA-2026-030/method/matrix_factor/lots/PL-0522",
+                  "HPA-2026-030/precision/mid/s_I", "HPA-2026-030/precision/mid/rsd_I_pct"):
+        assert ident in ids, ident
+    shown = {html.unescape(s[1]) for s in SPAN.findall(page)}
+    method_sources = {s for s in register if s.startswith(("/method_recovery/", "/precision/"))
+                      and "/run_table/" not in s and "/verdicts/" not in s
+                      # kept for the register's citation lines, not shown on the page
+                      and not s.endswith("/se") and "/s_r_ci95/" not in s}
+    assert method_sources <= shown, method_sources - shown
+    assert re.search(r"method/recovery/overall", section)
