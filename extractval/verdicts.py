@@ -235,14 +235,21 @@ def mass_balance(report_runs, lo_hi, basis: str = "target") -> Verdict | None:
     worst = max(rows, key=lambda t: abs(t[1] - 100.0))[1]
     source = "" if basis == "target" else \
         " (default band, common practice; not set in study.yaml)"
+    # an excluded run is not judged, but one outside the band is named so that nobody reads
+    # "every run" as including it
+    left_out = [(o.run.run_id, o.run.mass_balance_pct) for o in report_runs
+                if o.status == "excluded" and o.run.mass_balance_pct is not None
+                and not (lo <= o.run.mass_balance_pct <= hi)]
+    aside = ("; not judged, excluded by the study: "
+             + ", ".join(f"{rid} ({mb:.1f} %)" for rid, mb in left_out)) if left_out else ""
     if outside:
         named = ", ".join(f"{rid} ({mb:.1f} %)" for rid, mb in outside)
         return verdict("fail", "mass_balance_pct", worst, (lo, hi),
-                       f"{len(outside)} of {len(rows)} runs outside {lo:g}-{hi:g} %{source}: "
-                       f"{named}", basis)
+                       f"{len(outside)} of {len(rows)} runs in the fit outside {lo:g}-{hi:g} %"
+                       f"{source}: {named}{aside}", basis)
     return verdict("pass", "mass_balance_pct", worst, (lo, hi),
-                   f"all {len(rows)} runs measured in both phases within {lo:g}-{hi:g} %"
-                   f"{source}", basis)
+                   f"all {len(rows)} runs in the fit measured in both phases within "
+                   f"{lo:g}-{hi:g} %{source}{aside}", basis)
 
 
 def recovery_verdict(design, targets) -> Verdict:

@@ -68,6 +68,21 @@ def test_mass_balance_pass_and_fail_names_the_run():
     assert v["limit"] == [90.0, 110.0]
 
 
+def _spoil_and_exclude(runs):
+    runs = _spoil_mass_balance(runs)
+    runs[3] = dataclasses.replace(runs[3], excluded="emulsion did not break")
+    return runs
+
+
+def test_mass_balance_names_an_excluded_run_outside_the_band():
+    # an excluded run is not judged, but "every run" must not be read as including it
+    d = _d(edit=_spoil_and_exclude)
+    v = _verdict(d, "mass_balance_pct")
+    run_id = d["run_table"][3]["run"]
+    assert v["status"] == "pass"
+    assert "in the fit" in v["detail"] and f"excluded by the study: {run_id}" in v["detail"]
+
+
 def _bias_high_ratio(runs):
     # micro-droplets of water carried into the organic phase at the 2:1 ratio: more analyte
     # appears to be in the organic phase

@@ -62,8 +62,15 @@ _STAT_TEXT = {
     "pi95_hi": "upper end of the 95 % prediction interval (one future run) of",
 }
 #: how the value judged by each criterion is written (a recovery near 100 % as "> 99.99")
+#: digits of each criterion's value: an RSD or CV estimated from a few dozen values is known
+#: to about a fifth of itself, so two significant digits; recoveries and mass balances to 0.1 %.
 CRITERION_STYLES = {"recovery_pct": "pct", "aoac_recovery_pct": "pct", "horrat_r": "f2",
-                    "ratio_agreement_log": "log"}
+                    "ratio_agreement_log": "log", "max_rsd_pct": "se", "mass_balance_pct": "f1",
+                    "matrix_factor_cv_pct": "se", "method_recovery_pct": "f1",
+                    "method_recovery_rsd_pct": "se", "repeatability_rsd_pct": "se",
+                    "intermediate_rsd_pct": "se", "suitability_resolution_min": "f2",
+                    "suitability_tailing_max": "f2", "suitability_injection_rsd_max_pct": "se",
+                    "suitability_retention_factor_min": "f2"}
 
 
 def study_status(d: dict) -> tuple[str, str]:
@@ -101,7 +108,7 @@ class _Labels(dict):
 CRITERION_LABELS = _Labels({
     "recovery_pct": "Recovery at the worst case inside the tolerances (%)",
     "max_rsd_pct": "Repeatability, pooled RSD (%)",
-    "mass_balance_pct": "Mass balance of every run (%)",
+    "mass_balance_pct": "Mass balance of every run in the fit (%)",
     "ratio_agreement_log": "Agreement of log D between volume ratios",
     "lack_of_fit": "Lack of fit (p value)",
     "aoac_recovery_pct": "AOAC recovery range for the analyte level (%)",
@@ -281,7 +288,7 @@ def study_register(d: dict) -> list[Quantity]:
     rep = d.get("repeatability") or {}
     if rep.get("rsd_pct") is not None:
         out.append(_q(sid, "repeatability/rsd_pct", "pooled RSD of replicate runs", "%", None,
-                      ["repeatability", "rsd_pct"], ("value",), "g", d))
+                      ["repeatability", "rsd_pct"], ("value",), "se", d))
     lof = d.get("lack_of_fit") or {}
     if lof.get("F") is not None:
         out.append(_q(sid, "lack_of_fit/F", "lack-of-fit F statistic (pure error from the "
