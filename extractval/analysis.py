@@ -479,10 +479,8 @@ def fit_study(study: Study) -> StudyReport:
     warnings = [p.text() for p in study.warnings]
     if study.suitability is not None:
         # one warning per failing sequence, naming its runs (not one per run)
-        left_out = {o.run.run_id for o in outcomes
-                    if o.status == "not usable" and o.run.suitability}
         for seq, reason in study.suitability.report.failed().items():
-            ids = [r for r in study.suitability.runs.get(seq, ()) if r in left_out]
+            ids = study.suitability.left_out.get(seq, ())
             warnings.append(f"{study.suitability.settings.shown}: sequence {seq!r} fails system "
                             f"suitability ({reason}); "
                             + (f"its {len(ids)} run(s) ({', '.join(ids)}) are left out of the "
@@ -601,7 +599,9 @@ def suitability_verdicts(study: Study) -> list:
         else:
             detail = "no criterion could be judged from the table"
         n = len(study.suitability.runs.get(seq.sequence, ()))
-        detail += f" ({n} run{'s' if n != 1 else ''} in the sequence)"
+        out_n = len(study.suitability.left_out.get(seq.sequence, ()))
+        detail += (f"; {n} run{'s' if n != 1 else ''} in the sequence"
+                   + (f", {out_n} left out of the fit" if out_n else ""))
         out.append(verdict(seq.status, f"system suitability {seq.sequence}", None, None,
                            detail, basis))
     return out

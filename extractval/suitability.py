@@ -193,6 +193,10 @@ class SuitabilityLimits:
     def source(self, name: str) -> str:
         return "study.yaml" if name in self.from_study else "default (common practice)"
 
+    def said(self, name: str) -> str:
+        """Who set a limit, as verdict details say it."""
+        return "set in study.yaml" if name in self.from_study else "common-practice default"
+
     def basis(self, name: str) -> str:
         """The verdict basis of a criterion (acceptance.BASES): set by the study or a default."""
         return "target" if name in self.from_study else "default"
@@ -287,33 +291,33 @@ def _verdicts(seq: str, worst: dict, rsd: float | None, n_resp: int,
     def minimum(criterion, name, limit, label, fmt):
         if limit is None:
             return
-        src = limits.source(criterion)
+        src = limits.said(criterion)
         value = worst.get(name)
         if value is None:
             out.append(verdict("not assessed", f"suitability_{criterion}", None, limit,
-                               f"sequence {seq}: the table gives no inputs for {label}",
+                               f"the table gives no inputs for {label}",
                                limits.basis(criterion)))
             return
         ok = _at_least(value, limit)
         out.append(verdict("pass" if ok else "fail", f"suitability_{criterion}", value, limit,
-                           f"sequence {seq}: smallest {label} {value:{fmt}} "
+                           f"smallest {label} {value:{fmt}} "
                            f"{'>=' if ok else '<'} {limit:g} ({src})", limits.basis(criterion)))
 
     minimum("resolution_min", "resolution", limits.resolution_min,
             "resolution from the nearest neighbour", ".2f")
     if limits.tailing_max is not None:
         value = worst.get("tailing_factor")
-        src = limits.source("tailing_max")
+        src = limits.said("tailing_max")
         if value is None:
             out.append(verdict("not assessed", "suitability_tailing_max", None,
                                limits.tailing_max,
-                               f"sequence {seq}: the table gives no W0.05 and f",
+                               "the table gives no W0.05 and f",
                                limits.basis("tailing_max")))
         else:
             ok = _at_most(value, limits.tailing_max)
             out.append(verdict("pass" if ok else "fail", "suitability_tailing_max", value,
                                limits.tailing_max,
-                               f"sequence {seq}: largest tailing factor {value:.2f} "
+                               f"largest tailing factor {value:.2f} "
                                f"{'<=' if ok else '>'} {limits.tailing_max:g} ({src})",
                                limits.basis("tailing_max")))
     minimum("plates_min", "plate_number", limits.plates_min, "plate number", ".0f")
@@ -321,21 +325,21 @@ def _verdicts(seq: str, worst: dict, rsd: float | None, n_resp: int,
             "retention factor", ".2f")
     if limits.injection_rsd_max_pct is not None:
         lim = limits.injection_rsd_max_pct
-        src = limits.source("injection_rsd_max_pct")
+        src = limits.said("injection_rsd_max_pct")
         if n_resp == 0:
             out.append(verdict("not assessed", "suitability_injection_rsd_max_pct", None, lim,
-                               f"sequence {seq}: the table gives no replicate injection "
+                               "the table gives no replicate injection "
                                "responses", limits.basis("injection_rsd_max_pct")))
         elif rsd is None or n_resp < limits.injections_min:
             out.append(verdict("fail", "suitability_injection_rsd_max_pct", rsd, lim,
-                               f"sequence {seq}: {n_resp} replicate injection(s); at least "
+                               f"{n_resp} replicate injection(s); at least "
                                f"{limits.injections_min} are needed "
-                               f"({limits.source('injections_min')})",
+                               f"({limits.said('injections_min')})",
                                limits.basis("injection_rsd_max_pct")))
         else:
             ok = _at_most(rsd, lim)
             out.append(verdict("pass" if ok else "fail", "suitability_injection_rsd_max_pct",
-                               rsd, lim, f"sequence {seq}: RSD of {n_resp} replicate "
+                               rsd, lim, f"RSD of {n_resp} replicate "
                                f"injections {rsd:.2f} % {'<=' if ok else '>'} {lim:g} % "
                                f"({src})", limits.basis("injection_rsd_max_pct")))
     return out

@@ -97,6 +97,7 @@ class SuitabilitySet:
     settings: SuitabilitySettings
     report: SuitabilityReport
     runs: dict            # sequence -> run ids (table order), runs naming a sequence of the table
+    left_out: dict        # failing sequence -> ids of its runs left out of the fit (not excluded)
     unrecorded: dict      # sequence not in the table -> run ids
     unassigned: tuple     # run ids naming no sequence when the table holds several
     sha256: str | None = None
@@ -109,8 +110,9 @@ class SuitabilitySet:
         failed = self.report.failed()
         for s in d["sequences"]:
             s["runs"] = list(self.runs.get(s["sequence"], ()))
+            s["runs_left_out"] = list(self.left_out.get(s["sequence"], ()))
             s["reason"] = failed.get(s["sequence"])
-        d["runs_flagged"] = sum(len(self.runs.get(s, ())) for s in failed)
+        d["runs_flagged"] = sum(len(v) for v in self.left_out.values())
         d["sequences_not_in_table"] = {k: list(v) for k, v in self.unrecorded.items()}
         d["runs_without_sequence"] = list(self.unassigned)
         return d
@@ -311,6 +313,7 @@ def judge_runs(settings: SuitabilitySettings, injections: list[Injection],
     only = sequences[0] if len(sequences) == 1 else None
     failed = report.failed()
     members: dict[str, list[str]] = {}
+    left_out: dict[str, list[str]] = {}
     unrecorded: dict[str, list[str]] = {}
     unassigned: list[str] = []
     out = []
@@ -325,6 +328,8 @@ def judge_runs(settings: SuitabilitySettings, injections: list[Injection],
             if seq in failed:
                 run = replace(run, suitability=f"sequence {seq} fails system suitability "
                                                f"({failed[seq]})")
+                if not run.excluded:
+                    left_out.setdefault(seq, []).append(run.run_id)
         out.append(run)
     if unassigned:
         problems.append(Problem(f"{len(unassigned)} run(s) name no sequence and the suitability "
@@ -341,5 +346,6 @@ def judge_runs(settings: SuitabilitySettings, injections: list[Injection],
                                 expected="a sequence of the suitability table ("
                                          + ", ".join(sequences) + ")"))
     return SuitabilitySet(settings, report, {k: tuple(v) for k, v in members.items()},
+                          {k: tuple(v) for k, v in left_out.items()},
                           {k: tuple(v) for k, v in unrecorded.items()}, tuple(unassigned),
                           sha256), out

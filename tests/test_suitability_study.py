@@ -102,7 +102,9 @@ def test_failing_sequence_leaves_its_runs_out_and_visible(tmp_path):
     assert len(d["run_table"]) == 30
     assert any(r["status"] == "used" for r in s1)
     assert d["runs"]["used"] == sum(r["status"] == "used" for r in s1)
-    assert d["suitability"]["runs_flagged"] == len(s2)
+    left = [r["run"] for r in s2 if r["status"] == "not usable"]
+    assert d["suitability"]["runs_flagged"] == len(left) == len(s2) - 1   # K118-20 excluded
+    assert d["suitability"]["sequences"][1]["runs_left_out"] == left
     warn = [w for w in d["warnings"] if "fails system suitability" in w]
     assert len(warn) == 1 and "'S2'" in warn[0] and "left out of the fit" in warn[0]
     v = {x["criterion"]: x for x in d["verdicts"]}
@@ -125,7 +127,7 @@ def test_study_limits_and_switching_a_default_off(tmp_path):
     assert crit["suitability_resolution_min"]["basis"] == "target"
     assert crit["suitability_plates_min"]["status"] == "pass"         # 5899 >= 5000
     assert crit["suitability_injection_rsd_max_pct"]["basis"] == "default"
-    assert d["suitability"]["runs_flagged"] == 30
+    assert d["suitability"]["runs_flagged"] == 29          # the 30 runs but the excluded one
 
 
 def test_fit_json_and_summary_carry_the_suitability(tmp_path, capsys):

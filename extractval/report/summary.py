@@ -68,6 +68,10 @@ def _verdict_line(owner: str, v: dict) -> str:
     value = "none" if v.get("value") is None else fmt_number(v["value"],
                                                                criterion_style(v["criterion"]))
     basis = " (default)" if v.get("basis") == "default" else ""
+    if v.get("value") is None and v.get("limit") is None and v.get("detail"):
+        # a verdict that summarises others (a suitability sequence) says why in its detail
+        return (f"     {owner:<6} {label}{basis}: {v.get('outcome') or v['status']}; "
+                f"{v['detail']}")
     line = (f"     {owner:<6} {label}{basis}: {v.get('outcome') or v['status']}; "
             f"value {value}; limit {_limit(v.get('limit'))}")
     if v["status"] not in ("pass", "fail") and v.get("detail"):
@@ -149,8 +153,8 @@ def suitability_lines(suit: dict | None) -> list[str]:
             parts.append(f"injection RSD {s['injection_rsd_pct']:.2f} % (n {s['n_responses']})")
         line = (f"   suitability {s['sequence']}: {s['status']}"
                 + (f" ({', '.join(parts)}; worst injection)" if parts else ""))
-        if s["status"] == "fail":
-            line += f"; {len(s['runs'])} run(s) left out of the fit"
+        if s["runs_left_out"]:
+            line += f"; {len(s['runs_left_out'])} run(s) left out of the fit"
         out.append(line)
     return out
 
