@@ -393,6 +393,9 @@ calibration:
   table: calibration.csv
   level: amount
   unit: ug
+suitability: suitability.csv
+suitability_limits:
+  plates_min: 5000
 targets:
   recovery_pct: 95
 method_targets:
@@ -489,6 +492,35 @@ def make_method() -> None:
     _write(OUT / sid / "study.yaml", METHOD_YAML.encode("utf-8"))
 
 
+#: the suitability standard of HPA-2026-030 (invented chromatography, minutes): KRV-517 and its
+#: nearest neighbour, the N-oxide KRV-517-NO, on a C18 column; six injections per sequence
+METHOD_SST = {"tR": 4.85, "tR_neighbour": 4.42, "tM": 0.92, "w_half": 0.086,
+              "w_half_neighbour": 0.081, "w_5pct": 0.176, "tailing": 1.15, "area": 412_000.0,
+              "area_rsd": 0.006, "time_rsd": 0.002, "width_rsd": 0.02}
+
+
+def make_method_suitability(sid: str = "HPA-2026-030") -> None:
+    """The suitability table of the method study: both sequences pass the common-practice
+    defaults and the study's own plate-number minimum (the failing case, and its runs left out
+    of the fit, is shown by tests/test_suitability_study.py)."""
+    t = METHOD_SST
+    rng = np.random.default_rng(METHOD_TRUTH["seed"] + 1)
+    lines = ["sequence,injection,rt_analyte,rt_neighbour,rt_unretained,w_half_analyte,"
+             "w_half_neighbour,w_5pct,f_5pct,response"]
+    for seq in METHOD_SEQUENCES:
+        drift = 1.0 + 0.004 * rng.standard_normal()      # retention shifts between sequences
+        for i in range(6):
+            tr, tn = (x * drift * (1 + t["time_rsd"] * rng.standard_normal())
+                      for x in (t["tR"], t["tR_neighbour"]))
+            wh, wn, w5 = (x * (1 + t["width_rsd"] * rng.standard_normal())
+                          for x in (t["w_half"], t["w_half_neighbour"], t["w_5pct"]))
+            f = w5 / (2 * t["tailing"] * (1 + 0.03 * rng.standard_normal()))
+            area = t["area"] * (1 + t["area_rsd"] * rng.standard_normal())
+            lines.append(f"{seq},{seq[-1]}{i + 1},{tr:.3f},{tn:.3f},{t['tM']:.3f},{wh:.4f},"
+                         f"{wn:.4f},{w5:.4f},{f:.4f},{area:.0f}")
+    _write(OUT / sid / "suitability.csv", ("\n".join(lines) + "\n").encode("utf-8"))
+
+
 README = """\
 # Demo studies
 
@@ -503,7 +535,7 @@ of three invented intermediates. The numbers are simulated from a known model by
 | HPA-2026-016 | KRV-311 | neutral | 0.9 | - | `runs.csv`, organic phase only |
 | HPA-2026-021 | KRV-402 in ethyl acetate, by-product KRV-402-A | base / acid | 2.3 / 2.0 | 9.1 / 8.0 | `runs.csv`, impurity columns, work-up steps |
 | HPA-2026-022 | KRV-402 in toluene, by-product KRV-402-A | base / acid | 1.8 / 1.2 | 9.1 / 8.0 | `runs.csv`, impurity columns, work-up steps |
-| HPA-2026-030 | KRV-517 from plasma into MTBE | base | 2.4 | 8.8 | `runs.csv` with LC-MS peak areas and an internal standard, `calibration.csv` (two sequences); method runs: six plasma lots, pre/post/neat spikes, three levels, three days x two analysts |
+| HPA-2026-030 | KRV-517 from plasma into MTBE | base | 2.4 | 8.8 | `runs.csv` with LC-MS peak areas and an internal standard, `calibration.csv` (two sequences), `suitability.csv` (six injections per sequence, both passing); method runs: six plasma lots, pre/post/neat spikes, three levels, three days x two analysts |
 
 In HPA-2026-030 each day x analyst group of pre-spiked samples uses its own plasma lot, so the
 between-group component of the precision also holds the lots' differences in recovery.
@@ -517,6 +549,7 @@ def main() -> None:
     for sid in WORKUP_TRUTH:
         make_workup(sid)
     make_method()
+    make_method_suitability()
     _write(OUT / "README.md", README.encode("utf-8"))
     print(f"demo studies written to {OUT}")
 

@@ -483,8 +483,8 @@ def fit_study(study: Study) -> StudyReport:
             ids = study.suitability.left_out.get(seq, ())
             warnings.append(f"{study.suitability.settings.shown}: sequence {seq!r} fails system "
                             f"suitability ({reason}); "
-                            + (f"its {len(ids)} run(s) ({', '.join(ids)}) are left out of the "
-                               "fit" if ids else "no fitted run was quantified in it"))
+                            + (f"its {len(ids)} run(s) ({', '.join(ids)}) are not used"
+                               if ids else "no run that would be used was quantified in it"))
     for o in outcomes:
         if o.status == "not usable" and o.run.suitability:
             continue
@@ -601,7 +601,7 @@ def suitability_verdicts(study: Study) -> list:
         n = len(study.suitability.runs.get(seq.sequence, ()))
         out_n = len(study.suitability.left_out.get(seq.sequence, ()))
         detail += (f"; {n} run{'s' if n != 1 else ''} in the sequence"
-                   + (f", {out_n} left out of the fit" if out_n else ""))
+                   + (f", {out_n} not used" if out_n else ""))
         out.append(verdict(seq.status, f"system suitability {seq.sequence}", None, None,
                            detail, basis))
     return out

@@ -76,8 +76,9 @@ _LIMIT_WHAT = {
 }
 NO_SEQUENCE_RULE = ("a run that names no sequence belongs to the table's only sequence when "
                     "the table holds one")
-HANDLING = ("runs quantified in a sequence whose suitability fails are left out of the fit and "
-            "kept in the runs table as not usable, with the failing criteria as the reason")
+HANDLING = ("runs quantified in a sequence whose suitability fails are not used: left out of "
+            "the fit (kept in the runs table as not usable) and of the method-validation "
+            "statistics, with the failing criteria as the reason")
 
 
 @dataclass(frozen=True)

@@ -106,7 +106,7 @@ def test_failing_sequence_leaves_its_runs_out_and_visible(tmp_path):
     assert d["suitability"]["runs_flagged"] == len(left) == len(s2) - 1   # K118-20 excluded
     assert d["suitability"]["sequences"][1]["runs_left_out"] == left
     warn = [w for w in d["warnings"] if "fails system suitability" in w]
-    assert len(warn) == 1 and "'S2'" in warn[0] and "left out of the fit" in warn[0]
+    assert len(warn) == 1 and "'S2'" in warn[0] and "are not used" in warn[0]
     v = {x["criterion"]: x for x in d["verdicts"]}
     assert v["system suitability S2"]["status"] == "fail"
     assert v["system suitability S1"]["status"] == "pass"
@@ -304,3 +304,46 @@ def test_worked_check_through_the_table(tmp_path):
     v = {x["criterion"]: x for x in d["suitability"]["sequences"][0]["verdicts"]}
     assert v["suitability_injection_rsd_max_pct"]["status"] == "not judged"   # no responses
     assert v["suitability_resolution_min"]["status"] == "pass"
+
+
+def test_demo_method_study_shows_suitability_with_verdicts():
+    # studies/HPA-2026-030 (benchmarks/make_demo_studies.py): both sequences pass, with the
+    # defaults and the study's own plate-number minimum
+    study = load_study(ROOT / "studies" / "HPA-2026-030")
+    d = fit_study(study).to_dict()
+    s = d["suitability"]
+    assert [q["sequence"] for q in s["sequences"]] == ["SEQ-A", "SEQ-B"]
+    assert [q["status"] for q in s["sequences"]] == ["pass", "pass"]
+    assert s["limits"]["plates_min"] == {"value": 5000.0, "source": "study.yaml"}
+    assert s["limits"]["resolution_min"]["source"] == "default (common practice)"
+    assert all(len(q["verdicts"]) == 4 and q["n_injections"] == 6 for q in s["sequences"])
+    assert s["runs_flagged"] == 0
+    # every run of the study (shake-flask and method runs) names one of the two sequences
+    assert sorted(r for q in s["sequences"] for r in q["runs"]) == sorted(
+        r.run_id for r in study.runs + study.method_runs)
+    v = [x for x in d["verdicts"] if x["criterion"].startswith("system suitability")]
+    assert [x["status"] for x in v] == ["pass", "pass"]
+
+
+def test_failing_sequence_leaves_method_runs_out_too(tmp_path):
+    # the demo method study with one SEQ-B chromatogram whose neighbour moves to 4.75 min
+    folder = tmp_path / "MV-1"
+    shutil.copytree(ROOT / "studies" / "HPA-2026-030", folder)
+    lines = (folder / "suitability.csv").read_text().splitlines()
+    cols = lines[0].split(",")
+    row = next(i for i, line in enumerate(lines) if line.startswith("SEQ-B,"))
+    cells = lines[row].split(",")
+    cells[cols.index("rt_neighbour")] = "4.75"
+    lines[row] = ",".join(cells)
+    (folder / "suitability.csv").write_text("\n".join(lines) + "\n")
+    study = load_study(folder)
+    d = fit_study(study).to_dict()
+    assert d["suitability"]["failed_sequences"] == ["SEQ-B"]
+    seq_b = {r.run_id for r in study.runs + study.method_runs if r.sequence == "SEQ-B"}
+    assert set(d["suitability"]["sequences"][1]["runs_left_out"]) == seq_b
+    left = {r["run"]: r["reason"] for r in d["method_recovery"]["left_out"]}
+    method_b = {r.run_id for r in study.method_runs if r.sequence == "SEQ-B"}
+    assert method_b and method_b <= set(left)
+    assert all("SEQ-B fails system suitability" in left[r] for r in method_b)
+    fitted_b = [r for r in d["run_table"] if r["run"] in seq_b]
+    assert fitted_b and all(r["status"] == "not usable" for r in fitted_b)

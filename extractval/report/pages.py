@@ -273,11 +273,9 @@ def all_verdicts(d: dict) -> list[dict]:
 
 
 #: the suitability limits as the System suitability section names them
-LIMIT_WORDS = {"resolution_min": "resolution at least", "tailing_max": "tailing factor at most",
-               "injection_rsd_max_pct": "RSD of replicate injections at most",
-               "injections_min": "replicate injections at least",
-               "plates_min": "plate number at least",
-               "retention_factor_min": "retention factor at least"}
+LIMIT_WORDS = {"resolution_min": "R<sub>s</sub> ≥", "tailing_max": "T ≤",
+               "injection_rsd_max_pct": "injection RSD ≤", "injections_min": "injections ≥",
+               "plates_min": "N ≥", "retention_factor_min": "k ≥"}
 
 
 SYSTEM_LABELS = {"aqueous": "Aqueous phase", "organic": "Organic phase (solvent)",

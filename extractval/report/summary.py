@@ -154,7 +154,7 @@ def suitability_lines(suit: dict | None) -> list[str]:
         line = (f"   suitability {s['sequence']}: {s['status']}"
                 + (f" ({', '.join(parts)}; worst injection)" if parts else ""))
         if s["runs_left_out"]:
-            line += f"; {len(s['runs_left_out'])} run(s) left out of the fit"
+            line += f"; {len(s['runs_left_out'])} run(s) not used"
         out.append(line)
     return out
 
