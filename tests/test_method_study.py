@@ -252,3 +252,25 @@ def test_method_section_numbers_are_the_dicts_and_in_the_register():
                       and not s.endswith("/se") and "/s_r_ci95/" not in s}
     assert method_sources <= shown, method_sources - shown
     assert re.search(r"method/recovery/overall", section)
+
+
+def test_acceptance_table_shows_per_level_criteria_as_a_grid():
+    from extractval.report.pages import Pages, StudyInput
+    from tests.test_report_pages import DOSSIER, TEMPLATES
+
+    d = fit_study(load_study(DEMO)).to_dict()
+    page = Pages(TEMPLATES).study_page(StudyInput("HPA-2026-030", d), DOSSIER)
+    section = page[page.index("## Acceptance criteria"):page.index("## Checks of the data")]
+    grid = section[section.index("Criterion, per level"):section.index("</table>",
+                                                                       section.index("per level"))]
+    assert grid.count("<tr>") == 4              # one row per criterion (after the header)
+    assert "<th>low</th><th>mid</th><th>high</th>" in grid
+    assert grid.count("xv-verdict--pass") == 12
+    assert "15 (default)" in grid                # the matrix-factor CV limit nobody set
+    # every per-level verdict is also listed on its own, with how it was judged, in a fold
+    import html
+
+    folded = html.unescape(section[section.index("one by one"):])
+    for v in d["verdicts"]:
+        if "[" in v["criterion"]:
+            assert v["detail"] in folded
