@@ -13,6 +13,7 @@ import numpy as np
 
 from . import __version__
 from .advice import NextRuns, advise
+from .formats import ONE_PHASE_PLOT_RANGE  # noqa: F401  (also named here)
 from .fitting import (ERROR_MODEL, INTERVAL_METHOD, LOG_D, LOG_E, LOG_Q, WEIGHTING,
                       FitImpossible, FitResult, Observations, fit_model)
 from .models import MODELS, get_model
@@ -67,8 +68,6 @@ def _observation(run: Run) -> tuple[str, float] | str:
             "log scale")
 
 
-#: fractions between which a one-phase run gives a log D worth plotting
-ONE_PHASE_PLOT_RANGE = (0.02, 0.98)
 
 
 def observed_log_d(run: Run) -> float | None:

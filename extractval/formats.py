@@ -24,6 +24,10 @@ from __future__ import annotations
 
 import re
 
+#: fractions between which a one-phase run gives a log D worth plotting (the plot and the
+#: study page's caption both say it)
+ONE_PHASE_PLOT_RANGE = (0.02, 0.98)
+
 #: recoveries from here up to 100 % are written "> 99.99" (two decimals below it)
 RECOVERY_CAP_PCT = 99.99
 #: recoveries from here (one decimal would show 99.9) are written with two decimals

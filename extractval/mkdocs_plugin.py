@@ -161,10 +161,25 @@ def set_aside_html(markdown: str) -> tuple[str, list[str]]:
 def put_back_html(html: str, blocks, searchable: bool) -> str:
     """Put the blocks set aside back at their placeholders: those the search may read
     (``searchable``), or those marked ``data-search-exclude``."""
-    for i, block in enumerate(blocks):
-        if ("data-search-exclude" not in block.split(">", 1)[0]) == searchable:
-            html = html.replace(_placeholder(i), block, 1)
-    return html
+    if not blocks:
+        return html
+    used: set[int] = set()
+
+    def block_for(m: re.Match) -> str:
+        i = int(m.group(1))
+        if i >= len(blocks) or i in used:        # only the first placeholder of a block
+            return m.group(0)
+        block = blocks[i]
+        if ("data-search-exclude" not in block.split(">", 1)[0]) != searchable:
+            return m.group(0)
+        used.add(i)
+        return block
+
+    # one pass over the page (a register page has thousands of blocks)
+    return _PLACEHOLDER.sub(block_for, html)
+
+
+_PLACEHOLDER = re.compile(r"<!--xv-block-(\d+)-->")
 
 
 def docs_dir(config_file: Path) -> Path:

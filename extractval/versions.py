@@ -67,10 +67,23 @@ def published(site_dir: Path | None, archive: Path | None) -> dict[str, dict[str
     return out
 
 
+#: the head of a results.json as :func:`extractval.report.register.results_json` writes it
+_HEAD = re.compile(rb'\{\s*"dossier_version": "[^"\\]*",\s*"software": "[^"\\]*",'
+                   rb'\s*"build_date": "([^"\\]*)"')
+
+
 def _date(files: dict[str, bytes]) -> str:
+    """A version's build date, read off the head of its results.json (which can be tens of
+    megabytes) when it has the usual layout, else from the whole document."""
+    data = files.get("results.json")
+    if data is None:
+        return ""
+    m = _HEAD.match(data, 0, 4096)
+    if m:
+        return m.group(1).decode("ascii", "replace")
     try:
-        return json.loads(files["results.json"]).get("build_date", "")
-    except (KeyError, ValueError):
+        return json.loads(data).get("build_date", "")
+    except (ValueError, AttributeError):
         return ""
 
 

@@ -22,13 +22,11 @@ from pathlib import Path
 import jinja2
 from markupsafe import Markup
 
-from .plots import plot_name
 from ..acceptance import OUTCOME_WORDS
-from ..analysis import ONE_PHASE_PLOT_RANGE
-from ..formats import is_bound
+from ..formats import ONE_PHASE_PLOT_RANGE, is_bound
 from .register import (CRITERION_LABELS, Dossier, Quantity, criterion_style, fmt_number,
-                       pointer, register_rows, study_status,
-                       resolve, results_csv, results_json, safe_name, study_register)
+                       plot_name, pointer, register_rows, resolve, results_csv, results_json,
+                       safe_name, study_register, study_status)
 from .text import html_attr, md_text
 
 #: the dossier's Markdown files besides the study pages

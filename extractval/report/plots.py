@@ -34,6 +34,7 @@ from matplotlib.textpath import TextToPath
 from matplotlib.ticker import FixedLocator, FuncFormatter, MultipleLocator, NullLocator
 
 from ..formats import fmt_number
+from .register import plot_name  # noqa: F401  (named here too; pages import it lightly)
 
 #: The dossier's own palette; hues told apart by lightness as well as colour, and every series
 #: also has its own marker shape, so no reading depends on colour alone.
@@ -776,24 +777,6 @@ def calibration_error_plot(curve: dict, unit: str | None) -> bytes | None:
     ax.set_ylabel("back-calculated error (%)")
     _legend(ax)
     return _svg(fig)
-
-
-def plot_name(kind: str, procedure_id: str | None = None) -> str:
-    """File name of a plot inside the study's folder of the site."""
-    from .register import safe_name
-
-    if kind == "portions":
-        return f"portions-{safe_name(procedure_id)}.svg"
-    if kind == "calibration":
-        return f"calibration-{safe_name(procedure_id)}.svg"
-    if kind == "calibration_errors":
-        return f"calibration-{safe_name(procedure_id)}-errors.svg"
-    if kind == "purity_map":
-        return f"purity-map-{safe_name(procedure_id)}.svg"
-    if kind == "separation":
-        return "separation-factor.svg"
-    return {"log_d": "log-d-vs-ph.svg", "residuals": "residuals-vs-ph.svg",
-            "design_space": "design-space.svg"}[kind]
 
 
 def study_plots(d: dict) -> dict[str, bytes]:

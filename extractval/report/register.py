@@ -808,3 +808,19 @@ def results_csv(rows: list[dict]) -> bytes:
     for row in rows:
         w.writerow([csv_cell(row[c]) for c in CSV_COLUMNS])   # a float is written as repr
     return buf.getvalue().encode("utf-8")
+
+
+def plot_name(kind: str, procedure_id: str | None = None) -> str:
+    """File name of a plot inside the study's folder of the site."""
+    if kind == "portions":
+        return f"portions-{safe_name(procedure_id)}.svg"
+    if kind == "calibration":
+        return f"calibration-{safe_name(procedure_id)}.svg"
+    if kind == "calibration_errors":
+        return f"calibration-{safe_name(procedure_id)}-errors.svg"
+    if kind == "purity_map":
+        return f"purity-map-{safe_name(procedure_id)}.svg"
+    if kind == "separation":
+        return "separation-factor.svg"
+    return {"log_d": "log-d-vs-ph.svg", "residuals": "residuals-vs-ph.svg",
+            "design_space": "design-space.svg"}[kind]
