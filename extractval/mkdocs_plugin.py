@@ -69,6 +69,11 @@ class DossierPlugin(BasePlugin[DossierConfig]):
             if old is not None:
                 files.remove(old)
             files.append(File.generated(config, path, content=content))
+        for path, source in sorted(self.prepared.linked.items()):
+            old = files.get_file_from_path(path)
+            if old is not None:
+                files.remove(old)
+            files.append(_LinkedFile.generated(config, path, abs_src_path=str(source)))
         return files
 
     # Python-Markdown parses every raw HTML block with an HTML parser only to pass it through
@@ -109,6 +114,22 @@ class DossierPlugin(BasePlugin[DossierConfig]):
     def on_serve(self, server, *, config, builder):
         server.watch(str(self._studies(config)))
         return server
+
+
+class _LinkedFile(File):
+    """A file whose bytes are those of a file kept on disk that is never changed in place (a
+    plot in the cache, a version already published): the site gets a hard link to it, a
+    copy where a link cannot be made (another disk, a file system without links)."""
+
+    def copy_file(self, dirty: bool = False) -> None:
+        dest = self.abs_dest_path
+        os.makedirs(os.path.dirname(dest), exist_ok=True)
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(dest)
+        try:
+            os.link(self.abs_src_path, dest)
+        except OSError:
+            super().copy_file(dirty)
 
 
 _HTML_START = re.compile(r"<(table|div|figure)(?=[\s>])")

@@ -34,7 +34,8 @@ from pathlib import Path
 from typing import Callable
 
 from . import __version__
-from .report.pages import Pages, StudyInput, TemplateProblem, nav, study_page_path
+from .report.pages import (Pages, StudyInput, StudyParts, TemplateProblem, nav,
+                           solvent_study_ids, study_page_path)
 from .report.register import Dossier
 
 SOFTWARE = f"extractval {__version__}"
@@ -185,15 +186,16 @@ class Cache:
         messages and pages name it (part of what the pages say)."""
         return _sha(software_fingerprint(), "folder", shown_as, *files)[:24]
 
-    def get(self, study_id: str, key: str) -> tuple[str, dict[str, bytes], dict] | None:
-        """(report JSON text, plots, meta) of an entry, or None."""
+    def get(self, study_id: str, key: str) -> tuple[str, dict[str, Path], dict] | None:
+        """(report JSON text, plots, meta) of an entry, or None. The plots are the entry's
+        files (the site links or copies them; they are never changed in place)."""
         if self.root is None:
             return None
         entry = self.root / study_id / key
         try:
             text = (entry / "report.json").read_text(encoding="utf-8")
             meta = json.loads((entry / "meta.json").read_text(encoding="utf-8"))
-            plots = {p.name: p.read_bytes() for p in sorted((entry / "plots").glob("*.svg"))}
+            plots = {p.name: p for p in sorted((entry / "plots").glob("*.svg"))}
         except (OSError, ValueError):
             return None
         return text, plots, meta
@@ -223,26 +225,52 @@ class Cache:
 
 
 # -- preparing the dossier ------------------------------------------------------------------------
-@dataclass
 class Outcome:
-    """One study after reading and fitting."""
+    """One study after reading and fitting.
 
-    study_id: str
-    data: dict | None
-    plots: dict[str, bytes]
-    errors: list[str]
-    key: str
-    runs: int = 0
-    cached: bool = False
-    seconds: float = 0.0
-    text_sha: str = ""          # SHA-256 of the report's JSON text: what its page is made of
+    A study taken from the cache holds its report's JSON text (``text``) and parses it only
+    when ``data`` is asked for: a rebuild that keeps the study's page and its parts of the
+    pages listing every study never does. ``plots`` are by file name, bytes or the cache's
+    file holding them.
+    """
+
+    def __init__(self, study_id: str, data: dict | None, plots: dict[str, bytes | Path],
+                 errors: list[str], key: str, runs: int = 0, cached: bool = False,
+                 seconds: float = 0.0, text_sha: str = "", text: str | None = None,
+                 fit_problems: list[str] | None = None):
+        self.study_id, self.plots, self.errors, self.key = study_id, plots, errors, key
+        self.runs, self.cached, self.seconds = runs, cached, seconds
+        self.text_sha = text_sha     # SHA-256 of the report's JSON text: what its pages show
+        self._data, self._text, self._fit_problems = data, text, fit_problems
+
+    @property
+    def data(self) -> dict | None:
+        if self._data is None and self._text is not None:
+            self._data = json.loads(self._text)
+        return self._data
+
+    @property
+    def has_data(self) -> bool:
+        """The study was read and fitted (its dict exists, parsed or not)."""
+        return self._data is not None or self._text is not None
+
+    @property
+    def loaded(self) -> bool:
+        return self._data is not None or self._text is None
+
+    @property
+    def fit_problems(self) -> list[str]:
+        """Why the fit was impossible (the dict's "problems"); [] when it was made."""
+        if self._fit_problems is None:
+            self._fit_problems = list((self.data or {}).get("problems", []))
+        return self._fit_problems
 
     @property
     def problems(self) -> list[str]:
         """Why the study has no numbers: its read errors, or why the fit was impossible."""
-        if self.data is None:
+        if not self.has_data:
             return list(self.errors)
-        return [f"{self.study_id}: not fitted: {p}" for p in self.data.get("problems", [])]
+        return [f"{self.study_id}: not fitted: {p}" for p in self.fit_problems]
 
 
 @dataclass
@@ -265,6 +293,11 @@ class Prepared:
     page_keys: dict[str, str] = field(default_factory=dict)
     reused: dict[str, tuple[bytes, list]] = field(default_factory=dict)
     page_cache: PageCache | None = None
+    #: files by site path whose bytes are those of a file already on disk (plots in the
+    #: cache, versions already published), which the generator links or copies
+    linked: dict[str, Path] = field(default_factory=dict)
+    #: studies whose parts of the index, register and exports came from the cache
+    parts_reused: list[str] = field(default_factory=list)
 
     @property
     def failed(self) -> list[Outcome]:
@@ -292,9 +325,9 @@ def _progress_line(i: int, n: int, o: Outcome) -> str:
     if n >= 10:
         filled = round(20 * i / n)
         bar = "[" + "#" * filled + "." * (20 - filled) + "] "
-    if o.data is None:
+    if not o.has_data:
         state = f"ERROR ({len(o.errors)} problem{'s' if len(o.errors) != 1 else ''})"
-    elif o.data.get("problems"):
+    elif o.fit_problems:
         state = "not fitted"
     else:
         state = "fitted"
@@ -344,8 +377,9 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
             progress(_progress_line(done, n, o))
 
     def from_cache(src, text, plots, meta) -> Outcome:
-        return Outcome(src.study_id, json.loads(text), plots, [], meta["inputs_key"],
-                       meta["runs"], cached=True, text_sha=_sha(text))
+        return Outcome(src.study_id, None, plots, [], meta["inputs_key"], meta["runs"],
+                       cached=True, text_sha=_sha(text), text=text,
+                       fit_problems=meta.get("problems"))
 
     for src in sources:
         t0 = time.perf_counter()
@@ -379,9 +413,11 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
         todo.append((src, study, key))
 
     def finish(src, study, key, text, plots, seconds):
-        meta = {"inputs_key": inputs_key(study), "runs": len(study.runs)}
+        data = json.loads(text)
+        meta = {"inputs_key": inputs_key(study), "runs": len(study.runs),
+                "problems": list(data.get("problems", []))}
         cache.put(src.study_id, key, text, plots, meta)
-        report(Outcome(src.study_id, json.loads(text), plots, [], meta["inputs_key"],
+        report(Outcome(src.study_id, data, plots, [], meta["inputs_key"],
                        meta["runs"], seconds=seconds, text_sha=_sha(text)))
 
     def failed(src, study, exc):
@@ -422,7 +458,7 @@ def dossier_version(outcomes: list[Outcome], templates_dir: Path, config_file: P
     if config_file is not None and Path(config_file).is_file():
         parts.append(Path(config_file).read_bytes())
     for o in sorted(outcomes, key=lambda o: o.study_id):
-        parts += [o.study_id, o.key, "ok" if o.data is not None else "failed"]
+        parts += [o.study_id, o.key, "ok" if o.has_data else "failed"]
     return "dv-" + _sha(*parts)[:12]
 
 
@@ -430,43 +466,75 @@ def render(outcomes: list[Outcome], templates_dir: Path, config_file: Path | Non
            date: str, page_cache: PageCache | None = None) -> Prepared:
     """All files of the site from the outcomes (pages, plots, exports, CSS).
 
-    With a ``page_cache``, a study page whose finished HTML the cache holds is not rendered.
+    With a ``page_cache``, a study page whose finished HTML the cache holds is not rendered,
+    and a study whose parts of the pages listing every study (StudyParts) it holds is not
+    rendered there either; a study with both is not even parsed.
     """
     dossier = Dossier(dossier_version(outcomes, templates_dir, config_file), SOFTWARE, date)
     shown = Dossier(VERSION_TOKEN, SOFTWARE, DATE_TOKEN)
     tokens = {VERSION_TOKEN: dossier.version, DATE_TOKEN: date}
-    inputs = [StudyInput(o.study_id, o.data, tuple(o.errors), tuple(sorted(o.plots)), o.key)
-              for o in outcomes]
-    site_nav = nav(inputs)
-    page_keys = _page_keys(outcomes, site_nav, templates_dir, config_file)
+    site_nav = nav([StudyInput(o.study_id, None) for o in outcomes])
+    base = _site_digest(templates_dir, config_file)
+    page_keys = _page_keys(outcomes, site_nav, base)
     reused: dict[str, tuple[bytes, list]] = {}
+    parts: dict[str, StudyParts] = {}
+    part_keys = {o.study_id: _sha(base, "parts", o.study_id, o.key, o.text_sha)[:32]
+                 for o in outcomes if o.has_data}
     if page_cache is not None:
         for path, key in page_keys.items():
             hit = page_cache.get(path, key)
             if hit is not None:       # a missing or unreadable entry: the page is rendered
                 reused[path] = hit
-    ok = [o for o in outcomes if o.data is not None]
-    runs = {k: sum(o.data["runs"][k] for o in ok) for k in ("total", "used", "excluded")}
-    n_failed = len(outcomes) - len(ok)
-    counts = {
-        "studies_text": f"{len(outcomes)}" + (f" ({n_failed} not published: input errors)"
-                                              if n_failed else ""),
-        "runs_text": f"{runs['total']} ({runs['used']} used, {runs['excluded']} excluded)",
-    }
+        for sid, key in part_keys.items():
+            got = page_cache.get_parts(sid, key)
+            if got is not None:
+                parts[sid] = got
+    kept_parts = sorted(parts)
+
+    def study_input(o: Outcome, load: bool) -> StudyInput:
+        load = load or o.loaded
+        return StudyInput(o.study_id, o.data if load else None, tuple(o.errors),
+                          tuple(sorted(o.plots)), o.key, loaded=load)
+
+    pages = Pages(templates_dir)
     try:
-        files = Pages(templates_dir).dossier_files(inputs, shown, counts, skip=reused)
+        for o in outcomes:
+            if o.study_id not in parts:
+                parts[o.study_id] = pages.study_parts(study_input(o, True), shown)
+        made = [parts[o.study_id] for o in outcomes]
+        compared = solvent_study_ids(made)        # the Solvents compared page reads these
+        inputs = [study_input(o, o.study_id in compared
+                              or study_page_path(o.study_id) not in reused)
+                  for o in outcomes]
+        runs = {k: sum(p.runs[k] for p in made if p.runs is not None)
+                for k in ("total", "used", "excluded")}
+        n_failed = sum(not o.has_data for o in outcomes)
+        counts = {
+            "studies_text": f"{len(outcomes)}" + (f" ({n_failed} not published: input "
+                                                  "errors)" if n_failed else ""),
+            "runs_text": f"{runs['total']} ({runs['used']} used, {runs['excluded']} excluded)",
+        }
+        files = pages.dossier_files(inputs, shown, counts, skip=reused, parts=parts)
     except TemplateProblem as exc:
         raise SiteBuildError(f"a page template failed: {exc}") from None
+    if page_cache is not None:
+        for sid, key in part_keys.items():
+            if sid not in kept_parts:
+                page_cache.put_parts(sid, key, parts[sid])
     for path in list(files):
         if not path.endswith(".md"):          # exports: this build's values right away
             files[path] = put_tokens(files[path], tokens)
+    linked: dict[str, Path] = {}
     for o in outcomes:
         folder = study_page_path(o.study_id).rsplit("/", 1)[0]
         for name, data in sorted(o.plots.items()):
-            files[f"{folder}/{name}"] = data
+            if isinstance(data, Path):
+                linked[f"{folder}/{name}"] = data
+            else:
+                files[f"{folder}/{name}"] = data
     footer = f"Dossier {shown.version} · {shown.software} · built {shown.build_date}"
     return Prepared(files, site_nav, footer, dossier, outcomes, tokens, page_keys, reused,
-                    page_cache)
+                    page_cache, linked, kept_parts)
 
 
 def put_tokens(data: bytes, tokens: dict[str, str]) -> bytes:
@@ -477,13 +545,9 @@ def put_tokens(data: bytes, tokens: dict[str, str]) -> bytes:
 
 
 # -- finished pages, kept between builds ----------------------------------------------------------
-def _page_keys(outcomes: list[Outcome], site_nav: list, templates_dir: Path,
-               config_file: Path | None) -> dict[str, str]:
-    """The key of each study page's finished HTML: the study's report (its JSON text), errors
-    and plots, and everything of the site that shows on every page or decides how a page is
-    made (software with the generator and theme versions, templates, mkdocs.yml, navigation,
-    the list of the site's files). The index and register pages show every study and are
-    made every build."""
+def _site_digest(templates_dir: Path, config_file: Path | None) -> str:
+    """What decides how every page is made besides its study: the software with the
+    generator's, theme's and template engine's versions, the templates and mkdocs.yml."""
     from importlib.metadata import PackageNotFoundError, version
 
     parts: list[bytes | str] = [software_fingerprint()]
@@ -496,12 +560,20 @@ def _page_keys(outcomes: list[Outcome], site_nav: list, templates_dir: Path,
         parts += [f.relative_to(templates_dir).as_posix(), f.read_bytes()]
     if config_file is not None and Path(config_file).is_file():
         parts.append(Path(config_file).read_bytes())
+    return _sha(*parts)
+
+
+def _page_keys(outcomes: list[Outcome], site_nav: list, base: str) -> dict[str, str]:
+    """The key of each study page's finished HTML: the study's report (its JSON text), errors
+    and plots, and everything of the site that shows on every page or decides how a page is
+    made (``base``: :func:`_site_digest`; the navigation, the list of the site's files).
+    The index and register pages show every study and are made every build (from each
+    study's kept parts)."""
     paths = []
     for o in outcomes:
         page = study_page_path(o.study_id)
         paths += [page] + [f"{page.rsplit('/', 1)[0]}/{n}" for n in sorted(o.plots)]
-    parts += [json.dumps(site_nav, sort_keys=True), json.dumps(sorted(paths))]
-    site_key = _sha(*parts)
+    site_key = _sha(base, json.dumps(site_nav, sort_keys=True), json.dumps(sorted(paths)))
     return {study_page_path(o.study_id): _sha(site_key, o.study_id, o.key, o.text_sha,
                                               *o.errors, *sorted(o.plots))[:32]
             for o in outcomes}
@@ -510,7 +582,9 @@ def _page_keys(outcomes: list[Outcome], site_nav: list, templates_dir: Path,
 class PageCache:
     """Finished HTML pages (with the tokens, not this build's version and date) and their
     search-index entries, one entry per page: ``<root>/pages/<page-hash>/<key>.html`` and
-    ``.json``. Written whole or not at all; safe to delete."""
+    ``.json``; and each study's parts of the pages listing every study
+    (``<root>/parts/<study-hash>/<key>.json``). Written whole or not at all; safe to
+    delete."""
 
     def __init__(self, root: Path):
         self.root = Path(root) / "pages"
@@ -539,6 +613,32 @@ class PageCache:
                 with os.fdopen(fd, "wb") as fh:
                     fh.write(data)
                 os.replace(tmp, folder / (key + suffix))
+        except OSError:
+            pass        # a cache that cannot be written only costs time
+
+    def _parts_file(self, study_id: str, key: str) -> Path:
+        return self.root.parent / "parts" / _sha(study_id)[:16] / f"{key}.json"
+
+    def get_parts(self, study_id: str, key: str) -> StudyParts | None:
+        """A study's parts of the index, register and exports, or None."""
+        try:
+            got = StudyParts.from_dict(json.loads(
+                self._parts_file(study_id, key).read_text(encoding="utf-8")))
+        except (OSError, ValueError, TypeError):
+            return None
+        return got if got.study_id == study_id else None
+
+    def put_parts(self, study_id: str, key: str, parts: StudyParts) -> None:
+        target = self._parts_file(study_id, key)
+        try:
+            target.parent.mkdir(parents=True, exist_ok=True)
+            for old in target.parent.iterdir():
+                if old.name != target.name:
+                    old.unlink(missing_ok=True)
+            fd, tmp = tempfile.mkstemp(prefix=".tmp-", dir=target.parent)
+            with os.fdopen(fd, "w", encoding="utf-8") as fh:
+                json.dump(parts.to_dict(), fh)
+            os.replace(tmp, target)
         except OSError:
             pass        # a cache that cannot be written only costs time
 
@@ -727,6 +827,8 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
     if archive is not None:
         from .versions import archive_version
 
+        # a version kept from the previous site is named by its path in the site folder,
+        # which now holds the new site's link to the same file
         try:
             archive_version(archive, prepared.dossier.version, own)
         except OSError as exc:
@@ -758,14 +860,14 @@ def _add_approvals(prepared: Prepared, templates_dir: Path, studies_dir: Path | 
 
 
 def _add_versions(prepared: Prepared, templates_dir: Path, site_dir: Path,
-                  archive: Path | None) -> dict[str, bytes]:
+                  archive: Path | None) -> dict[str, bytes | Path]:
     """versions/ and the Changes page (extractval.versions); this version's files."""
     from .versions import add_versions
 
     pages = Pages(templates_dir)
     try:
         return add_versions(prepared.files, prepared.nav, site_dir, archive,
-                            pages.changes_page)
+                            pages.changes_page, prepared.linked)
     except TemplateProblem as exc:
         raise SiteBuildError(f"a page template failed: {exc}") from None
     except (OSError, ValueError, KeyError) as exc:

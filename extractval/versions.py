@@ -49,17 +49,23 @@ def register_html(doc: dict) -> bytes:
     return ("\n".join(lines) + "\n").encode("utf-8")
 
 
-def _read_versions(folder: Path | None) -> dict[str, dict[str, bytes]]:
-    found: dict[str, dict[str, bytes]] = {}
+def _read_versions(folder: Path | None) -> dict[str, dict[str, Path]]:
+    """Each version's files there (not read: a version is tens of megabytes, and a build
+    links or copies them unchanged)."""
+    found: dict[str, dict[str, Path]] = {}
     if folder is None or not folder.is_dir():
         return found
     for d in sorted(folder.iterdir()):
         if d.is_dir() and _VERSION.fullmatch(d.name) and (d / "results.json").is_file():
-            found[d.name] = {n: (d / n).read_bytes() for n in KEPT if (d / n).is_file()}
+            found[d.name] = {n: d / n for n in KEPT if (d / n).is_file()}
     return found
 
 
-def published(site_dir: Path | None, archive: Path | None) -> dict[str, dict[str, bytes]]:
+def _bytes(data: bytes | Path) -> bytes:
+    return data.read_bytes() if isinstance(data, Path) else data
+
+
+def published(site_dir: Path | None, archive: Path | None) -> dict[str, dict[str, Path]]:
     """Every version already published: the site's versions/ and the archive (the archive's
     copy wins where both hold one, as it is the one kept outside the site)."""
     out = _read_versions(None if site_dir is None else Path(site_dir) / VERSIONS)
@@ -72,12 +78,22 @@ _HEAD = re.compile(rb'\{\s*"dossier_version": "[^"\\]*",\s*"software": "[^"\\]*"
                    rb'\s*"build_date": "([^"\\]*)"')
 
 
-def _date(files: dict[str, bytes]) -> str:
+def _date(files: dict[str, bytes | Path]) -> str:
     """A version's build date, read off the head of its results.json (which can be tens of
     megabytes) when it has the usual layout, else from the whole document."""
     data = files.get("results.json")
     if data is None:
         return ""
+    if isinstance(data, Path):
+        try:
+            with open(data, "rb") as fh:
+                head = fh.read(4096)
+        except OSError:
+            return ""
+        m = _HEAD.match(head)
+        if m:
+            return m.group(1).decode("ascii", "replace")
+        data = _bytes(data)
     m = _HEAD.match(data, 0, 4096)
     if m:
         return m.group(1).decode("ascii", "replace")
@@ -102,23 +118,31 @@ def previous_version(site_dir: Path | None, earlier: dict[str, dict[str, bytes]]
 
 
 def add_versions(files: dict[str, bytes], nav: list, site_dir: Path | None,
-                 archive: Path | None, render_changes) -> dict[str, dict[str, bytes]]:
+                 archive: Path | None, render_changes,
+                 linked: dict[str, Path] | None = None) -> dict[str, bytes | Path]:
     """Put this version and every earlier one under versions/ and the Changes page into
     ``files`` (and the page into ``nav``). A version already published keeps its first
-    files: a cited version never changes. Returns this version's files (for the archive)."""
+    files: a cited version never changes. With ``linked``, the files of versions already
+    published go there (site path -> the file on disk) instead of being read into
+    ``files``. Returns this version's files (for the archive)."""
     doc = json.loads(files["results.json"])
     current = doc["dossier_version"]
     earlier = published(site_dir, archive)
     own = earlier.get(current) or {"results.json": files["results.json"],
                                    "results.csv": files["results.csv"],
                                    "register.html": register_html(doc)}
-    for v, kept in sorted(earlier.items()):
+    for v, kept in sorted(earlier.items()) + [(current, own)]:
         for name, data in kept.items():
-            files[f"{VERSIONS}/{v}/{name}"] = data
-    for name, data in own.items():
-        files[f"{VERSIONS}/{current}/{name}"] = data
+            path = f"{VERSIONS}/{v}/{name}"
+            if isinstance(data, Path) and linked is not None:
+                linked[path] = data
+                files.pop(path, None)
+            else:
+                files[path] = _bytes(data)
+                if linked is not None:
+                    linked.pop(path, None)
     prev = previous_version(site_dir, earlier, current)
-    comparison = (compare(json.loads(earlier[prev]["results.json"]), doc)
+    comparison = (compare(json.loads(_bytes(earlier[prev]["results.json"])), doc)
                   if prev is not None else None)
     listing = sorted(({"version": v, "date": _date(k)} for v, k in
                       {**earlier, current: own}.items()),
@@ -129,7 +153,7 @@ def add_versions(files: dict[str, bytes], nav: list, site_dir: Path | None,
     return own
 
 
-def archive_version(archive: Path, version: str, own: dict[str, bytes]) -> None:
+def archive_version(archive: Path, version: str, own: dict[str, bytes | Path]) -> None:
     """Copy this version's files into ``archive/<version>/``; a version already there is left
     as it is (the first publication is the record)."""
     target = Path(archive) / version
@@ -138,5 +162,5 @@ def archive_version(archive: Path, version: str, own: dict[str, bytes]) -> None:
     tmp = Path(archive) / f".{version}.tmp-{os.getpid()}"
     tmp.mkdir(parents=True, exist_ok=True)
     for name, data in own.items():
-        (tmp / name).write_bytes(data)
+        (tmp / name).write_bytes(_bytes(data))
     os.replace(tmp, target)

@@ -7,15 +7,20 @@ converted by the site generator) is the reference for the bytes of a build that 
 
 from __future__ import annotations
 
+import collections
 import hashlib
 import json
+import os
 import re
 import shutil
 from pathlib import Path
 
+import mkdocs.commands.build as mkdocs_build
 import pytest
 
-from extractval import site
+from extractval import mkdocs_plugin, site
+from extractval.report import pages
+from extractval.report.register import Dossier, json_item, results_json, results_json_of_parts
 from site_factory import synthetic_study, write_study_folder
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -90,15 +95,118 @@ def test_an_unreadable_page_cache_entry_is_made_again(project, tmp_path):
     cache = tmp_path / "cache"
     build(project, tmp_path / "a", cache)
     entries = sorted((cache / site.CACHE_FORMAT / "pages").rglob("*.json"))
-    assert len(entries) == 3                               # one per study page
-    for entry in entries:
+    parts = sorted((cache / site.CACHE_FORMAT / "parts").rglob("*.json"))
+    assert len(entries) == 3 and len(parts) == 3           # one per study page
+    for entry in entries + parts:
         entry.write_text("{ half written")                 # e.g. a disk that filled up
     again = build(project, tmp_path / "b", cache)
-    assert again.prepared.reused == {}
+    assert again.prepared.reused == {} and again.prepared.parts_reused == []
     assert tree(tmp_path / "b") == tree(tmp_path / "a")
     # and the entries are whole again for the next build
     third = build(project, tmp_path / "c", cache)
     assert len(third.prepared.reused) == 3
+    assert third.prepared.parts_reused == ["SYN-001", "SYN-002", "SYN-003"]
+
+
+class Made:
+    """Counts, by page or study, what a build makes: pages rendered from their template, the
+    study parts of the pages listing every study, pages converted by the generator (its
+    Markdown step, seen by the plugin's hook) and pages it builds (its per-page step)."""
+
+    def __init__(self, monkeypatch):
+        self.rendered, self.parts = collections.Counter(), collections.Counter()
+        self.converted, self.built = collections.Counter(), collections.Counter()
+        study_page, study_parts = pages.Pages.study_page, pages.Pages.study_parts
+        on_markdown = mkdocs_plugin.DossierPlugin.on_page_markdown
+        build_page = mkdocs_build._build_page
+
+        def count_page(this, s, dossier):
+            self.rendered[s.study_id] += 1
+            return study_page(this, s, dossier)
+
+        def count_parts(this, s, dossier):
+            self.parts[s.study_id] += 1
+            return study_parts(this, s, dossier)
+
+        def count_markdown(this, markdown, *, page, config, files):
+            self.converted[page.file.src_uri] += 1
+            return on_markdown(this, markdown, page=page, config=config, files=files)
+
+        def count_build(page, *args, **kwargs):
+            self.built[page.file.src_uri] += 1
+            return build_page(page, *args, **kwargs)
+
+        monkeypatch.setattr(pages.Pages, "study_page", count_page)
+        monkeypatch.setattr(pages.Pages, "study_parts", count_parts)
+        monkeypatch.setattr(mkdocs_plugin.DossierPlugin, "on_page_markdown", count_markdown)
+        monkeypatch.setattr(mkdocs_build, "_build_page", count_build)
+
+
+def test_unchanged_studies_are_neither_rendered_nor_converted_again(project, tmp_path,
+                                                                    monkeypatch):
+    cache = tmp_path / "cache"
+    cold = Made(monkeypatch)
+    build(project, tmp_path / "a", cache)
+    studies = ["studies/SYN-001/index.md", "studies/SYN-002/index.md",
+               "studies/SYN-003/index.md"]
+    # the counters see a cold build make every page once
+    assert sorted(cold.rendered) == ["SYN-001", "SYN-002", "SYN-003"]
+    assert all(cold.built[p] == 1 and cold.converted[p] == 1 for p in studies)
+    change_one_run(project, "SYN-002")
+    made = Made(monkeypatch)
+    second = build(project, tmp_path / "b", cache)
+    assert made.rendered == {"SYN-002": 1}
+    assert made.parts == {"SYN-002": 1}
+    assert second.prepared.parts_reused == ["SYN-001", "SYN-003"]
+    for page in ("studies/SYN-001/index.md", "studies/SYN-003/index.md"):
+        assert made.built[page] == 0 and made.converted[page] == 0
+    assert made.built["studies/SYN-002/index.md"] == 1
+    # the pages that list every study are made every build, from the kept parts
+    for page in ("index.md", "register.md", "changes.md"):
+        assert made.built[page] == 1
+    # and the unchanged studies' reports were not even parsed
+    loaded = {o.study_id: o.loaded for o in second.prepared.outcomes}
+    assert loaded == {"SYN-001": False, "SYN-002": True, "SYN-003": False}
+    # the rebuilt site is the one a build from an empty cache makes
+    build(project, tmp_path / "c", tmp_path / "empty-cache")
+    assert tree(tmp_path / "b") == tree(tmp_path / "c")
+
+
+def test_kept_plots_and_versions_are_the_same_files(project, tmp_path):
+    """Plots from the cache and versions already published are linked (or copied), never
+    rewritten: their bytes equal the cache's and the first publication's."""
+    cache = tmp_path / "cache"
+    first = build(project, tmp_path / "site", cache)
+    old = first.prepared.dossier.version
+    kept = {p: p.read_bytes() for p in (tmp_path / "site" / "versions" / old).iterdir()}
+    change_one_run(project, "SYN-001")
+    second = build(project, tmp_path / "site", cache)
+    assert second.prepared.dossier.version != old
+    for path, data in kept.items():
+        assert path.read_bytes() == data
+    plots = sorted((tmp_path / "site/studies/SYN-003").glob("*.svg"))
+    assert plots
+    linked = second.prepared.linked
+    for p in plots:
+        source = linked[p.relative_to(tmp_path / "site").as_posix()]
+        assert source.is_relative_to(cache) and source.read_bytes() == p.read_bytes()
+        if os.stat(source).st_dev == os.stat(p).st_dev:
+            assert os.path.samefile(source, p)                # a link, not a copy
+
+
+def test_results_json_from_kept_parts_is_the_whole_document_written_at_once():
+    """The exports are joined from each study's kept items; the reference is json.dumps of
+    the whole document (the standard library's encoder), for lists empty and not."""
+    d = Dossier("dv-000000000000", "extractval 0.0", "2026-01-01 00:00 UTC")
+    studies = [{"study": "A", "runs": [{"run": "R1", "pH": 7.0, "reason": None}]},
+               {"study": "B \u00e9", "runs": []}]
+    rows = [{"id": "A/logK", "value": 1.25e-07, "display": "> 99.99"}, {"id": "A/se"}]
+    for s, r in ((studies, rows), (studies, []), ([], [])):
+        joined = results_json_of_parts(d, [json_item(x) for x in s],
+                                       [",\n".join(json_item(x) for x in r)] if r else [])
+        assert joined == results_json(r, d, s)
+        assert json.loads(joined) == {"dossier_version": d.version, "software": d.software,
+                                      "build_date": d.build_date, "studies": s, "numbers": r}
 
 
 def test_a_template_change_makes_every_page_again(project, tmp_path):

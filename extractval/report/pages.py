@@ -22,11 +22,11 @@ from pathlib import Path
 import jinja2
 from markupsafe import Markup
 
-from ..acceptance import OUTCOME_WORDS
 from ..formats import ONE_PHASE_PLOT_RANGE, is_bound
-from .register import (CRITERION_LABELS, Dossier, Quantity, criterion_style, fmt_number,
-                       plot_name, pointer, register_rows, resolve, results_csv, results_json,
-                       safe_name, study_register, study_status)
+from .register import (CRITERION_LABELS, Dossier, Quantity, criterion_style, csv_rows,
+                       fmt_number, json_item, plot_name, pointer, register_rows, resolve,
+                       results_csv, results_json_of_parts, safe_name, study_register,
+                       study_status)
 from .text import html_attr, md_text
 
 #: the dossier's Markdown files besides the study pages
@@ -306,6 +306,35 @@ class StudyInput:
     errors: tuple[str, ...] = ()         # located errors when the study could not be read
     plots: tuple[str, ...] = ()          # plot file names present for this study
     key: str = ""                        # content key of the study's inputs
+    #: False: the study has numbers but its dict was not read (the build holds its page and
+    #: its StudyParts from an earlier build); ``data`` is then None and must not be used
+    loaded: bool = True
+
+
+@dataclass(frozen=True)
+class StudyParts:
+    """What the pages and exports that list every study show of one study, made once and
+    kept between builds while the study is unchanged (the dossier's version and date are
+    whatever the Dossier they were made with says, in the site build its tokens)."""
+
+    study_id: str
+    key: str
+    index_row: str                     # its row of the home page's table
+    register_count: int                # how many numbers it has (0: no register section)
+    register_section: str              # its section of the number register
+    listing_json: str                  # its entry of results.json "studies", as written there
+    numbers_json: str                  # its rows of results.json "numbers", as written there
+    numbers_csv: str                   # its rows of results.csv
+    runs: dict | None                  # run counts (total, used, excluded); None: not read
+    analyte: str = ""                  # analyte and organic phase as solvent_choice compares
+    organic: str = ""                  # them (solvent_study_ids)
+
+    def to_dict(self) -> dict:
+        return dict(self.__dict__)
+
+    @classmethod
+    def from_dict(cls, d: dict) -> StudyParts:
+        return cls(**d)
 
 
 class TemplateProblem(Exception):
@@ -345,6 +374,8 @@ class Pages:
                                   f"(while rendering{' ' + _study_of(ctx) if ctx else ''})")
 
     def study_page(self, s: StudyInput, dossier: Dossier) -> str:
+        from ..acceptance import OUTCOME_WORDS   # scipy: only when a page is made
+
         if s.data is None:
             return self._render("failed.md.j2", study_id=s.study_id, errors=s.errors,
                                 dossier=dossier, key=s.key)
@@ -358,18 +389,41 @@ class Pages:
                             register_url=REGISTER_URL, limit_words=LIMIT_WORDS,
                             outcome_words=OUTCOME_WORDS)
 
-    def index_page(self, studies: list[StudyInput], dossier: Dossier, counts: dict) -> str:
-        views = [(s, StudyView(s.data, dossier, self._register(s.data), tag_study=True,
-                               trace=self.trace, key=s.key, root="")
-                  if s.data else None) for s in studies]
-        return self._render("index.md.j2", studies=views, dossier=dossier, counts=counts,
-                            url=study_url, names=PARAMETER_LABELS)
+    def index_row(self, s: StudyInput, dossier: Dossier) -> str:
+        """The study's row of the home page's table."""
+        view = (StudyView(s.data, dossier, self._register(s.data), tag_study=True,
+                          trace=self.trace, key=s.key, root="") if s.data else None)
+        return self._render("index_row.md.j2", st=s, s=view, dossier=dossier, url=study_url,
+                            names=PARAMETER_LABELS)
 
-    def register_page(self, studies: list[StudyInput], dossier: Dossier) -> str:
-        views = [StudyView(s.data, dossier, self._register(s.data), tag_study=True,
-                           trace=self.trace, key=s.key, root="../")
-                 for s in studies if s.data is not None]
-        return self._render("register.md.j2", views=views, dossier=dossier, url=study_url)
+    def index_page(self, studies: list[StudyInput], dossier: Dossier, counts: dict,
+                   rows: list[str] | None = None) -> str:
+        """The home page; ``rows`` are the studies' rows when already made (index_row)."""
+        if rows is None:
+            rows = [self.index_row(s, dossier) for s in studies]
+        return self._render("index.md.j2", rows=[Markup(r) for r in rows], dossier=dossier,
+                            counts=counts, url=study_url, names=PARAMETER_LABELS)
+
+    def register_section(self, s: StudyInput, dossier: Dossier) -> tuple[int, str]:
+        """(how many numbers, the study's section of the register); (0, "") without numbers."""
+        if s.data is None:
+            return 0, ""
+        view = StudyView(s.data, dossier, self._register(s.data), tag_study=True,
+                         trace=self.trace, key=s.key, root="../")
+        return (sum(len(q.numbers) for q in view.quantities),
+                self._render("register_study.md.j2", s=view, dossier=dossier, url=study_url))
+
+    def register_page(self, studies: list[StudyInput], dossier: Dossier,
+                      parts: list[StudyParts] | None = None) -> str:
+        """The number register; ``parts`` are the studies' parts when already made."""
+        if parts is None:
+            entries = [_RegisterEntry(s.study_id, s.key, *self.register_section(s, dossier))
+                       for s in studies if s.data is not None]
+        else:
+            entries = [_RegisterEntry(p.study_id, p.key, p.register_count,
+                                      p.register_section)
+                       for p in parts if p.register_section]
+        return self._render("register.md.j2", entries=entries, dossier=dossier, url=study_url)
 
     def changes_page(self, comparison, versions: list[dict], current: str) -> str:
         """The Changes page: a :class:`~extractval.compare.Comparison` (or None) rendered."""
@@ -402,36 +456,80 @@ class Pages:
     def js(self) -> bytes:
         return (self.templates_dir / JS_SOURCE).read_bytes()
 
+    def study_parts(self, s: StudyInput, dossier: Dossier) -> StudyParts:
+        """Everything the pages and exports listing every study show of ``s``."""
+        count, section = self.register_section(s, dossier)
+        rows = ([] if s.data is None else
+                register_rows(self._register(s.data), dossier, REGISTER_URL, s.key))
+        status = ("not published: input errors" if s.data is None
+                  else study_status(s.data)[1])
+        listing = {"study": s.study_id, "page": study_url(s.study_id), "status": status,
+                   "verdict": None if s.data is None else s.data.get("status"),
+                   "inputs_key": s.key, "runs": run_record(s.data)}
+        runs = None if s.data is None else {k: s.data["runs"][k]
+                                             for k in ("total", "used", "excluded")}
+        from ..solvent_choice import _key
+
+        d = s.data or {}
+        return StudyParts(s.study_id, s.key, self.index_row(s, dossier), count, section,
+                          json_item(listing), ",\n".join(json_item(r) for r in rows),
+                          csv_rows(rows), runs, _key(d.get("analyte")),
+                          _key((d.get("system") or {}).get("organic")))
+
     def dossier_files(self, studies: list[StudyInput], dossier: Dossier,
-                      counts: dict, skip: set[str] = frozenset()) -> dict[str, bytes]:
+                      counts: dict, skip: set[str] = frozenset(),
+                      parts: dict[str, StudyParts] | None = None) -> dict[str, bytes]:
         """Every generated file of the site except the plots, by site path. A study page
-        whose path is in ``skip`` is left empty (the build reuses its finished HTML)."""
+        whose path is in ``skip`` is left empty (the build reuses its finished HTML).
+        ``parts``, by study id, are parts already made (StudyParts); those missing are made
+        and added to it."""
         studies = sorted(studies, key=lambda s: s.study_id)
-        files = {INDEX: self.index_page(studies, dossier, counts).encode(),
-                 REGISTER: self.register_page(studies, dossier).encode(),
+        parts = {} if parts is None else parts
+        for s in studies:
+            if s.study_id not in parts:
+                if not s.loaded:
+                    raise ValueError(f"study {s.study_id}: not read, and no parts given")
+                parts[s.study_id] = self.study_parts(s, dossier)
+        made = [parts[s.study_id] for s in studies]
+        files = {INDEX: self.index_page(studies, dossier, counts,
+                                        [p.index_row for p in made]).encode(),
+                 REGISTER: self.register_page(studies, dossier, made).encode(),
                  ABOUT: self.about_page(dossier).encode(),
                  CSS_PATH: self.css(), JS_PATH: self.js()}
-        rows, listing = [], []
         for s in studies:
             path = study_page_path(s.study_id)
-            files[path] = b"" if path in skip else self.study_page(s, dossier).encode()
-            status = ("not published: input errors" if s.data is None
-                      else study_status(s.data)[1])
-            listing.append({"study": s.study_id, "page": study_url(s.study_id),
-                            "status": status,
-                            "verdict": None if s.data is None else s.data.get("status"),
-                            "inputs_key": s.key, "runs": run_record(s.data)})
-            if s.data is not None:
-                rows.extend(register_rows(self._register(s.data), dossier, REGISTER_URL,
-                                          s.key))
-        groups = solvent_groups(studies)
+            if path in skip:
+                files[path] = b""
+            elif not s.loaded:
+                raise ValueError(f"study {s.study_id}: not read, and its page is not kept")
+            else:
+                files[path] = self.study_page(s, dossier).encode()
+        members = solvent_study_ids(made)
+        unread = sorted(s.study_id for s in studies if s.study_id in members and not s.loaded)
+        if unread:
+            raise ValueError(f"studies {', '.join(unread)}: compared by solvent, but not read")
+        groups = solvent_groups([s for s in studies if s.study_id in members])
         if groups:
-            files[SOLVENTS] = self.solvents_page(studies, dossier).encode()
-        files["results.json"] = results_json(rows, dossier, listing,
-                                             {"solvent_comparison": [g.to_dict()
-                                                                     for g in groups]})
-        files["results.csv"] = results_csv(rows)
+            files[SOLVENTS] = self.solvents_page(
+                [s for s in studies if s.study_id in members], dossier).encode()
+        files["results.json"] = results_json_of_parts(
+            dossier, [p.listing_json for p in made],
+            [p.numbers_json for p in made if p.numbers_json],
+            {"solvent_comparison": [g.to_dict() for g in groups]})
+        files["results.csv"] = results_csv([]) + "".join(
+            p.numbers_csv for p in made).encode("utf-8")
         return files
+
+
+@dataclass(frozen=True)
+class _RegisterEntry:
+    id: str
+    key: str
+    count: int
+    section: Markup
+
+    def __post_init__(self):
+        object.__setattr__(self, "section", Markup(self.section))
 
 
 def run_record(d: dict | None) -> list[dict]:
@@ -440,6 +538,17 @@ def run_record(d: dict | None) -> list[dict]:
 
     return [{"run": r["run"], **{k: r.get(k) for k in RUN_FIELDS}}
             for r in (d or {}).get("run_table") or []]
+
+
+def solvent_study_ids(parts: list[StudyParts]) -> set[str]:
+    """The studies that solvent_groups puts in a group (an analyte named in two or more
+    studies with different organic phases), from their parts alone."""
+    organics: dict[str, set[str]] = {}
+    for p in parts:
+        if p.analyte and p.runs is not None:
+            organics.setdefault(p.analyte, set()).add(p.organic)
+    return {p.study_id for p in parts
+            if p.analyte and p.runs is not None and len(organics[p.analyte]) >= 2}
 
 
 def solvent_groups(studies: list[StudyInput]) -> list:

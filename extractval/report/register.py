@@ -763,6 +763,10 @@ def register_rows(quantities: list[Quantity], dossier: Dossier, page: str,
     return rows
 
 
+def _json(value) -> str:
+    return json.dumps(value, indent=1, ensure_ascii=True, allow_nan=False)
+
+
 def results_json(rows: list[dict], dossier: Dossier, studies: list[dict],
                  extra: dict | None = None) -> bytes:
     """The export: provenance, the studies, every number's row, and ``extra`` keys (e.g.
@@ -775,7 +779,30 @@ def results_json(rows: list[dict], dossier: Dossier, studies: list[dict],
         "numbers": rows,
         **(extra or {}),
     }
-    return (json.dumps(doc, indent=1, ensure_ascii=True, allow_nan=False) + "\n").encode()
+    return (_json(doc) + "\n").encode()
+
+
+def json_item(value) -> str:
+    """``value`` as :func:`results_json` writes an item of its "studies" or "numbers" list
+    (one level deeper than the top), so that a build can keep each study's items and join
+    them: ``results_json_of_parts`` gives the same bytes as :func:`results_json`."""
+    return "  " + _json(value).replace("\n", "\n  ")   # JSON text holds no raw newline
+
+
+def results_json_of_parts(dossier: Dossier, studies: list[str], numbers: list[str],
+                          extra: dict | None = None) -> bytes:
+    """:func:`results_json` from items already written (:func:`json_item`; a part of
+    ``numbers`` may hold several items joined by ",\\n")."""
+    head = _json({"dossier_version": dossier.version, "software": dossier.software,
+                  "build_date": dossier.build_date})[:-2]
+
+    def listed(items: list[str]) -> str:
+        return "[\n" + ",\n".join(items) + "\n ]" if items else "[]"
+
+    tail = "".join(f",\n {_json(k)}: {_json(v).replace(chr(10), chr(10) + ' ')}"
+                   for k, v in (extra or {}).items())
+    return (f'{head},\n "studies": {listed(studies)},\n "numbers": {listed(numbers)}'
+            f"{tail}\n}}\n").encode()
 
 
 CSV_COLUMNS = ("id", "study", "quantity", "statistic", "value", "unit", "display",
@@ -802,12 +829,18 @@ def csv_cell(value) -> str | float | int:
 
 
 def results_csv(rows: list[dict]) -> bytes:
+    return (_csv_lines([CSV_COLUMNS]) + csv_rows(rows)).encode("utf-8")
+
+
+def csv_rows(rows: list[dict]) -> str:
+    """The lines of results.csv for ``rows``, without its header."""
+    return _csv_lines([csv_cell(row[c]) for c in CSV_COLUMNS] for row in rows)
+
+
+def _csv_lines(rows) -> str:
     buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\r\n")
-    w.writerow(CSV_COLUMNS)
-    for row in rows:
-        w.writerow([csv_cell(row[c]) for c in CSV_COLUMNS])   # a float is written as repr
-    return buf.getvalue().encode("utf-8")
+    csv.writer(buf, lineterminator="\r\n").writerows(rows)   # a float is written as repr
+    return buf.getvalue()
 
 
 def plot_name(kind: str, procedure_id: str | None = None) -> str:
