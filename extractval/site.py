@@ -473,18 +473,11 @@ def render(outcomes: list[Outcome], templates_dir: Path, config_file: Path | Non
     dossier = Dossier(dossier_version(outcomes, templates_dir, config_file), SOFTWARE, date)
     shown = Dossier(VERSION_TOKEN, SOFTWARE, DATE_TOKEN)
     tokens = {VERSION_TOKEN: dossier.version, DATE_TOKEN: date}
-    site_nav = nav([StudyInput(o.study_id, None) for o in outcomes])
     base = _site_digest(templates_dir, config_file)
-    page_keys = _page_keys(outcomes, site_nav, base)
-    reused: dict[str, tuple[bytes, list]] = {}
     parts: dict[str, StudyParts] = {}
     part_keys = {o.study_id: _sha(base, "parts", o.study_id, o.key, o.text_sha)[:32]
                  for o in outcomes if o.has_data}
     if page_cache is not None:
-        for path, key in page_keys.items():
-            hit = page_cache.get(path, key)
-            if hit is not None:       # a missing or unreadable entry: the page is rendered
-                reused[path] = hit
         for sid, key in part_keys.items():
             got = page_cache.get_parts(sid, key)
             if got is not None:
@@ -503,6 +496,15 @@ def render(outcomes: list[Outcome], templates_dir: Path, config_file: Path | Non
                 parts[o.study_id] = pages.study_parts(study_input(o, True), shown)
         made = [parts[o.study_id] for o in outcomes]
         compared = solvent_study_ids(made)        # the Solvents compared page reads these
+        site_nav = nav([StudyInput(o.study_id, None) for o in outcomes],
+                       compared=bool(compared))
+        page_keys = _page_keys(outcomes, site_nav, base)
+        reused: dict[str, tuple[bytes, list]] = {}
+        if page_cache is not None:
+            for path, key in page_keys.items():
+                hit = page_cache.get(path, key)
+                if hit is not None:   # a missing or unreadable entry: the page is rendered
+                    reused[path] = hit
         inputs = [study_input(o, o.study_id in compared
                               or study_page_path(o.study_id) not in reused)
                   for o in outcomes]

@@ -223,3 +223,26 @@ def test_a_template_change_makes_every_page_again(project, tmp_path):
     assert again.prepared.reused == {}
     assert re.search(r"a reviewer.s note",
                      (tmp_path / "b/studies/SYN-001/index.html").read_text(encoding="utf-8"))
+
+
+def test_studies_compared_by_solvent_are_read_for_that_page(tmp_path, monkeypatch):
+    """The Solvents compared page shows numbers of every study of its group: those studies'
+    reports are read on a rebuild even when their own pages are kept."""
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", EPOCH)
+    root = tmp_path / "studies"
+    for sid, analyte, organic, seed in (("SYN-001", "SYN-Delta", "ethyl acetate", 1),
+                                        ("SYN-002", "SYN-Delta", "toluene", 2),
+                                        ("SYN-003", "SYN-Eta", "ethyl acetate", 3)):
+        write_study_folder(synthetic_study(sid, analyte=analyte, organic=organic, seed=seed),
+                           root)
+    cache = tmp_path / "cache"
+    build(root, tmp_path / "a", cache)
+    change_one_run(root, "SYN-003")
+    second = build(root, tmp_path / "b", cache)
+    assert "solvents.md" in second.prepared.files
+    assert sorted(second.prepared.reused) == ["studies/SYN-001/index.md",
+                                              "studies/SYN-002/index.md"]
+    loaded = {o.study_id: o.loaded for o in second.prepared.outcomes}
+    assert loaded == {"SYN-001": True, "SYN-002": True, "SYN-003": True}
+    build(root, tmp_path / "c", tmp_path / "empty-cache")
+    assert tree(tmp_path / "b") == tree(tmp_path / "c")

@@ -558,12 +558,15 @@ def solvent_groups(studies: list[StudyInput]) -> list:
     return comparisons([s.data for s in studies if s.data is not None])
 
 
-def nav(studies: list[StudyInput]) -> list:
+def nav(studies: list[StudyInput], compared: bool | None = None) -> list:
     """The site's navigation, in the plain structure MkDocs' ``nav`` setting takes; the
-    "Solvents compared" page only when an analyte was studied in two or more solvents."""
+    "Solvents compared" page only when an analyte was studied in two or more solvents
+    (``compared``: whether one was, when already known from the studies' parts)."""
+    if compared is None:
+        compared = bool(solvent_groups(studies))
     return [{"Overview": INDEX},
             {"Studies": [{safe_name(s.study_id): study_page_path(s.study_id)}
                          for s in sorted(studies, key=lambda s: s.study_id)]},
-            *([{"Solvents compared": SOLVENTS}] if solvent_groups(studies) else []),
+            *([{"Solvents compared": SOLVENTS}] if compared else []),
             {"Number register": REGISTER},
             {"About this dossier": ABOUT}]
