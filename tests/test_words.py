@@ -167,6 +167,15 @@ def test_prediction_interval_is_named_pi95_everywhere(edge):
 
 
 # -- captions match the figures ------------------------------------------------------------------
+def log_d_caption(page: str) -> str:
+    """The log D figure's caption: its short figcaption and the paragraph under the pair of
+    plots that says how the runs are drawn (class xv-caption)."""
+    rest = page[page.index(plot_name("log_d")):]
+    short = rest[rest.index("<figcaption>"):rest.index("</figcaption>")]
+    shared = rest[rest.index('<p class="xv-caption">'):]
+    return short + " " + shared[:shared.index("</p>")]
+
+
 def test_log_d_caption_matches_what_is_drawn():
     """Runs measured in one phase are drawn at the log D their fraction implies (between 2 and
     98 % extracted); the caption says so, and the figure has their markers."""
@@ -180,8 +189,7 @@ def test_log_d_caption_matches_what_is_drawn():
     assert 'id="runs-ratio-0.5"' in svg and "no observed log D" not in svg
     page = Pages(TEMPLATES).study_page(
         StudyInput("SYN-ONE", d, plots=tuple(study_plots(d))), DOSSIER)
-    caption = page[page.index(plot_name("log_d")):]
-    caption = caption[caption.index("<figcaption>"):caption.index("</figcaption>")]
+    caption = log_d_caption(page)
     assert "not drawn here" not in caption.replace("outside that range are not drawn here", "")
     assert "measured in one phase" in caption and "between 2 and 98 %" in caption
 
@@ -194,8 +202,7 @@ def test_log_d_caption_names_the_advised_runs_when_they_are_drawn(demo_dicts):
         svg = log_d_plot(d).decode()
         page = Pages(TEMPLATES).study_page(
             StudyInput(d["study"], d, plots=tuple(study_plots(d))), DOSSIER)
-        caption = page[page.index(plot_name("log_d")):]
-        caption = caption[caption.index("<figcaption>"):caption.index("</figcaption>")]
+        caption = log_d_caption(page)
         drawn = 'id="advised-runs"' in svg
         assert drawn == ("Hollow stars mark the advised next runs" in caption), d["study"]
         seen += drawn
