@@ -385,21 +385,26 @@ def method_report(runs, targets: MethodTargets) -> MethodReport:
 
 def _precision(pre, rec_of: dict) -> list[dict]:
     """Components per level, of the runs' recoveries (%) where the level has post runs, else
-    of their measured values (the relative components are the same: one divisor per level)."""
+    of their measured values in % of the level's mean (the relative components are the same:
+    one divisor per level)."""
     out = []
     with_factors = [r for r in pre if r.tags.factors()]
     for level in _levels(with_factors):
         lr = [r for r in with_factors if r.level == level]
         names = [f for f in FACTORS if any(getattr(r.tags, f) for r in lr)]
         as_rec = all(rec_of.get(r.run_id) is not None for r in lr)
+        # without post runs the values are put in % of the level's mean (the SDs are then
+        # the RSDs; the relative components are unchanged by the one divisor)
+        scale = 1.0 if as_rec else 100.0 / float(np.mean([r.value for r in lr]))
         groups: dict[str, list[float]] = {}
         for r in lr:
             label = " / ".join(f"{f} {getattr(r.tags, f) or '-'}" for f in names)
-            groups.setdefault(label, []).append(rec_of[r.run_id] if as_rec else r.value)
+            groups.setdefault(label, []).append(rec_of[r.run_id] if as_rec
+                                                else scale * r.value)
         vc = variance_components(groups)
         entry = {"level": level, "factors": names, "n_runs": len(lr), "n_groups": len(groups),
                  "grouping": " x ".join(names) + " (one-way, each combination a group)",
-                 "unit": "recovery, %" if as_rec else "measured value",
+                 "unit": "recovery, %" if as_rec else "% of the level's mean value",
                  "groups": {g: len(v) for g, v in groups.items()}}
         if vc is None:
             entry["note"] = ("variance components need two groups and a replicate within one "

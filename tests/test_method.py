@@ -172,9 +172,12 @@ def test_precision_by_day_and_analyst_with_limits():
     rep = me.method_report(runs, t)
     (p,) = rep.precision
     assert p["factors"] == ["day", "analyst"] and p["n_groups"] == 6 and p["n_runs"] == 12
+    # no post runs: the values in % of their mean (method._precision), then MixedLM on those
+    assert p["unit"] == "% of the level's mean value"
+    mean = np.mean([r.value for r in runs])
     groups = {}
     for r in runs:
-        groups.setdefault((r.tags.day, r.tags.analyst), []).append(r.value)
+        groups.setdefault((r.tags.day, r.tags.analyst), []).append(100 * r.value / mean)
     s_l2, s_r2 = _mixedlm({f"{a}{b}": v for (a, b), v in groups.items()})
     assert p["s_r"] ** 2 == pytest.approx(s_r2, rel=1e-4)
     status = {v.criterion: v.status for v in rep.verdicts}

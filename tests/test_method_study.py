@@ -274,3 +274,44 @@ def test_acceptance_table_shows_per_level_criteria_as_a_grid():
     for v in d["verdicts"]:
         if "[" in v["criterion"]:
             assert v["detail"] in folded
+
+
+@pytest.mark.parametrize("drop_stage,drop_cols", [("neat", ("day", "analyst")),
+                                                  ("post", ()), (None, ("matrix",))])
+def test_partial_method_designs_render_with_their_notes(tmp_path, drop_stage, drop_cols):
+    """No neat runs (no matrix factor) and no day/analyst (no precision), no post runs (no
+    recovery), no lots: the page says what is missing and names no number it lacks."""
+    import html
+
+    from extractval.report.pages import Pages, StudyInput
+    from tests.test_report_pages import DOSSIER, TEMPLATES
+
+    folder = _copy(tmp_path)
+    header, rows = _rows(folder)
+    rows = [r for r in rows if r["spike_stage"] != drop_stage]
+    for r in rows:
+        for c in drop_cols:
+            r[c] = ""
+    _write(folder, header, rows)
+    d = fit_study(load_study(folder)).to_dict()
+    m = d["method_recovery"]
+    page = Pages(TEMPLATES).study_page(StudyInput("MV-1", d), DOSSIER)
+    section = html.unescape(page[page.index("## Method recovery"):
+                                 page.index("## Fitted constants")])
+    if drop_stage == "post":
+        assert all("note" in r for r in m["recovery"].values())
+        assert "recovery needs pre and post runs at this level: 12 pre, 0 post" in section
+        assert all("note" in mf for mf in m["matrix_factor"].values())
+        low = d["precision"]["levels"][0]
+        assert low["unit"] == "% of the level's mean value"
+        assert low["s_r"] == pytest.approx(low["rsd_r_pct"], rel=1e-9)   # mean 100
+    if drop_stage == "neat":
+        assert d["precision"]["levels"] == []
+        assert all("note" in mf for mf in m["matrix_factor"].values())
+        assert "the matrix factor needs post runs in a named lot and neat runs" in section
+        assert not any(v["criterion"].startswith("matrix_factor_cv_pct")
+                       for v in d["verdicts"])
+    if drop_cols == ("matrix",):
+        assert m["matrix_factor_lots"] is None
+        assert all(r["lots"] == {} for r in m["recovery"].values())
+        assert "PL-0311" not in section
