@@ -20,7 +20,7 @@ from .models import MODELS, get_model
 from .procedures import (LogDBand, ProcedureDesign, ProcedurePrediction, design_procedure,
                          design_space, log_d_band, predict_procedure)
 from .replicates import PH_TOLERANCE, precision_groups
-from .reading import procedure_reading
+from .reading import procedure_reading, workup_reading
 from .results import clean
 from .solvents import solvent_report
 from .screening import STUDENTIZED_LIMIT, refit_without, screen
@@ -212,7 +212,7 @@ class StudyReport:
         study_v = study_v + calibration_verdicts(self.study) + suitability_verdicts(self.study)
         if self.method is not None:
             study_v = study_v + list(self.method.verdicts)
-        proc_v = [procedure_verdicts(p, d, targets, self.outcomes)
+        proc_v = [procedure_verdicts(p, d, targets, self.outcomes, self.workup_of(p))
                   for p, d in zip(self.predictions, self.designs)]
         summary = status_summary(study_v + [v for vs in proc_v for v in vs])
         return {"study": study_v, "procedures": proc_v, "details": details,
@@ -305,6 +305,13 @@ class StudyReport:
             "procedures": procs,
             "method": workup.REGION_METHOD,
         }
+
+    def workup_of(self, prediction) -> dict | None:
+        """The procedure's entry under ``selectivity.procedures`` (its work-up), if any."""
+        sel = self.selectivity
+        if sel is None:
+            return None
+        return next((w for w in sel["procedures"] if w["id"] == prediction.procedure.id), None)
 
     @property
     def curve(self) -> dict | None:
@@ -420,8 +427,12 @@ class StudyReport:
         out["solvent"] = solvent_report(s.system.get("organic"), s.procedures,
                                         s.system.get("aqueous"))
         out["run_table"] = self.run_rows()
+        workups = {w["id"]: w for w in (out.get("selectivity") or {}).get("procedures") or []}
         for pr in out["procedures"]:        # written last: it reads the verdicts it explains
-            pr["reading"] = procedure_reading(pr, s.targets.recovery_pct)
+            w = workups.get(pr["id"])
+            pr["reading"] = (workup_reading(pr, w, s.targets.recovery_pct)
+                             if w is not None and len(w["steps"]) > 1
+                             else procedure_reading(pr, s.targets.recovery_pct))
         return out
 
     def calibration_dict(self) -> dict:

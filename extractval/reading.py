@@ -24,6 +24,51 @@ def _recovery_verdict(pr: dict) -> dict | None:
     return None
 
 
+def workup_reading(pr: dict, w: dict, target_pct: float | None) -> str:
+    """The paragraph of a procedure with steps: the extraction step alone, then the recovery
+    into the work-up's product, which the recovery verdict judges, and the verdict's words.
+
+    >>> pr = {"pH": 11.5, "pH_tolerance": 0.2, "aqueous_mL": 40.0, "organic_mL": [20.0, 20.0],
+    ...       "recovery_pct": {"value": 99.97, "ci95": [99.96, 99.98]},
+    ...       "verdicts": [{"criterion": "recovery_pct", "status": "pass",
+    ...                     "detail": "lower 95 % end 99.86 % ... meets the 90 % target"}]}
+    >>> w = {"steps": [{"kind": "extract", "pH": 11.5}, {"kind": "wash", "pH": 11.5},
+    ...                {"kind": "back-extract", "pH": 3.0}], "product_phase": "aqueous",
+    ...      "recovery_pct": {"value": 99.8626, "ci95": [99.8587, 99.8664]}}
+    >>> print(workup_reading(pr, w, 90.0))  # doctest: +NORMALIZE_WHITESPACE
+    A work-up of 3 steps (extract at pH 11.50, wash at pH 11.50, back-extract at pH 3.00);
+    the product is the aqueous phase. The extraction step alone (pH 11.50 ± 0.20, 40 mL of
+    aqueous phase, 2 portions of solvent: 20 + 20 mL) is predicted to put 99.97 % of the
+    analyte in the solvent (95 % interval 99.96 to 99.98 %); through all the steps 99.86 %
+    of it is predicted to reach the product (95 % interval 99.86 to 99.87 %). Recovery
+    target 90 %: met (lower 95 % end 99.86 % ... meets the 90 % target).
+    """
+    steps = ", ".join(f"{st['kind']} at pH {fmt_number(st['pH'], 'pH')}" for st in w["steps"])
+    rec, wr = pr["recovery_pct"], w["recovery_pct"]
+    lo, hi = rec.get("ci95") or [None, None]
+    wlo, whi = wr.get("ci95") or [None, None]
+    n = len(pr["organic_mL"])
+    tol = pr.get("pH_tolerance")
+    text = (f"A work-up of {len(w['steps'])} steps ({steps}); the product is the "
+            f"{w['product_phase']} phase. The extraction step alone (pH "
+            f"{fmt_number(pr['pH'], 'pH')}" + (f" ± {fmt_number(tol, 'pH')}" if tol else "")
+            + f", {fmt_number(pr['aqueous_mL'], 'mL')} mL of aqueous phase, {n} portion"
+            f"{'s' if n != 1 else ''} of solvent: {_volumes(pr['organic_mL'])} mL) is "
+            f"predicted to put {in_words(fmt_pct(rec['value']))} % of the analyte in the "
+            f"solvent (95 % interval {span_words(fmt_pct(lo), fmt_pct(hi), ' %')}); through "
+            f"all the steps {in_words(fmt_pct(wr['value']))} % of it is predicted to reach the "
+            f"product (95 % interval {span_words(fmt_pct(wlo), fmt_pct(whi), ' %')}).")
+    if target_pct is None:
+        return text + " No recovery target is set (targets: recovery_pct in study.yaml)."
+    v = _recovery_verdict(pr)
+    head = f" Recovery target {fmt_number(target_pct, 'g')} %"
+    if v is None:
+        return text + head + ": not judged."
+    outcome = OUTCOME_WORDS.get(v.get("status"), str(v.get("status"))).lower()
+    detail = v.get("detail")
+    return text + head + f": {outcome}{f' ({detail})' if detail else ''}."
+
+
 def procedure_reading(pr: dict, target_pct: float | None) -> str:
     """The paragraph under a procedure's heading, from its dict entry with verdicts.
 

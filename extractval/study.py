@@ -193,6 +193,9 @@ class Targets:
     level: str | None = None          # analyte level, e.g. "10 ppm", for AOAC limits
     #: significance level at which the lack-of-fit F test is judged; None: shown, not judged
     lack_of_fit_alpha: float | None = None
+    #: purity of a work-up's product (analyte share of analyte plus impurities, %), judged at
+    #: the lower 95 % end; None: purity shown, not judged
+    purity_pct: float | None = None
 
 
 @dataclass(frozen=True)
@@ -294,7 +297,7 @@ _KEYS = {
     "analyte": ("name", "model", "ion_pair", "level"),
     "system": ("aqueous", "organic", "temperature_C"),
     "targets": ("recovery_pct", "max_rsd_pct", "mass_balance_pct", "ratio_agreement_log",
-                "level", "lack_of_fit_alpha"),
+                "level", "lack_of_fit_alpha", "purity_pct"),
     "procedure": ("id", "label", "pH", "aqueous_mL", "organic_mL", "pH_tolerance",
                   "volume_tolerance_pct", "steps"),
     "advice": ("target", "pH_range"),
@@ -624,6 +627,8 @@ def _targets(doc: _Yaml, entries) -> tuple[Targets, str | None]:
                                      check=_alpha,
                                      expected="a significance level between 0 and 0.5, "
                                               "e.g. 0.05"),
+        purity_pct=doc.number(t, node, "targets", "purity_pct", required=False,
+                              check=_percent_target, expected="a purity in %, e.g. 99.5"),
     )
     return targets, level
 

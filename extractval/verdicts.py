@@ -9,6 +9,10 @@ Criteria and their sources:
   (organic-phase amount, % of spiked; also for runs measured in both phases), or the amount
   found in the water for aqueous-only runs. pH differences inside a group are taken out
   through the fitted model before pooling.
+* a procedure with ``steps:`` is judged on the recovery of the analyte in the work-up's
+  product instead (lower 95 % end at the conditions as written), and, with
+  ``targets.purity_pct``, any procedure with a purity on the lower 95 % end of the product's
+  purity.
 * ``mass_balance_pct`` (default 90-110 % when both phases are measured; common practice).
 * ``ratio_agreement_log`` (default 0.3): at each pH run at several volume ratios, the log D
   values agree within +/- 0.3 (OECD TG 107, 1995: the shake-flask log Pow values should fall
@@ -271,6 +275,54 @@ def recovery_verdict(design, targets) -> Verdict:
     return verdict("pass" if ok else "fail", "recovery_pct", wc["recovery_pct"], t, detail)
 
 
+def _kinds(steps: list[dict]) -> str:
+    return ", ".join(f"{st['kind']} at pH {st['pH']:g}" for st in steps)
+
+
+def workup_recovery_verdict(workup: dict, targets) -> Verdict:
+    """A procedure with steps, judged on the recovery of the analyte in the work-up's product
+    (``workup`` is its entry under ``selectivity.procedures``): the lower 95 % end at the
+    conditions as written must reach the target. The tolerances of pH and volumes are not
+    explored for work-ups (the detail says so)."""
+    t = targets.recovery_pct
+    lo = (workup["recovery_pct"].get("ci95") or [None])[0]
+    where = (f"the product ({workup['product_phase']} phase) after {len(workup['steps'])} "
+             f"steps ({_kinds(workup['steps'])})")
+    if t is None:
+        return verdict("not judged", "recovery_pct", lo, None,
+                       f"recovery into {where}; no recovery target in study.yaml", "none")
+    if lo is None:
+        return verdict("fail", "recovery_pct", None, t,
+                       f"the lower end of the recovery into {where} is open: the target "
+                       "cannot be demonstrated")
+    ok = lo >= t
+    return verdict("pass" if ok else "fail", "recovery_pct", lo, t,
+                   f"lower 95 % end {fmt_pct(lo)} % of the recovery into {where}, at the "
+                   f"conditions as written, {'meets' if ok else 'misses'} the {t:g} % target; "
+                   "the pH and volume tolerances are not explored for a work-up")
+
+
+def purity_verdict(workup: dict, targets) -> Verdict | None:
+    """The product's purity (analyte share of analyte and impurities) against
+    ``targets.purity_pct`` at its lower 95 % end; None when the study sets no purity target."""
+    t = targets.purity_pct
+    if t is None:
+        return None
+    purity = workup.get("purity_pct")
+    if purity is None:
+        why = "; ".join(workup.get("notes") or []) or "the study names no impurities"
+        return verdict("not judged", "purity_pct", None, t, f"no purity computed: {why}")
+    lo = (purity.get("ci95") or [None])[0]
+    if lo is None:
+        return verdict("fail", "purity_pct", None, t, "the lower end of the purity is open: "
+                       "the target cannot be demonstrated")
+    ok = lo >= t
+    return verdict("pass" if ok else "fail", "purity_pct", lo, t,
+                   f"lower 95 % end {fmt_pct(lo)} % of the purity of the product "
+                   f"({workup['product_phase']} phase) {'meets' if ok else 'misses'} the "
+                   f"{t:g} % target (100 minus the upper end of the impurities' share)")
+
+
 def runs_at_procedure(procedure, outcomes) -> list[tuple[str, float]]:
     """(run, measured recovery %) of the fitted runs made as the procedure prescribes: one
     portion, pH within its tolerance, volume ratio within its volume tolerance."""
@@ -320,10 +372,19 @@ def aoac_recovery(procedure, outcomes, level) -> Verdict:
                    f"conditions: {runs}", v.basis)
 
 
-def procedure_verdicts(prediction, design, targets, outcomes=()) -> list[Verdict]:
-    out = [recovery_verdict(design, targets)]
+def procedure_verdicts(prediction, design, targets, outcomes=(),
+                       workup: dict | None = None) -> list[Verdict]:
+    """The procedure's verdicts. With ``workup`` (its entry under ``selectivity.procedures``)
+    a procedure with steps is judged on the work-up's recovery, and any procedure on the
+    product's purity when the study sets ``purity_pct``."""
+    stepped = workup is not None and len(workup["steps"]) > 1
+    out = [workup_recovery_verdict(workup, targets) if stepped
+           else recovery_verdict(design, targets)]
     if targets.level:
         out.append(aoac_recovery(prediction.procedure, outcomes, targets.level))
+    pv = None if workup is None else purity_verdict(workup, targets)
+    if pv is not None:
+        out.append(pv)
     return out
 
 

@@ -238,6 +238,16 @@ class StudyView:
         return [(k, w) for k, w in enumerate(sel.get("procedures") or [])
                 if len(w["steps"]) > 1 or sel.get("impurities")]
 
+    def judged_recovery(self, k: int) -> str:
+        """Register name of the recovery procedure ``k`` is judged on (its work-up's product
+        for a procedure with steps): what its tile and the index show."""
+        from ..solvent_choice import judged_recovery
+
+        return judged_recovery(self.d, k)
+
+    def stepped(self, k: int) -> bool:
+        return "/workup/" in self.judged_recovery(k)
+
     def plot(self, kind: str, procedure_id: str | None = None) -> str:
         return plot_name(kind, procedure_id)
 
@@ -281,7 +291,8 @@ SYSTEM_LABELS = {"aqueous": "Aqueous phase", "organic": "Organic phase (solvent)
 TARGET_LABELS = {"recovery_pct": "Target recovery (%)", "max_rsd_pct": "Largest RSD (%)",
                  "mass_balance_pct": "Mass balance band (%)",
                  "ratio_agreement_log": "Agreement of log D between volume ratios (log units)",
-                 "level": "Analyte level"}
+                 "level": "Analyte level", "purity_pct": "Purity of the product (%)",
+                 "lack_of_fit_alpha": "Lack of fit judged at alpha"}
 #: rows of the solvent data table under the study's cautions (keys of extractval/solvents.py)
 FACT_LABELS = {"density_g_mL": "Density (g/mL, 20-25 °C)", "boiling_point_C": "Boiling point (°C)",
                "flash_point_C": "Flash point, closed cup (°C)",
