@@ -735,7 +735,7 @@ def test_unknown_keys_are_refused_with_line_and_allowed_keys(tmp_path):
                                                 "recovery_pc")
     assert "did you mean 'recovery_pct'" in t.message
     assert t.expected == ("one of recovery_pct, max_rsd_pct, mass_balance_pct, "
-                          "ratio_agreement_log, level, lack_of_fit_alpha")
+                          "ratio_agreement_log, level, lack_of_fit_alpha, purity_pct")
     top = only(problems, "unknown key 'titel'")
     assert (top.line, top.key) == (18, "titel")
     assert "title" in top.expected and "procedures" in top.expected
