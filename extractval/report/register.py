@@ -64,7 +64,8 @@ _STAT_TEXT = {
 #: how the value judged by each criterion is written (a recovery near 100 % as "> 99.99")
 #: digits of each criterion's value: an RSD or CV estimated from a few dozen values is known
 #: to about a fifth of itself, so two significant digits; recoveries and mass balances to 0.1 %.
-CRITERION_STYLES = {"recovery_pct": "pct", "aoac_recovery_pct": "pct", "purity_pct": "pct", "horrat_r": "f2",
+CRITERION_STYLES = {"recovery_pct": "pct", "aoac_recovery_pct": "pct", "purity_pct": "pct",
+                    "horrat_r": "f2",
                     "ratio_agreement_log": "log", "max_rsd_pct": "se", "mass_balance_pct": "f1",
                     "matrix_factor_cv_pct": "se", "method_recovery_pct": "f1",
                     "method_recovery_rsd_pct": "se", "repeatability_rsd_pct": "se",
