@@ -315,3 +315,12 @@ def test_partial_method_designs_render_with_their_notes(tmp_path, drop_stage, dr
         assert m["matrix_factor_lots"] is None
         assert all(r["lots"] == {} for r in m["recovery"].values())
         assert "PL-0311" not in section
+
+
+def test_check_prints_located_method_errors_and_fails(tmp_path, capsys):
+    folder = _copy(tmp_path)
+    line = _edit(folder, "V30-040", spike_stage="after")
+    assert main(["check", str(folder)]) == 1
+    err = capsys.readouterr().err
+    assert f"line {line}" in err and "V30-040" in err and "spike_stage" in err
+    assert "unknown spike stage" in err and "after" in err and "Traceback" not in err
