@@ -29,6 +29,11 @@ def _discover(paths: list[str]) -> tuple[list[Path], list[Problem]]:
     return folders, problems
 
 
+def _label(folder) -> str:
+    """The study folder's name as people know it ('.' and 'x/..' resolved)."""
+    return folder.name or folder.resolve().name
+
+
 def _print_problems(problems, stream=None) -> None:
     # sys.stderr looked up at call time, not bound at import (a test or caller may swap it)
     for p in problems:
@@ -49,10 +54,10 @@ def cmd_check(args) -> int:
         for line in grouped_lines(found):
             print(line, file=sys.stderr)
         if errors:
-            print(f"{folder.name}: {len(errors)} error(s), "
+            print(f"{_label(folder)}: {len(errors)} error(s), "
                   f"{len(found) - len(errors)} warning(s)", file=sys.stderr)
         else:
-            print(f"{folder.name}: ok ({len(study.runs)} runs, "
+            print(f"{_label(folder)}: ok ({len(study.runs)} runs, "
                   f"{len(study.excluded_runs)} excluded, {len(found)} warning(s))")
     return 1 if n_err else 0
 
@@ -67,7 +72,8 @@ def cmd_fit(args) -> int:
     for folder, (found, data) in zip(folders, map_ordered(analyse_folder, folders, args.jobs)):
         if data is None:
             _print_problems(found)
-            print(f"{folder.name}: not fitted, the input has errors (see above)", file=sys.stderr)
+            print(f"{_label(folder)}: not fitted, the input has errors (see above)",
+                  file=sys.stderr)
             status = 1
             continue
         if data["problems"]:
@@ -90,7 +96,7 @@ def cmd_advise(args) -> int:
     for folder, (found, data) in zip(folders, map_ordered(analyse_folder, folders, args.jobs)):
         if data is None:
             _print_problems(found)
-            print(f"{folder.name}: no advice, the input has errors (see above)", file=sys.stderr)
+            print(f"{_label(folder)}: no advice, the input has errors (see above)", file=sys.stderr)
             status = 1
             continue
         if data["problems"]:

@@ -85,3 +85,12 @@ def test_no_doubled_warning_prefix_and_repeated_warnings_grouped(outputs, capsys
     grouped = [ln for ln in err.splitlines() if "recovery above 100 %" in ln]
     assert len(grouped) == 1 and re.search(r"R29 \(line \d+, found '10\d\.\d % of spiked'\)",
                                            grouped[0])
+
+
+def test_check_from_inside_the_study_folder_names_the_study(outputs, capsys, monkeypatch):
+    # `extractval check .` run inside the folder: the summary names the study, not ''
+    folder, _ = outputs
+    monkeypatch.chdir(folder)
+    status, out, _ = _run(capsys, ["check", "."])
+    assert status == 0
+    assert out.startswith(f"{folder.name}: ok (")
