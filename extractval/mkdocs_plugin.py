@@ -129,7 +129,12 @@ class _LinkedFile(File):
         try:
             os.link(self.abs_src_path, dest)
         except OSError:
-            super().copy_file(dirty)
+            try:
+                super().copy_file(dirty)
+            except FileNotFoundError:
+                raise PluginError(f"{self.abs_src_path}: a kept file disappeared during the "
+                                  "build (another build using the same cache?); build "
+                                  "again") from None
 
 
 _HTML_START = re.compile(r"<(table|div|figure)(?=[\s>])")

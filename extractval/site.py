@@ -201,10 +201,14 @@ class Cache:
         return text, plots, meta
 
     def put(self, study_id: str, key: str, text: str, plots: dict[str, bytes],
-            meta: dict) -> None:
+            meta: dict) -> dict[str, Path] | None:
+        """Store an entry; its plots' files (which the site may link), or None when the
+        cache could not be written. An entry already there under the same key (the same
+        content, e.g. from a build running beside this one) is kept as it is."""
         if self.root is None:
-            return
+            return None
         base = self.root / study_id
+        final = base / key
         try:
             base.mkdir(parents=True, exist_ok=True)
             tmp = Path(tempfile.mkdtemp(prefix=".tmp-", dir=base))
@@ -213,15 +217,23 @@ class Cache:
                 (tmp / "plots" / name).write_bytes(data)
             (tmp / "report.json").write_text(text, encoding="utf-8")
             (tmp / "meta.json").write_text(json.dumps(meta), encoding="utf-8")
-            final = base / key
-            if final.exists():
-                shutil.rmtree(final, ignore_errors=True)
-            os.replace(tmp, final)
+            if final.exists() and self.get(study_id, key) is None:
+                shutil.rmtree(final, ignore_errors=True)       # unreadable: replace it
+            try:
+                os.replace(tmp, final)
+            except OSError:
+                if self.get(study_id, key) is None:
+                    raise
+                shutil.rmtree(tmp, ignore_errors=True)
             for old in base.iterdir():
                 if old.name != key:
                     shutil.rmtree(old, ignore_errors=True)
+            found = {name: final / "plots" / name for name in plots}
+            if all(p.is_file() for p in found.values()):
+                return found
         except OSError:
             pass        # a cache that cannot be written only costs time
+        return None
 
 
 # -- preparing the dossier ------------------------------------------------------------------------
@@ -416,8 +428,9 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
         data = json.loads(text)
         meta = {"inputs_key": inputs_key(study), "runs": len(study.runs),
                 "problems": list(data.get("problems", []))}
-        cache.put(src.study_id, key, text, plots, meta)
-        report(Outcome(src.study_id, data, plots, [], meta["inputs_key"],
+        kept = cache.put(src.study_id, key, text, plots, meta)
+        report(Outcome(src.study_id, data, plots if kept is None else kept, [],
+                       meta["inputs_key"],
                        meta["runs"], seconds=seconds, text_sha=_sha(text)))
 
     def failed(src, study, exc):
