@@ -36,14 +36,14 @@ from decimal import Decimal, InvalidOperation
 import numpy as np
 from scipy import stats
 
+from extractval.formats import OUTCOME_WORDS  # noqa: F401  (named here too)
 from extractval.results import clean, fmt_pct
 
 #: a verdict's machine-readable outcome: met, not met, judged but to be looked into (a HorRat
 #: below its range), or not judged (no data, no limit, or the prediction is an extrapolation)
 STATUSES = ("pass", "fail", "note", "not judged")
-#: the same outcomes in words, sentence case, as pages and the CLI show them
-OUTCOME_WORDS = {"pass": "Met", "fail": "Not met", "note": "To investigate",
-                 "not judged": "Not judged"}
+# (the same outcomes in words, OUTCOME_WORDS, live in formats.py, imported above, so that
+# pages name them without loading the statistics)
 #: earlier spelling of "not judged", still accepted when a verdict is built
 _STATUS_ALIASES = {"not assessed": "not judged"}
 #: where a criterion's limit comes from: the study's ``targets:`` (or ``level:``), a default

@@ -28,6 +28,10 @@ import re
 #: study page's caption both say it)
 ONE_PHASE_PLOT_RANGE = (0.02, 0.98)
 
+#: the same outcomes in words, sentence case, as pages and the CLI show them
+OUTCOME_WORDS = {"pass": "Met", "fail": "Not met", "note": "To investigate",
+                 "not judged": "Not judged"}
+
 #: recoveries from here up to 100 % are written "> 99.99" (two decimals below it)
 RECOVERY_CAP_PCT = 99.99
 #: recoveries from here (one decimal would show 99.9) are written with two decimals

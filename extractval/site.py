@@ -156,13 +156,24 @@ def discover(studies_dir: Path) -> list[Source]:
 
 
 # -- fitting and plotting, with a cache -----------------------------------------------------------
-def compute(study) -> tuple[str, dict[str, bytes]]:
-    """Fit one study: its dict as JSON text, and its plots. Runs in a worker process."""
+def fit_report(study) -> str:
+    """Fit one study: its dict as JSON text. Runs in a worker process."""
     from .analysis import fit_study
+
+    return json.dumps(fit_study(study).to_dict(), allow_nan=False)
+
+
+def draw(text: str) -> dict[str, bytes]:
+    """The plots of one study from its dict's JSON text."""
     from .report.plots import study_plots
 
-    text = json.dumps(fit_study(study).to_dict(), allow_nan=False)
-    return text, study_plots(json.loads(text))
+    return study_plots(json.loads(text))
+
+
+def compute(study) -> tuple[str, dict[str, bytes]]:
+    """Fit one study: its dict as JSON text, and its plots. Runs in a worker process."""
+    text = fit_report(study)
+    return text, draw(text)
 
 
 class Cache:
@@ -371,8 +382,13 @@ def _working_folder(folder: Path | None):
 
 def collect(sources: list[Source], cache: Cache, jobs: int = 0,
             progress: Callable[[str], None] | None = None,
-            display_root: Path | None = None) -> list[Outcome]:
+            display_root: Path | None = None,
+            meanwhile: Callable[[list[Outcome]], None] | None = None) -> list[Outcome]:
     """Read every study, then fit the ones the cache does not hold (in parallel).
+
+    ``meanwhile`` is called with the studies the cache held while worker processes fit the
+    others (with two or more cores, even for one study: the fit's imports of scipy and
+    matplotlib then cost this process nothing, and it reads what it will need next).
 
     File names in messages are given relative to ``display_root`` (the studies folder's
     parent), so that a page does not depend on where the build was started.
@@ -439,10 +455,30 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
             "in extractval, please report it"], inputs_key(study), len(study.runs)))
 
     jobs = jobs or (os.cpu_count() or 1)
-    if len(todo) >= 3 and jobs > 1:
+    if todo and len(todo) < jobs and meanwhile is not None:
+        # a few studies changed: workers fit them (and import scipy) while this process
+        # reads ahead and imports matplotlib, then draws their plots itself
+        with _pool(len(todo)) as pool:
+            started = {pool.submit(fit_report, study): (src, study, key, time.perf_counter())
+                       for src, study, key in todo}
+            meanwhile([o for o in outcomes.values() if o.cached])
+            from .report import plots  # noqa: F401  (the import, while the workers fit)
+
+            for fut in as_completed(started):
+                src, study, key, t0 = started[fut]
+                try:
+                    text = fut.result()
+                    drawn = draw(text)
+                except Exception as exc:
+                    failed(src, study, exc)
+                    continue
+                finish(src, study, key, text, drawn, time.perf_counter() - t0)
+    elif todo and jobs > 1 and (len(todo) >= 3 or meanwhile is not None):
         with _pool(min(jobs, len(todo))) as pool:
             started = {pool.submit(compute, study): (src, study, key, time.perf_counter())
                        for src, study, key in todo}
+            if meanwhile is not None:
+                meanwhile([o for o in outcomes.values() if o.cached])
             for fut in as_completed(started):
                 src, study, key, t0 = started[fut]
                 try:
@@ -452,6 +488,8 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
                     continue
                 finish(src, study, key, text, plots, time.perf_counter() - t0)
     else:
+        if meanwhile is not None:
+            meanwhile([o for o in outcomes.values() if o.cached])
         for src, study, key in todo:
             t0 = time.perf_counter()
             try:
@@ -488,8 +526,7 @@ def render(outcomes: list[Outcome], templates_dir: Path, config_file: Path | Non
     tokens = {VERSION_TOKEN: dossier.version, DATE_TOKEN: date}
     base = _site_digest(templates_dir, config_file)
     parts: dict[str, StudyParts] = {}
-    part_keys = {o.study_id: _sha(base, "parts", o.study_id, o.key, o.text_sha)[:32]
-                 for o in outcomes if o.has_data}
+    part_keys = {o.study_id: _parts_key(base, o) for o in outcomes if o.has_data}
     if page_cache is not None:
         for sid, key in part_keys.items():
             got = page_cache.get_parts(sid, key)
@@ -578,6 +615,11 @@ def _site_digest(templates_dir: Path, config_file: Path | None) -> str:
     return _sha(*parts)
 
 
+def _parts_key(base: str, o: Outcome) -> str:
+    """The key of a study's parts of the pages listing every study (StudyParts)."""
+    return _sha(base, "parts", o.study_id, o.key, o.text_sha)[:32]
+
+
 def _page_keys(outcomes: list[Outcome], site_nav: list, base: str) -> dict[str, str]:
     """The key of each study page's finished HTML: the study's report (its JSON text), errors
     and plots, and everything of the site that shows on every page or decides how a page is
@@ -603,6 +645,7 @@ class PageCache:
 
     def __init__(self, root: Path):
         self.root = Path(root) / "pages"
+        self._parts: dict[tuple[str, str], StudyParts | None] = {}   # read this build
 
     def _folder(self, page: str) -> Path:
         return self.root / _sha(page)[:16]
@@ -636,6 +679,11 @@ class PageCache:
 
     def get_parts(self, study_id: str, key: str) -> StudyParts | None:
         """A study's parts of the index, register and exports, or None."""
+        if (study_id, key) not in self._parts:
+            self._parts[study_id, key] = self._read_parts(study_id, key)
+        return self._parts[study_id, key]
+
+    def _read_parts(self, study_id: str, key: str) -> StudyParts | None:
         try:
             got = StudyParts.from_dict(json.loads(
                 self._parts_file(study_id, key).read_text(encoding="utf-8")))
@@ -669,7 +717,8 @@ def _failure_text(failed: list[Outcome]) -> str:
 def prepare(studies_dir: Path | None, templates_dir: Path, config_file: Path | None, *,
             keep_going: bool = False, cache_dir: Path | None = None, jobs: int = 0,
             progress: Callable[[str], None] | None = None,
-            sources: list[Source] | None = None, reuse_pages: bool = False) -> Prepared:
+            sources: list[Source] | None = None, reuse_pages: bool = False,
+            also_meanwhile: Callable[[], None] | None = None) -> Prepared:
     """Read, fit and render every study: the site's files, ready for the generator.
 
     With ``reuse_pages`` (``extractval build``, whose generator step can put kept pages in
@@ -685,14 +734,26 @@ def prepare(studies_dir: Path | None, templates_dir: Path, config_file: Path | N
         display_root = studies_dir.parent
     if cache_dir is None:
         cache_dir = default_cache_dir(studies_dir)
-    outcomes = collect(sources, Cache(cache_dir), jobs, progress, display_root)
+    page_cache = (PageCache(Path(cache_dir) / CACHE_FORMAT)
+                  if reuse_pages and cache_dir is not None else None)
+
+    def read_ahead(cached: list[Outcome]) -> None:
+        """While studies are fitted: the kept parts of those the cache held (render asks
+        for them again and gets them from memory), and whatever the caller reads ahead."""
+        if page_cache is not None:
+            base = _site_digest(Path(templates_dir), config_file)
+            for o in cached:
+                page_cache.get_parts(o.study_id, _parts_key(base, o))
+        if also_meanwhile is not None:
+            also_meanwhile()
+
+    outcomes = collect(sources, Cache(cache_dir), jobs, progress, display_root,
+                       meanwhile=read_ahead)
     failed = [o for o in outcomes if o.problems]
     if failed and not keep_going:
         raise SiteBuildError(_failure_text(failed) + "\nthe site was not built; correct the "
                              "files above, or use --keep-going to publish the other studies")
     date, _ = build_date()
-    page_cache = (PageCache(Path(cache_dir) / CACHE_FORMAT)
-                  if reuse_pages and cache_dir is not None else None)
     return render(outcomes, Path(templates_dir), config_file, date, page_cache)
 
 
@@ -813,9 +874,11 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
         if archive == site_dir or archive.is_relative_to(site_dir):
             raise SiteBuildError(f"{archive}: the archive would be inside the site folder, "
                                  "which each build replaces; choose a folder beside it")
+    from .versions import read_ahead
+
     prepared = prepare(studies_dir, templates_dir, config_file, keep_going=keep_going,
                        cache_dir=cache_dir, jobs=jobs, progress=progress, sources=sources,
-                       reuse_pages=True)
+                       reuse_pages=True, also_meanwhile=lambda: read_ahead(site_dir))
     _add_approvals(prepared, templates_dir, studies_dir)
     own = _add_versions(prepared, templates_dir, site_dir, archive)
     t1 = time.perf_counter()

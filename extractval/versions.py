@@ -103,6 +103,43 @@ def _date(files: dict[str, bytes | Path]) -> str:
         return ""
 
 
+#: results.json documents read ahead (read_ahead), by path, with the file's size and time
+_READ: dict[Path, tuple[tuple[int, int, int], dict]] = {}
+
+
+def _signature(path: Path) -> tuple[int, int, int]:
+    st = path.stat()
+    return st.st_ino, st.st_size, st.st_mtime_ns
+
+
+def read_ahead(site_dir: Path | None) -> None:
+    """Parse the results.json of the version the published site shows, which the next
+    add_versions compares with (a build calls this while its studies are being fitted)."""
+    if site_dir is None:
+        return
+    try:
+        shown = (Path(site_dir) / MARKER).read_text(encoding="utf-8").strip()
+        if not _VERSION.fullmatch(shown):
+            return
+        path = Path(site_dir) / VERSIONS / shown / "results.json"
+        _READ.clear()
+        _READ[path] = (_signature(path), json.loads(path.read_bytes()))
+    except (OSError, ValueError):
+        _READ.clear()
+
+
+def _document(data: bytes | Path) -> dict:
+    """A results.json document: read ahead when it was, and is still the same file."""
+    if isinstance(data, Path):
+        got = _READ.pop(data, None)
+        try:
+            if got is not None and got[0] == _signature(data):
+                return got[1]
+        except OSError:
+            pass
+    return json.loads(_bytes(data))
+
+
 def previous_version(site_dir: Path | None, earlier: dict[str, dict[str, bytes]],
                      current: str) -> str | None:
     """The version the published site shows (its marker), else the newest other one kept."""
@@ -142,8 +179,9 @@ def add_versions(files: dict[str, bytes], nav: list, site_dir: Path | None,
                 if linked is not None:
                     linked.pop(path, None)
     prev = previous_version(site_dir, earlier, current)
-    comparison = (compare(json.loads(_bytes(earlier[prev]["results.json"])), doc)
+    comparison = (compare(_document(earlier[prev]["results.json"]), doc)
                   if prev is not None else None)
+    _READ.clear()
     listing = sorted(({"version": v, "date": _date(k)} for v, k in
                       {**earlier, current: own}.items()),
                      key=lambda x: (x["date"], x["version"]), reverse=True)

@@ -38,8 +38,8 @@ def project(tmp_path, monkeypatch) -> Path:
     return root
 
 
-def build(studies: Path, out: Path, cache: Path) -> site.BuildResult:
-    return site.build(studies, out, CONFIG, cache_dir=cache, jobs=1)
+def build(studies: Path, out: Path, cache: Path, jobs: int = 1) -> site.BuildResult:
+    return site.build(studies, out, CONFIG, cache_dir=cache, jobs=jobs)
 
 
 def tree(folder: Path) -> dict[str, str]:
@@ -154,7 +154,9 @@ def test_unchanged_studies_are_neither_rendered_nor_converted_again(project, tmp
     assert all(cold.built[p] == 1 and cold.converted[p] == 1 for p in studies)
     change_one_run(project, "SYN-002")
     made = Made(monkeypatch)
-    second = build(project, tmp_path / "b", cache)
+    # two workers: the changed study is fitted in a worker process, its plots drawn here
+    second = build(project, tmp_path / "b", cache, jobs=2)
+    assert [o.study_id for o in second.prepared.outcomes if not o.cached] == ["SYN-002"]
     assert made.rendered == {"SYN-002": 1}
     assert made.parts == {"SYN-002": 1}
     assert second.prepared.parts_reused == ["SYN-001", "SYN-003"]

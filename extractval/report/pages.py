@@ -22,7 +22,7 @@ from pathlib import Path
 import jinja2
 from markupsafe import Markup
 
-from ..formats import ONE_PHASE_PLOT_RANGE, is_bound
+from ..formats import ONE_PHASE_PLOT_RANGE, OUTCOME_WORDS, is_bound
 from .register import (CRITERION_LABELS, Dossier, Quantity, criterion_style, csv_rows,
                        fmt_number, json_item, plot_name, pointer, register_rows, resolve,
                        results_csv, results_json_of_parts, safe_name, study_register,
@@ -385,8 +385,6 @@ class Pages:
                                   f"(while rendering{' ' + _study_of(ctx) if ctx else ''})")
 
     def study_page(self, s: StudyInput, dossier: Dossier) -> str:
-        from ..acceptance import OUTCOME_WORDS   # scipy: only when a page is made
-
         if s.data is None:
             return self._render("failed.md.j2", study_id=s.study_id, errors=s.errors,
                                 dossier=dossier, key=s.key)
