@@ -1,4 +1,4 @@
-"""Run every benchmark in turn: start-up, engine, plots, baseline, dossier (if present).
+"""Run every benchmark in turn: start-up, engine, plots, baseline, work-up, dossier (if present).
 
 Run:  python benchmarks/run_all.py [--quick]
 
@@ -18,7 +18,7 @@ from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
 SCRIPTS = ("bench_startup.py", "bench_engine.py", "bench_plots.py", "bench_baseline.py",
-           "bench_dossier.py")
+           "bench_workup.py", "bench_dossier.py")
 OPTIONAL = {"bench_dossier.py"}      # added with the dossier build; skipped while absent
 
 

@@ -266,6 +266,11 @@ class StudyReport:
     @cached_property
     def selectivity(self) -> dict | None:
         """Impurities, separation factors against pH and each procedure's work-up prediction."""
+        return self.selectivity_section()
+
+    def selectivity_section(self, fast: bool = True) -> dict | None:
+        """:attr:`selectivity`, computed; ``fast=False`` ranges every quantity by the SLSQP
+        search over the confidence regions (the reference path, for tests and benchmarks)."""
         if self.fit is None or not (self.study.impurities
                                     or any(p.steps for p in self.study.procedures)):
             return None
@@ -278,14 +283,15 @@ class StudyReport:
             a, b = lo, hi
             if sol.fit is not None:
                 a, b = max(a, float(sol.fit.obs.pH.min())), min(b, float(sol.fit.obs.pH.max()))
-            curves[sol.name] = (workup.separation_curve(analyte, sol, a, b) if a <= b else
+            curves[sol.name] = (workup.separation_curve(analyte, sol, a, b, fast=fast)
+                                if a <= b else
                                 {"pH": [], "note": "the analyte's and the impurity's measured "
                                                    "pH ranges do not overlap"})
         target = self.study.targets.recovery_pct
         procs = []
         for p in self.study.procedures:
             steps = p.steps or (workup.Step("extract", p.pH, (p.aqueous_mL,), p.organic_mL),)
-            pred = workup.predict_workup(analyte, solutes, steps)
+            pred = workup.predict_workup(analyte, solutes, steps, fast=fast)
             entry = {"id": p.id, **pred.to_dict()}
             spans = [(lo, hi)] + [(float(s.fit.obs.pH.min()), float(s.fit.obs.pH.max()))
                                   for s in solutes if s.fit is not None]
@@ -296,7 +302,7 @@ class StudyReport:
                     + " lies outside the measured runs")
             if len(steps) > 1 and target is not None:
                 entry["best_pH_pair"] = workup.best_pH_pair(analyte, solutes, steps, target,
-                                                            (lo, hi))
+                                                            (lo, hi), fast=fast)
             procs.append(entry)
         return {
             "impurities": [{k: v for k, v in f.items() if k != "solute"}

@@ -1042,12 +1042,14 @@ class _Boundary:
     star-shaped around the estimate, or not closed). Either way the caller profiles instead.
     """
 
-    def __init__(self, fit: FitResult, n: int | None = None, m: int | None = None):
+    def __init__(self, fit: FitResult, n: int | None = None, m: int | None = None,
+                 s_crit: float | None = None):
         n, m = n or BOUNDARY_RAYS, m or BOUNDARY_POINTS
         self.traced = False
         self.points = self.rays = np.zeros((0, fit.p))
         theta, lo_b, hi_b = fit.theta, fit.bounds[0], fit.bounds[1]
-        target = float(np.sqrt(fit.s_crit - fit.rss))
+        # the 95 % profile threshold, or another level's (work-up ranges over several fits)
+        target = float(np.sqrt((fit.s_crit if s_crit is None else s_crit) - fit.rss))
         try:
             chol = np.linalg.cholesky(fit.jac.T @ fit.jac)      # J'J = L L'
             whiten = np.linalg.inv(chol.T)                      # theta - theta_hat = W z

@@ -232,6 +232,87 @@ class Region:
         return value, ends[0], ends[1]
 
 
+# -- the same ranges from the traced boundary (fast path) ---------------------------------------
+#: fractions of the boundary's radius at which a quantity is also evaluated inside the region:
+#: an extreme found there (a stationary point inside) sends the quantity to the SLSQP search
+INTERIOR_RINGS = (0.0, 0.25, 0.5, 0.75, 0.9)
+#: how far inside the boundary's range an interior value may lie before it counts as an
+#: interior extreme (relative to the range's width; the boundary's own error is ~1e-5 of it)
+INTERIOR_TOL = 1e-6
+
+
+def region_points(fit: FitResult, level: float) -> np.ndarray | None:
+    """Points on the boundary of one fit's joint region at ``level`` (rows of theta), kept on
+    the fit; None where they cannot stand in for the region (a model not of the form
+    log D = logK + h, more than two parameters, a region the trace does not reproduce, or an
+    end open at a search limit). Over these points, with the interior checked
+    (:func:`boundary_range`), a quantity's range is the one :meth:`Region.range` searches for.
+
+    One parameter: the two ends of the interval, where S reaches the threshold. Two: the
+    boundary traced by :class:`extractval.fitting._Boundary` (the one the fit's log D intervals
+    use), at this level's threshold; it is used only where the fit's 95 % trace reproduces the
+    parameters' profile intervals.
+    """
+    from .fitting import _Boundary
+
+    memo = fit.__dict__.setdefault("_workup_points", {})
+    key = round(level, 12)
+    if key in memo:
+        return memo[key]
+    out = None
+    crit = _s_crit(fit, level)
+    if fit.model.h is not None and fit.p == 1:
+        out = _interval_ends(fit, crit)
+    elif fit.model.h is not None and fit.p == 2 and fit.boundary is not None:
+        b = fit.boundary if abs(level - 0.95) < 1e-12 else _Boundary(fit, s_crit=crit)
+        out = b.points if b.traced else None
+    memo[key] = out
+    return out
+
+
+def _interval_ends(fit: FitResult, crit: float) -> np.ndarray | None:
+    """The two values of a one-parameter fit where S = crit (rows of theta), or None."""
+    def excess(x: float) -> float:
+        r = fit.residuals(np.array([x]))[0]
+        return float(r @ r) - crit
+
+    t = float(fit.theta[0])
+    ends = []
+    for bound in (float(fit.bounds[0][0]), float(fit.bounds[1][0])):
+        if not excess(bound) > 0:
+            return None                 # open: the threshold is not reached inside the limits
+        ends.append(optimize.brentq(excess, t, bound, xtol=1e-12, rtol=1e-12))
+    return np.array(ends)[:, None]
+
+
+def solute_log_d(sol: "Solute", pH: np.ndarray, thetas: np.ndarray) -> np.ndarray:
+    """log10 D of a solute at each pH (last axis) for each row of ``thetas`` (first axis)."""
+    rest = [thetas[:, k:k + 1] for k in range(1, thetas.shape[1])]
+    return thetas[:, :1] + sol.model.h(np.asarray(pH, dtype=float)[None, :], *rest)
+
+
+def boundary_range(theta: np.ndarray, points: np.ndarray,
+                   g: Callable[[np.ndarray], np.ndarray]) -> tuple[np.ndarray, np.ndarray] | None:
+    """Least and greatest value of each column of ``g(thetas)`` over the region bounded by
+    ``points`` (from :func:`region_points`): the extremes on the boundary, refined by a
+    parabola; None (use the search) when a value inside the region lies beyond them."""
+    from .fitting import _Boundary
+
+    if points.shape[0] == 2:            # one parameter: the ends of an interval
+        inner = points[0] + np.linspace(0.0, 1.0, 9)[1:-1, None] * (points[1] - points[0])
+        edge = np.asarray(g(points), dtype=float).reshape(2, -1)
+        lo, hi = edge.min(axis=0), edge.max(axis=0)
+    else:
+        inner = np.concatenate([theta + f * (points - theta) for f in INTERIOR_RINGS])
+        lo, hi = _Boundary.range_of(np.asarray(g(points), dtype=float).reshape(
+            points.shape[0], -1))
+    inside = np.asarray(g(inner), dtype=float).reshape(inner.shape[0], -1)
+    slack = INTERIOR_TOL * np.maximum(hi - lo, 1e-300)
+    if np.any(inside.min(axis=0) < lo - slack) or np.any(inside.max(axis=0) > hi + slack):
+        return None
+    return lo, hi
+
+
 # -- predictions --------------------------------------------------------------------------------
 @dataclass(frozen=True)
 class Quantity:
@@ -263,6 +344,32 @@ class _Pair:
                                         "declared constants: no interval from data"))
 
 
+def _method(solutes: Sequence[Solute]) -> str:
+    """How the interval of a quantity of these solutes is made (as :class:`_Pair` says)."""
+    k = sum(s.fit is not None for s in solutes)
+    if not k:
+        return "declared constants: no interval from data"
+    return REGION_METHOD if k <= 1 else PRODUCT_METHOD
+
+
+def _fast_range(sol: Solute, level: float, g: Callable[[np.ndarray], np.ndarray]
+                ) -> tuple[np.ndarray, np.ndarray] | None:
+    """Range of g (a function of rows of theta, one value or a row of values each) over the
+    solute's region at ``level`` from its boundary points; its value alone for declared
+    constants; None where the boundary cannot be used (then the search)."""
+    if sol.fit is None:
+        v = np.asarray(g(sol.theta[None, :]), dtype=float).reshape(1, -1)[0]
+        return v, v
+    pts = region_points(sol.fit, level)
+    return None if pts is None else boundary_range(sol.theta, pts, g)
+
+
+def _closed(value: float, lo: float, hi: float, method: str) -> Quantity:
+    """A quantity whose ends come from the boundary: the estimate is inside the region, so an
+    end never lies on its wrong side (as in :meth:`Region.range`)."""
+    return Quantity(value, Interval(min(float(lo), value), max(float(hi), value), method))
+
+
 def _level(solutes: Sequence[Solute]) -> float:
     """Confidence of each fitted solute's region so that their product holds >= 95 %."""
     return 0.95 ** (1.0 / max(1, sum(s.fit is not None for s in solutes)))
@@ -274,8 +381,16 @@ def pH_grid(lo: float, hi: float, step: float = PH_STEP) -> np.ndarray:
                     * step, 6)
 
 
-def log_separation_factor(analyte: Solute, impurity: Solute, pH: float) -> Quantity:
-    """log10 beta = log10 D_analyte - log10 D_impurity at one pH, with its interval."""
+def log_separation_factor(analyte: Solute, impurity: Solute, pH: float,
+                          fast: bool = True) -> Quantity:
+    """log10 beta = log10 D_analyte - log10 D_impurity at one pH, with its interval.
+
+    ``fast``: the ends from each solute's boundary (:func:`separation_factors`); False: the
+    SLSQP search over the product region (the reference the tests compare with)."""
+    if fast:
+        got = separation_factors(analyte, impurity, np.array([float(pH)]))
+        if got is not None:
+            return got[0]
     pair = _Pair([analyte, impurity], _level([analyte, impurity]))
 
     def g(th):
@@ -283,11 +398,31 @@ def log_separation_factor(analyte: Solute, impurity: Solute, pH: float) -> Quant
     return pair.quantity(g)
 
 
+def separation_factors(analyte: Solute, impurity: Solute,
+                       pH: np.ndarray) -> list[Quantity] | None:
+    """log10 beta at every pH at once, from each solute's boundary; None where a boundary
+    cannot be used. log beta = log D_a - log D_i with independent regions: its least value
+    over their product is the least log D_a minus the greatest log D_i (and the reverse)."""
+    pair = [analyte, impurity]
+    level = _level(pair)
+    ranges = [_fast_range(sol, level, lambda th, sol=sol: solute_log_d(sol, pH, th))
+              for sol in pair]
+    if any(r is None for r in ranges):
+        return None
+    (a_lo, a_hi), (i_lo, i_hi) = ranges
+    value = analyte.log_d(pH) - impurity.log_d(pH)
+    method = _method(pair)
+    return [_closed(float(v), lo, hi, method)
+            for v, lo, hi in zip(value, a_lo - i_hi, a_hi - i_lo)]
+
+
 def separation_curve(analyte: Solute, impurity: Solute, pH_lo: float, pH_hi: float,
-                     step: float = PH_STEP) -> dict:
+                     step: float = PH_STEP, fast: bool = True) -> dict:
     """log10 beta against pH on a grid, with the interval at each point."""
     grid = pH_grid(pH_lo, pH_hi, step)
-    rows = [log_separation_factor(analyte, impurity, float(x)) for x in grid]
+    rows = separation_factors(analyte, impurity, grid) if fast and grid.size else None
+    if rows is None:
+        rows = [log_separation_factor(analyte, impurity, float(x), fast=False) for x in grid]
     return {"pH": [clean(x) for x in grid],
             "log_beta": [clean(q.value, 6) for q in rows],
             "lo": [clean(q.ci95.lo, 6) for q in rows],
@@ -350,8 +485,13 @@ def _log_impurity_content(log_fa: float, log_fi: Sequence[float],
 
 
 def predict_workup(analyte: Solute, impurities: Sequence[Solute],
-                   steps: Sequence[Step]) -> WorkupPrediction:
-    """The work-up's recovery, carry-overs and purity, each with its 95 % interval."""
+                   steps: Sequence[Step], fast: bool = True) -> WorkupPrediction:
+    """The work-up's recovery, carry-overs and purity, each with its 95 % interval.
+
+    ``fast``: each range from the solutes' boundary points (:func:`region_points`), the
+    purity's by its monotony in each solute's fraction; a quantity whose boundary cannot be
+    used, or that has an extreme inside the region, is searched (SLSQP, the reference path
+    that ``fast=False`` takes for every quantity)."""
     why = check_steps(steps)
     if why:
         raise ValueError(why)
@@ -361,24 +501,46 @@ def predict_workup(analyte: Solute, impurities: Sequence[Solute],
     def frac(sol: Solute, th) -> float:
         return float(log_fraction_to_product(sol.log_d(pHs, th), steps))
 
-    solo = _Pair([analyte], 0.95)
-    recovery = solo.quantity(lambda th: _pct(frac(analyte, th[0])))
+    def fracs(sol: Solute):
+        return lambda th: log_fraction_to_product(solute_log_d(sol, pHs, th), steps)
+
+    def solo(sol: Solute) -> Quantity:
+        value = _pct(frac(sol, sol.theta))
+        got = _fast_range(sol, 0.95, fracs(sol)) if fast else None
+        if got is None:
+            return _Pair([sol], 0.95).quantity(lambda th: _pct(frac(sol, th[0])))
+        return _closed(value, _pct(got[0][0]), _pct(got[1][0]), _method([sol]))
+
+    recovery = solo(analyte)
     carry, betas = {}, {}
     for imp in impurities:
-        carry[imp.name] = _Pair([imp], 0.95).quantity(lambda th, imp=imp: _pct(frac(imp, th[0])))
-        betas[imp.name] = [log_separation_factor(analyte, imp, float(p)) for p in pHs]
+        carry[imp.name] = solo(imp)
+        betas[imp.name] = [log_separation_factor(analyte, imp, float(p), fast=fast)
+                           for p in pHs]
     content, notes = None, []
     with_ratio = [imp for imp in impurities if imp.amount_ratio is not None]
     if impurities and len(with_ratio) == len(impurities):
         all_sol = [analyte, *impurities]
-        pair = _Pair(all_sol, _level(all_sol))
+        level = _level(all_sol)
         ratios = [imp.amount_ratio for imp in impurities]
 
         def g(th):
             fa = frac(analyte, th[0])
             fi = [frac(imp, t) for imp, t in zip(impurities, th[1:])]
             return 100.0 * 10.0 ** _log_impurity_content(fa, fi, ratios)
-        content = pair.quantity(g)
+        # the share rises with each impurity's fraction and falls with the analyte's, and
+        # the regions are independent: its ends pair the fractions' opposite ends
+        ranges = [_fast_range(sol, level, fracs(sol)) for sol in all_sol] if fast else [None]
+        if any(r is None for r in ranges):
+            content = _Pair(all_sol, level).quantity(g)
+        else:
+            (a_lo, a_hi), rest = ranges[0], ranges[1:]
+            value = g([sol.theta for sol in all_sol])
+            lo = 100.0 * 10.0 ** _log_impurity_content(float(a_hi[0]),
+                                                       [float(r[0][0]) for r in rest], ratios)
+            hi = 100.0 * 10.0 ** _log_impurity_content(float(a_lo[0]),
+                                                       [float(r[1][0]) for r in rest], ratios)
+            content = _closed(value, lo, hi, _method(all_sol))
     elif impurities:
         missing = ", ".join(imp.name for imp in impurities if imp.amount_ratio is None)
         notes.append(f"purity not computed: no amount in the feed is given for {missing}")
@@ -388,7 +550,7 @@ def predict_workup(analyte: Solute, impurities: Sequence[Solute],
 # -- the pH pair that maximises purity ----------------------------------------------------------
 def best_pH_pair(analyte: Solute, impurities: Sequence[Solute], steps: Sequence[Step],
                  target_recovery_pct: float, pH_span: tuple[float, float],
-                 step: float = PH_STEP) -> dict:
+                 step: float = PH_STEP, fast: bool = True) -> dict:
     """Extraction pH and last-step pH (back-extraction or wash) that maximise the purity of
     the product while the lower 95 % end of the recovery meets the target.
 
@@ -450,7 +612,8 @@ def best_pH_pair(analyte: Solute, impurities: Sequence[Solute], steps: Sequence[
         i, j = np.unravel_index(flat, purity.shape)
         if not rec_lo[i, j] >= target_recovery_pct:
             break
-        pred = predict_workup(analyte, impurities, with_pHs(float(grid[i]), float(grid[j])))
+        pred = predict_workup(analyte, impurities, with_pHs(float(grid[i]), float(grid[j])),
+                              fast=fast)
         lo = pred.recovery_pct.ci95.lo
         if lo is not None and lo >= target_recovery_pct:
             chosen = {"extract_pH": clean(grid[i]), "last_step_pH": clean(grid[j]),
