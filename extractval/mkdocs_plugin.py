@@ -25,6 +25,11 @@ from mkdocs.plugins import BasePlugin  # noqa: E402
 from mkdocs.structure.files import File  # noqa: E402
 
 from . import site  # noqa: E402
+from .report.pages import PRINT, study_url  # noqa: E402
+from .report.printview import PrintedStudy, assemble  # noqa: E402
+
+#: the print page's folder in the site (directory URLs)
+PRINT_DIR = PRINT[:-len(".md")]
 
 log = logging.getLogger("mkdocs.plugins.extractval")
 PLUGIN = "extractval"
@@ -110,6 +115,25 @@ class DossierPlugin(BasePlugin[DossierConfig]):
             if new != data:
                 path.write_bytes(new)
         self._done.clear()
+        self._print_page(root)
+
+    def _print_page(self, root: Path) -> None:
+        """Put every study page's finished content into the print page (printview)."""
+        target = root / PRINT_DIR / "index.html"
+        if self.prepared is None or not target.is_file():
+            return
+        studies = []
+        for study_id in sorted(o.study_id for o in self.prepared.outcomes):
+            folder = study_url(study_id)
+            page = root / folder / "index.html"
+            if page.is_file():
+                studies.append(PrintedStudy(study_id, folder,
+                                            page.read_text(encoding="utf-8")))
+        html = target.read_text(encoding="utf-8")
+        try:
+            target.write_text(assemble(html, studies, PRINT_DIR + "/"), encoding="utf-8")
+        except ValueError as exc:
+            raise PluginError(f"the print page: {exc}") from None
 
     def on_serve(self, server, *, config, builder):
         server.watch(str(self._studies(config)))

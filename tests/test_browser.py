@@ -273,6 +273,48 @@ def test_a_study_prints_to_pdf_with_its_running_head(served, browser_context, de
     page.close()
 
 
+def test_the_whole_dossier_prints_to_pdf(served, browser_context, demo_ids):
+    """The print page (print/) printed by Chromium with no script run on beforeprint: the
+    overview, then every study from a new page whose running head names it, every page with
+    the dossier version and "Page i of N", each study's log K as the register shows it, and
+    the folded parts open (the print CSS alone opens them)."""
+    import io
+    import json
+    import urllib.request
+
+    try:
+        from pypdf import PdfReader
+    except ImportError:
+        _unavailable("the pypdf package is not installed (pip install -e '.[test]')")
+    with urllib.request.urlopen(f"{served}results.json") as fh:
+        doc = json.load(fh)
+    page = browser_context.new_page()
+    page.goto(f"{served}print/")
+    assert page.locator("section.xv-print-study").count() == len(demo_ids)
+    page.emulate_media(media="print")
+    reader = PdfReader(io.BytesIO(page.pdf(prefer_css_page_size=True)))
+    n = len(reader.pages)
+    assert n >= len(demo_ids) + 1, n
+    texts = [unicodedata.normalize("NFKC", p.extract_text()) for p in reader.pages]
+    for i, text in enumerate(texts, 1):
+        assert f"Dossier {doc['dossier_version']}" in text, i
+        assert f"Page {i} of {n}" in text, i
+    assert texts[0].startswith("Extraction validation dossier")      # the overview's head
+    first = []
+    for study_id in demo_ids:
+        pages = [i for i, text in enumerate(texts) if text.startswith(f"Study {study_id} ")]
+        assert pages, study_id
+        first.append(pages[0])
+        # a study starts a page: its heading is on the first page its running head names
+        assert texts[pages[0]].count(f"Study {study_id}") >= 2, study_id
+        log_k = next(r["display"] for r in doc["numbers"] if r["id"] == f"{study_id}/logK")
+        assert log_k in "\n".join(texts[i] for i in pages), study_id
+    assert first == sorted(first)
+    whole = "\n".join(texts)
+    assert whole.count("Residual SD") >= len(demo_ids)            # each study's fit details
+    page.close()
+
+
 def test_no_request_left_127_0_0_1(served, browser_context):
     """Runs last in this module: every request the pages made, fonts and scripts included."""
     page = browser_context.new_page()

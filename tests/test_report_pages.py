@@ -94,7 +94,7 @@ def gold_files(d: dict) -> dict[str, bytes]:
 
 
 @pytest.mark.parametrize("page", ["studies/SYN-GOLD/index.md", "studies/SYN-BROKEN/index.md",
-                                  "index.md", "register.md"])
+                                  "index.md", "register.md", "print.md"])
 def test_golden_markdown(gold_dict, page):
     files = gold_files(gold_dict)
     golden = GOLDEN / "pages" / page

@@ -31,6 +31,8 @@ from .text import html_attr, md_text
 
 #: the dossier's Markdown files besides the study pages
 INDEX, REGISTER, ABOUT = "index.md", "register.md", "about.md"
+#: the whole dossier on one page, for print (study contents put in by report/printview.py)
+PRINT = "print.md"
 #: studies of one analyte in several solvents, side by side (extractval.solvent_choice)
 SOLVENTS = "solvents.md"
 CSS_SOURCE, CSS_PATH = "extra.css", "assets/extractval.css"
@@ -456,6 +458,19 @@ class Pages:
         return self._render("solvents.md.j2", groups=groups, views=views, dossier=dossier,
                             url=study_url, best_rule=BEST_RULE, q3c_source=Q3C)
 
+    def print_page(self, studies: list[StudyInput], dossier: Dossier, counts: dict,
+                   rows: list[str] | None = None) -> str:
+        """The whole dossier for print: the overview's provenance and table here; each
+        study's content is put in at the marker once the study pages are written."""
+        from .printview import MARKER, rebase_html
+
+        if rows is None:
+            rows = [self.index_row(s, dossier) for s in studies]
+        to_dir = PRINT[:-len(".md")] + "/"
+        return self._render("print.md.j2", rows=[Markup(rebase_html(r, "", to_dir))
+                                                 for r in rows],
+                            dossier=dossier, counts=counts, marker=Markup(MARKER))
+
     def about_page(self, dossier: Dossier) -> str:
         return self._render("about.md.j2", dossier=dossier)
 
@@ -504,6 +519,8 @@ class Pages:
                                         [p.index_row for p in made]).encode(),
                  REGISTER: self.register_page(studies, dossier, made).encode(),
                  ABOUT: self.about_page(dossier).encode(),
+                 PRINT: self.print_page(studies, dossier, counts,
+                                        [p.index_row for p in made]).encode(),
                  CSS_PATH: self.css(), JS_PATH: self.js()}
         for s in studies:
             path = study_page_path(s.study_id)
@@ -578,4 +595,5 @@ def nav(studies: list[StudyInput], compared: bool | None = None) -> list:
                          for s in sorted(studies, key=lambda s: s.study_id)]},
             *([{"Solvents compared": SOLVENTS}] if compared else []),
             {"Number register": REGISTER},
-            {"About this dossier": ABOUT}]
+            {"About this dossier": ABOUT},
+            {"Print the dossier": PRINT}]

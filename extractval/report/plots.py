@@ -680,9 +680,20 @@ def purity_map_plot(d: dict, k: int) -> bytes | None:
                          rasterized=False)
     target = best.get("target_recovery_pct")
     if target is not None:
-        miss = np.where(rec_lo < target, 1.0, np.nan)
-        ax.pcolor(edges, edges, np.ma.masked_invalid(miss.T), hatch="////",
-                  facecolor="none", edgecolor="white", linewidth=0.0)
+        # the cells missing the target as one hatched path of many squares: a hatch per
+        # cell made each its own pattern, and a printed page of them tens of megabytes
+        from matplotlib.patches import PathPatch
+        from matplotlib.path import Path as MplPath
+
+        squares = [[(edges[i], edges[j]), (edges[i + 1], edges[j]),
+                    (edges[i + 1], edges[j + 1]), (edges[i], edges[j + 1]), (0.0, 0.0)]
+                   for i, j in np.argwhere(rec_lo < target)]
+        if squares:
+            codes = [MplPath.MOVETO, MplPath.LINETO, MplPath.LINETO, MplPath.LINETO,
+                     MplPath.CLOSEPOLY] * len(squares)
+            ax.add_patch(PathPatch(MplPath(np.concatenate(squares), codes), hatch="////",
+                                   facecolor="none", edgecolor="white", linewidth=0.0,
+                                   gid="misses-target"))
     steps = pr["steps"]
     ax.plot([steps[0]["pH"]], [steps[-1]["pH"]], linestyle="none", marker="D", markersize=7,
             markerfacecolor="white", markeredgecolor=INK, label="procedure as written")
