@@ -1516,7 +1516,9 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
             forms = _check_header(table, problems,
                                   frozenset(c for m in imp_cols.values() for c in m.values()))
             runs = _runs(table, problems, forms)
-            if runs and not any(not r.excluded for r in runs) and not _n_errors(problems):
+            fitted = [r for r in runs if r.spike_stage is None]   # method runs: not fitted
+            if fitted and not any(not r.excluded for r in fitted) \
+                    and not _n_errors(problems):
                 problems.append(Problem("every run is excluded: nothing is left to fit",
                                         file=table.file, severity="warning",
                                         expected="at least one run without an exclusion"))

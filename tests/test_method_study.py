@@ -324,3 +324,16 @@ def test_check_prints_located_method_errors_and_fails(tmp_path, capsys):
     err = capsys.readouterr().err
     assert f"line {line}" in err and "V30-040" in err and "spike_stage" in err
     assert "unknown spike stage" in err and "after" in err and "Traceback" not in err
+
+
+def test_every_shake_flask_run_excluded_is_warned_although_method_runs_remain(tmp_path):
+    folder = _copy(tmp_path)
+    header, rows = _rows(folder)
+    header = header + ["excluded"]
+    for r in rows:
+        r["excluded"] = "" if r["spike_stage"] else "buffer prepared wrongly"
+    _write(folder, header, rows)
+    study, problems = check_study(folder)
+    assert study is not None and len(study.method_runs) == 81
+    assert any("every run is excluded" in p.message and p.severity == "warning"
+               for p in problems)

@@ -537,7 +537,9 @@ def _method_register(sid: str, d: dict) -> list[Quantity | None]:
                               ("s_L", None, "between-group SD s_L"),
                               ("s_I", "s_I_ci95", "intermediate-precision SD s_I")):
             out.append(_qp(sid, f"{name}/{key}", f"{text} {what} [{p['unit']}]", "",
-                           iso + ("; chi-square interval" if ci else ""), d, base + [key],
+                           iso + {"s_r": "; chi-square interval",
+                                  "s_I": "; modified large-sample interval"}.get(key, ""),
+                           d, base + [key],
                            base + [ci] if ci else None, "f2"))
         for key, text in (("rsd_r_pct", "repeatability RSD"), ("rsd_L_pct", "between-group RSD"),
                           ("rsd_I_pct", "intermediate-precision RSD")):
