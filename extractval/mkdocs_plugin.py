@@ -135,6 +135,15 @@ class DossierPlugin(BasePlugin[DossierConfig]):
         except ValueError as exc:
             raise PluginError(f"the print page: {exc}") from None
 
+    def on_env(self, env, *, config, files):
+        """Keep the theme's compiled templates between builds, beside the page cache."""
+        cache = self.prepared.page_cache if self.prepared is not None else None
+        if cache is not None and env.bytecode_cache is None:
+            from .report.pages import compiled_templates
+
+            env.bytecode_cache = compiled_templates(cache.compiled / "theme")
+        return env
+
     def on_serve(self, server, *, config, builder):
         server.watch(str(self._studies(config)))
         return server

@@ -539,7 +539,8 @@ def render(outcomes: list[Outcome], templates_dir: Path, config_file: Path | Non
         return StudyInput(o.study_id, o.data if load else None, tuple(o.errors),
                           tuple(sorted(o.plots)), o.key, loaded=load)
 
-    pages = Pages(templates_dir)
+    pages = Pages(templates_dir,
+                  compiled=None if page_cache is None else page_cache.compiled / "pages")
     try:
         for o in outcomes:
             if o.study_id not in parts:
@@ -645,6 +646,9 @@ class PageCache:
 
     def __init__(self, root: Path):
         self.root = Path(root) / "pages"
+        #: compiled templates, Jinja2's bytecode cache: pages/ ours, theme/ the generator's
+        #: (one folder per environment: the cache is keyed by file name, not by options)
+        self.compiled = Path(root) / "templates"
         self._parts: dict[tuple[str, str], StudyParts | None] = {}   # read this build
 
     def _folder(self, page: str) -> Path:
@@ -917,6 +921,11 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
                        {"studies and pages": t1 - t0, "site generator": t2 - t1})
 
 
+def _pages(prepared: Prepared, templates_dir: Path) -> Pages:
+    cache = prepared.page_cache
+    return Pages(templates_dir, compiled=None if cache is None else cache.compiled / "pages")
+
+
 def _add_approvals(prepared: Prepared, templates_dir: Path, studies_dir: Path | None) -> None:
     """The Review and approval page from approvals.yaml (extractval.approvals); a malformed
     file stops the build with its located errors."""
@@ -928,7 +937,8 @@ def _add_approvals(prepared: Prepared, templates_dir: Path, studies_dir: Path | 
                              "approvals.yaml")
     keys = {o.study_id: o.key for o in prepared.outcomes}
     try:
-        page = Pages(templates_dir).approvals_page(approval_rows(approvals, keys), keys)
+        page = _pages(prepared, templates_dir).approvals_page(approval_rows(approvals, keys),
+                                                               keys)
     except TemplateProblem as exc:
         raise SiteBuildError(f"a page template failed: {exc}") from None
     prepared.files["approvals.md"] = page.encode("utf-8")
@@ -942,7 +952,7 @@ def _add_versions(prepared: Prepared, templates_dir: Path, site_dir: Path,
     """versions/ and the Changes page (extractval.versions); this version's files."""
     from .versions import add_versions
 
-    pages = Pages(templates_dir)
+    pages = _pages(prepared, templates_dir)
     try:
         return add_versions(prepared.files, prepared.nav, site_dir, archive,
                             pages.changes_page, prepared.linked)

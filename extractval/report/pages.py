@@ -77,16 +77,29 @@ class _Undefined(jinja2.StrictUndefined):
         return 0
 
 
-def environment(templates_dir: Path) -> jinja2.Environment:
+def environment(templates_dir: Path, compiled: Path | None = None) -> jinja2.Environment:
+    """The templates' environment; ``compiled``: a folder keeping the compiled templates
+    between builds (Jinja2's bytecode cache, checked against each template's source)."""
     env = jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(templates_dir)), autoescape=False,
         finalize=_finalize, undefined=_Undefined, keep_trailing_newline=True,
-        trim_blocks=True, lstrip_blocks=True)
+        trim_blocks=True, lstrip_blocks=True,
+        bytecode_cache=None if compiled is None else compiled_templates(compiled))
     env.filters["text"] = md_text
     env.filters["attr"] = html_attr
     env.filters["css_string"] = css_string
     env.globals["idname"] = safe_name          # a label as an identifier segment
     return env
+
+
+def compiled_templates(folder: Path) -> jinja2.BytecodeCache | None:
+    """Jinja2's bytecode cache in ``folder`` (None when it cannot be made: the templates are
+    then compiled each build, which only costs time)."""
+    try:
+        Path(folder).mkdir(parents=True, exist_ok=True)
+    except OSError:
+        return None
+    return jinja2.FileSystemBytecodeCache(str(folder))
 
 
 def css_string(text) -> Markup:
@@ -364,10 +377,11 @@ def _study_of(ctx: dict) -> str:
 class Pages:
     """Renders the dossier's pages from study inputs with the templates of one folder."""
 
-    def __init__(self, templates_dir: Path, trace: bool = False):
+    def __init__(self, templates_dir: Path, trace: bool = False,
+                 compiled: Path | None = None):
         self.templates_dir = Path(templates_dir)
         self.trace = trace
-        self.env = environment(self.templates_dir)
+        self.env = environment(self.templates_dir, compiled)
         self._registers: dict[int, list[Quantity]] = {}
 
     def _register(self, data: dict) -> list[Quantity]:
