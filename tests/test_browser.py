@@ -218,6 +218,28 @@ def test_copy_button_copies_the_citation_line(served, browser_context, demo_ids)
     page.close()
 
 
+def test_a_link_to_a_number_in_a_fold_opens_the_fold(served, browser_context, demo_ids):
+    """A procedure's prediction table is folded; the page's address with #<id> of one of its
+    numbers (as a citation names it) opens the fold and shows the number, on loading the
+    address and on following a link within the page."""
+    study_id = demo_ids[0]
+    ident = f"{study_id}/P1/recovery_pct"
+    page = browser_context.new_page()
+    page.goto(f"{served}studies/{study_id}/")
+    cell = page.locator(f'[id="{ident}"]')
+    assert cell.count() == 1 and not cell.is_visible(), "P1's prediction table is not folded"
+    page.evaluate("id => { window.location.hash = encodeURIComponent(id); }", ident)
+    cell.wait_for(state="visible")
+    other = page.locator(f'[id="{study_id}/P2/log_d"]')
+    assert not other.is_visible()
+    page.goto("about:blank")
+    page.goto(f"{served}studies/{study_id}/#{ident}")
+    cell = page.locator(f'[id="{ident}"]')
+    cell.wait_for(state="visible")
+    assert cell.locator("xpath=ancestor::details").first.get_attribute("open") is not None
+    page.close()
+
+
 def test_runs_table_scrolls_with_its_header_visible(served, browser_context, demo_ids):
     page = browser_context.new_page()
     page.set_viewport_size({"width": 1280, "height": 900})
