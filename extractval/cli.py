@@ -57,8 +57,10 @@ def cmd_check(args) -> int:
             print(f"{_label(folder)}: {len(errors)} error(s), "
                   f"{len(found) - len(errors)} warning(s)", file=sys.stderr)
         else:
+            method = (f", {len(study.method_runs)} method-validation runs"
+                      if study.method_runs else "")
             print(f"{_label(folder)}: ok ({len(study.runs)} runs, "
-                  f"{len(study.excluded_runs)} excluded, {len(found)} warning(s))")
+                  f"{len(study.excluded_runs)} excluded{method}, {len(found)} warning(s))")
     return 1 if n_err else 0
 
 

@@ -337,3 +337,9 @@ def test_every_shake_flask_run_excluded_is_warned_although_method_runs_remain(tm
     assert study is not None and len(study.method_runs) == 81
     assert any("every run is excluded" in p.message and p.severity == "warning"
                for p in problems)
+
+
+def test_check_counts_the_method_runs(capsys):
+    assert main(["check", str(DEMO)]) == 0
+    out = capsys.readouterr().out
+    assert "HPA-2026-030: ok (18 runs, 0 excluded, 81 method-validation runs" in out
