@@ -151,3 +151,24 @@ def test_register_holds_the_q3c_class_of_the_study_solvent(built):
     assert reg["solvent/toluene/ich_q3c_limit_ppm"].get("value").value == 890
     reg = {q.name for q in study_register(built["SYN-S-X"])}
     assert not any(n.startswith("solvent/") for n in reg)
+
+
+def test_built_site_has_the_page_in_its_navigation(tmp_path, monkeypatch):
+    """A real build (MkDocs, strict) of two study folders of one analyte in two solvents."""
+    from extractval import site
+    from site_factory import write_study_folder
+
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1767225600")
+    root = tmp_path / "studies"
+    write_study_folder(synthetic_study("SYN-S-EA", analyte="SYN-S", organic="ethyl acetate",
+                                       log_k=2.2, seed=11, procedures=PROCS), root)
+    write_study_folder(synthetic_study("SYN-S-TOL", analyte="SYN-S", organic="toluene",
+                                       log_k=1.2, seed=12, procedures=PROCS), root)
+    out = tmp_path / "site"
+    site.build(root, out, TEMPLATES.parent / "mkdocs.yml", cache_dir=tmp_path / "cache",
+               jobs=1)
+    page = (out / "solvents" / "index.html").read_text(encoding="utf-8")
+    assert "SYN-S-EA" in page and "SYN-S-TOL" in page and "890" in page
+    assert 'href="solvents/"' in (out / "index.html").read_text(encoding="utf-8")
+    doc = json.loads((out / "results.json").read_text(encoding="utf-8"))
+    assert [g["analyte"] for g in doc["solvent_comparison"]] == ["SYN-S"]
