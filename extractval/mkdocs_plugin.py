@@ -25,6 +25,7 @@ from mkdocs.plugins import BasePlugin  # noqa: E402
 from mkdocs.structure.files import File  # noqa: E402
 
 from . import site  # noqa: E402
+from .versions import VERSIONS  # noqa: E402
 from .report.pages import PRINT, study_url  # noqa: E402
 from .report.printview import PrintedStudy, assemble  # noqa: E402
 
@@ -95,7 +96,17 @@ class DossierPlugin(BasePlugin[DossierConfig]):
         return put_back_html(html, self._blocks.get(page.file.src_uri, ()), searchable=True)
 
     def on_post_page(self, output, *, page, config):
-        return put_back_html(output, self._blocks.pop(page.file.src_uri, ()), searchable=False)
+        output = put_back_html(output, self._blocks.pop(page.file.src_uri, ()),
+                               searchable=False)
+        p = self.prepared
+        if p is not None and p.tokens and not (p.page_cache is not None
+                                               and page.file.src_uri in p.page_keys):
+            # this build's values now, unless the page's finished HTML is to be kept (the
+            # kept copy holds the tokens; _reusing_pages writes it with the values)
+            for token, value in p.tokens.items():
+                output = output.replace(token, value)
+            self._done.add(str(Path(page.file.abs_dest_path)))
+        return output
 
     def on_post_build(self, *, config):
         """Put this build's dossier version and date in place of the tokens, in every page
@@ -105,8 +116,12 @@ class DossierPlugin(BasePlugin[DossierConfig]):
         if not tokens:
             return
         root = Path(config.site_dir)
-        found = [Path(d) / f for d, _, names in os.walk(root) for f in names
-                 if f.endswith(".html") or f == "search_index.json"]
+        found = []
+        for d, dirs, names in os.walk(root):
+            if Path(d) == root and VERSIONS in dirs:
+                dirs.remove(VERSIONS)     # published versions hold their own values
+            found += [Path(d) / f for f in names
+                      if f.endswith(".html") or f == "search_index.json"]
         for path in sorted(found):
             if str(path) in self._done:
                 continue
