@@ -170,8 +170,8 @@ def test_search_finds_a_study_by_its_analyte(served, browser_context, demo_ids):
 #: citation lines moved to the register: 014 9613, 015 9181, 016 7033, 021 11853, 022 11853
 #: (before: 22830, 21404, 13262, 29935, 29026); with the solvent cautions added the same day
 #: 12373, 11329, 9198, 14213, 13820. With the long parts folded (site_templates/fold.md.j2),
-#: the page's contents in the navigation and no repeated blocks, 2026-12-04: 014 5385,
-#: 015 5103, 016 4230, 021 5680, 022 5597, 030 5923 with its suitability section (030 was
+#: the page's contents in the navigation and no repeated blocks, 2026-12-04: 014 5318,
+#: 015 5032, 016 4159, 021 5716, 022 5609, 030 5852 with its suitability section (030 was
 #: 8025 unfolded). The issue's goal
 #: is about 6 000 px: a new section folds its long parts (DEVELOPERS.md, "Folding long parts
 #: of a page") rather than raising this.

@@ -363,7 +363,7 @@ def test_design_space_figure_on_the_study_page(live):
     name = plot_name("design_space")
     page = Pages(TEMPLATES, trace=True).study_page(
         StudyInput("SYN-LIVE", live, plots=(name,)), DOSSIER)
-    section = page[page.index("## Design space"):page.index("## All runs")]
+    section = page[page.index("## Design space"):page.index("## Next runs")]
     assert f'<img src="{name}"' in section
     assert section.count('data-src="/design_space/target_pct">95</span> %') == 1
     assert 'data-src="/design_space/measured_pH/0">6.00</span>' in section
@@ -381,7 +381,7 @@ def test_procedures_off_the_map_are_listed_under_it(live):
                                               "shows 1 to 3")
     page = Pages(TEMPLATES).study_page(
         StudyInput("SYN-LIVE", d, plots=(plot_name("design_space"),)), DOSSIER)
-    section = page[page.index("## Design space"):page.index("## All runs")]
+    section = page[page.index("## Design space"):page.index("## Next runs")]
     assert "Procedures not marked on the map" in section
     assert f"- {d['design_space']['procedures'][0]['id']}: 5 portions; the map shows 1 to 3" \
         in section
