@@ -7,7 +7,10 @@ real substance.
 
 Design, OECD TG 107 style: three organic:aqueous volume ratios, each in duplicate, at buffered
 pH values spanning pKa +/- 2 (three pH values for the neutral compound, where pH should not
-matter). The ratios are 1:2, 1:1 and 2:1 where both phases or the organic phase are measured;
+matter), widened so that the runs cover the pH and the volume ratios of the procedures each
+study proposes (a procedure outside them is judged as an extrapolation, and only HPA-2026-014
+P1, labelled so, is meant to be one). The ratios are 1:2, 1:1 and 2:1 where both phases or
+the organic phase are measured, with 1:5 (KRV-118) or 3:10 (KRV-311) added for the procedures;
 the recovery-only acid study uses small organic volumes (1:10, 1:5, 1:2) so that recoveries on
 the neutral side stay below saturation and still carry information. Each measured amount
 carries an independent relative error of 4 % (normal), each recorded pH a 0.02 unit scatter
@@ -130,7 +133,7 @@ targets:
   ratio_agreement_log: 0.3
 procedures:
   - id: P1
-    label: Three 10 mL portions at pH 11
+    label: Three 10 mL portions at pH 11 (beyond the measured pH, shown as an extrapolation)
     pH: 11.0
     aqueous_mL: 25
     organic_mL: [10, 10, 10]
@@ -146,7 +149,10 @@ procedures:
 
 def make_base() -> None:
     sid = "HPA-2026-014"
-    rows = simulate(sid, (6.3, 7.3, 8.3, 9.3, 10.3), spiked=50.0)
+    # ratios 1:5 to 2:1: the runs cover the ratios of both procedures (0.4 and 0.2 per
+    # portion); P1's pH 11 lies beyond the runs on purpose, to show an extrapolated procedure
+    rows = simulate(sid, (6.3, 7.3, 8.3, 9.3, 10.3), spiked=50.0,
+                    organic_mL=(4.0,) + ORGANIC_ML)
     excluded = {20: "emulsion did not break within 30 min; phases not cleanly separated"}
     notes = {7: "aqueous phase re-injected (air bubble in the first injection)"}
     lines = ["run;pH;aqueous_mL;organic_mL;spiked;found_aqueous;found_organic;replicate;"
@@ -204,7 +210,8 @@ def make_acid() -> None:
     import openpyxl
 
     sid = "HPA-2026-015"
-    rows = simulate(sid, (2.6, 3.6, 4.6, 5.6, 6.6), spiked=40.0, aqueous_mL=40.0,
+    # from pH 1.6: the runs cover P1 at pH 2.0 +/- 0.2
+    rows = simulate(sid, (1.6, 2.6, 3.6, 4.6, 5.6, 6.6), spiked=40.0, aqueous_mL=40.0,
                     organic_mL=(4.0, 8.0, 20.0))
     wb = openpyxl.Workbook()
     info = wb.active
@@ -271,7 +278,8 @@ procedures:
 
 def make_neutral() -> None:
     sid = "HPA-2026-016"
-    rows = simulate(sid, (5.0, 7.0, 9.0), spiked=40.0)
+    # ratios 0.3 to 2: the runs cover P1's 30 mL portions per 100 mL
+    rows = simulate(sid, (5.0, 7.0, 9.0), spiked=40.0, organic_mL=(6.0,) + ORGANIC_ML)
     lines = ["run,pH,aqueous_mL,organic_mL,spiked,found_organic,replicate,note"]
     for r in rows:
         lines.append(",".join([f"N311-{r['n']:02d}", f"{r['pH']:.2f}", _sig(r["aqueous_mL"], 3),
@@ -323,7 +331,7 @@ procedures:
         organic_mL: [20, 20]
       - kind: wash
         pH: 11.5
-        aqueous_mL: [10]
+        aqueous_mL: [20]
       - kind: back-extract
         pH: 3.0
         aqueous_mL: [20, 20]
@@ -530,7 +538,7 @@ of three invented intermediates. The numbers are simulated from a known model by
 
 | study | analyte | model | true log K | true pKa | runs table |
 |---|---|---|---|---|---|
-| HPA-2026-014 | KRV-118 | base | 2.6 | 8.3 | `runs.csv`, `;` and decimal commas, UTF-8 BOM |
+| HPA-2026-014 | KRV-118 | base | 2.6 | 8.3 | `runs.csv`, `;` and decimal commas, UTF-8 BOM; P1 beyond the runs' pH on purpose (an extrapolated procedure) |
 | HPA-2026-015 | KRV-204 | acid | 2.1 | 4.6 | `runs.xlsx`, sheet `Runs`, recovery only |
 | HPA-2026-016 | KRV-311 | neutral | 0.9 | - | `runs.csv`, organic phase only |
 | HPA-2026-021 | KRV-402 in ethyl acetate, by-product KRV-402-A | base / acid | 2.3 / 2.0 | 9.1 / 8.0 | `runs.csv`, impurity columns, work-up steps |

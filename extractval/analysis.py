@@ -8,12 +8,14 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
 from functools import cached_property
+from pathlib import Path
 
 import numpy as np
 
 from . import __version__
 from .advice import NextRuns, advise
 from .formats import ONE_PHASE_PLOT_RANGE  # noqa: F401  (also named here)
+from .extrapolation import Extrapolation, Span, extrapolation, extrapolation_problems
 from .fitting import (ERROR_MODEL, INTERVAL_METHOD, LOG_D, LOG_E, LOG_Q, WEIGHTING,
                       FitImpossible, FitResult, Observations, fit_model)
 from .models import MODELS, get_model
@@ -24,7 +26,7 @@ from .reading import procedure_reading, workup_reading
 from .results import clean
 from .solvents import solvent_report
 from .screening import STUDENTIZED_LIMIT, refit_without, screen
-from .study import Run, Study
+from .study import STUDY_FILE, Run, Study, display_path
 from .verdicts import procedure_verdicts, status_summary, study_verdicts
 
 #: AICc difference within which the simpler model is preferred by ``model: auto``
@@ -194,11 +196,21 @@ class StudyReport:
         return None if self.fit is None else log_d_band(self.fit)
 
     @cached_property
+    def span(self) -> Span | None:
+        """The runs' measured pH span and volume ratios (the runs that enter the fit)."""
+        return Span.of_runs(self.study.runs)
+
+    @cached_property
+    def extrapolations(self) -> tuple[Extrapolation | None, ...]:
+        """Per procedure, what of it lies outside the runs (None when all is inside)."""
+        return tuple(extrapolation(p.procedure, self.span) for p in self.predictions)
+
+    @cached_property
     def designs(self) -> tuple[ProcedureDesign, ...]:
         if self.fit is None:
             return ()
         target = self.study.targets.recovery_pct
-        return tuple(design_procedure(self.fit, self.band, p.procedure, target)
+        return tuple(design_procedure(self.fit, self.band, p.procedure, target, self.span)
                      for p in self.predictions)
 
     @cached_property
@@ -212,8 +224,8 @@ class StudyReport:
         study_v = study_v + calibration_verdicts(self.study) + suitability_verdicts(self.study)
         if self.method is not None:
             study_v = study_v + list(self.method.verdicts)
-        proc_v = [procedure_verdicts(p, d, targets, self.outcomes, self.workup_of(p))
-                  for p, d in zip(self.predictions, self.designs)]
+        proc_v = [procedure_verdicts(p, d, targets, self.outcomes, self.workup_of(p), x)
+                  for p, d, x in zip(self.predictions, self.designs, self.extrapolations)]
         summary = status_summary(study_v + [v for vs in proc_v for v in vs])
         return {"study": study_v, "procedures": proc_v, "details": details,
                 "status": summary["status"], "summary": summary}
@@ -295,7 +307,9 @@ class StudyReport:
             entry = {"id": p.id, **pred.to_dict()}
             spans = [(lo, hi)] + [(float(s.fit.obs.pH.min()), float(s.fit.obs.pH.max()))
                                   for s in solutes if s.fit is not None]
-            outside = sorted({s.pH for s in steps for a, b in spans if not a <= s.pH <= b})
+            # the same rule as the procedures' verdicts (extrapolation.py, with its slack)
+            outside = sorted({s.pH for s in steps for a, b in spans
+                              if not Span((a, b), (0.0, 0.0)).has_pH(s.pH)})
             if outside:
                 entry["notes"].append(
                     "extrapolated: step pH " + ", ".join(f"{x:g}" for x in outside)
@@ -381,9 +395,11 @@ class StudyReport:
                      "not_usable": counts["not usable"], "total": len(self.outcomes)},
             "parameters": {},
             "procedures": [dict(p.to_dict(), **d.to_dict(),
+                                extrapolation=None if x is None else x.to_dict(),
                                 verdicts=[v.to_dict() for v in vs])
-                           for p, d, vs in zip(self.predictions, self.designs,
-                                               self.assessment["procedures"])],
+                           for p, d, x, vs in zip(self.predictions, self.designs,
+                                                  self.extrapolations,
+                                                  self.assessment["procedures"])],
             "status": self.assessment["status"],
             "status_text": self.assessment["summary"]["text"],
             "status_counts": self.assessment["summary"]["counts"],
@@ -532,6 +548,12 @@ def fit_study(study: Study) -> StudyReport:
                         "used but the curve does not meet the criteria"
                         for c in study.calibration.curves if not c.passes)
     warnings.extend(fit.warnings)
+    # procedures beyond the runs: check_study warns already (same rule, same words); a Study
+    # made in code gets the warning here
+    known = set(study.warnings)
+    warnings.extend(p.text() for p in extrapolation_problems(
+        study.procedures, Span.of_runs(study.runs),
+        display_path(Path(study.folder) / STUDY_FILE)) if p not in known)
     target = study.targets.recovery_pct
     preds = tuple(predict_procedure(fit, p, target) for p in study.procedures)
     return StudyReport(study, fit, outcomes, preds, tuple(candidates), warnings=warnings,

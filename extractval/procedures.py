@@ -14,6 +14,7 @@ import numpy as np
 from scipy import optimize
 
 from . import chemistry as chem
+from .extrapolation import Span
 from .fitting import FitResult
 from .results import Estimate, Interval, clean
 from .study import Procedure
@@ -218,6 +219,7 @@ class ProcedureDesign:
     split_limit_recovery_pct: float
     pH_window: tuple[float, float] | None
     pH_window_note: str | None
+    pH_window_extrapolated: tuple = ()   # [lo, hi] parts beyond the runs (extrapolation.py)
 
     def to_dict(self) -> dict:
         return {
@@ -228,17 +230,42 @@ class ProcedureDesign:
             "split_limit_recovery_pct": clean(self.split_limit_recovery_pct),
             "pH_window": None if self.pH_window is None else [clean(x, 6) for x in self.pH_window],
             "pH_window_note": self.pH_window_note,
+            "pH_window_extrapolated": [list(x) for x in self.pH_window_extrapolated],
         }
 
 
-def worst_case(fit: FitResult, band: LogDBand, p: Procedure) -> dict:
+def _outside(full: tuple[float, float], kept: tuple[float, float] | None) -> list[list]:
+    """The parts of ``full`` not in ``kept`` (all of it when kept is None), as [lo, hi]."""
+    if kept is None:
+        return [[clean(full[0], 6), clean(full[1], 6)]]
+    out = []
+    if kept[0] > full[0] + 1e-9:
+        out.append([clean(full[0], 6), clean(kept[0], 6)])
+    if kept[1] < full[1] - 1e-9:
+        out.append([clean(kept[1], 6), clean(full[1], 6)])
+    return out
+
+
+def worst_case(fit: FitResult, band: LogDBand, p: Procedure, span: Span | None = None) -> dict:
     """Lowest lower-bound recovery with pH anywhere in pH +/- tolerance and volumes off by
-    their tolerance in the unfavourable direction (more water, less solvent)."""
+    their tolerance in the unfavourable direction (more water, less solvent).
+
+    With ``span`` (the runs' pH span, extrapolation.py) the pH band is clipped to it and the
+    part left out is named (``pH_band_extrapolated``); a band wholly outside is searched whole
+    and named whole: every number there is an extrapolation.
+    """
     f = p.volume_tolerance_pct / 100.0
     aq = p.aqueous_mL * (1 + f)
     org = tuple(v * (1 - f) for v in p.organic_mL)
-    lo_ph, hi_ph = max(0.0, p.pH - p.pH_tolerance), min(14.0, p.pH + p.pH_tolerance)
-    candidates = [lo_ph, p.pH, hi_ph]
+    full = (max(0.0, p.pH - p.pH_tolerance), min(14.0, p.pH + p.pH_tolerance))
+    lo_ph, hi_ph = full
+    extrapolated: list[list] = []
+    if span is not None:
+        kept = span.clip_pH(*full)
+        extrapolated = _outside(full, kept)
+        if kept is not None:
+            lo_ph, hi_ph = kept
+    candidates = [lo_ph] + ([p.pH] if lo_ph <= p.pH <= hi_ph else []) + [hi_ph]
     inside = (band.pH > lo_ph) & (band.pH < hi_ph)
     candidates += [float(x) for x in band.pH[inside]]
     best = None
@@ -249,7 +276,9 @@ def worst_case(fit: FitResult, band: LogDBand, p: Procedure) -> dict:
             best = (key, x, rec_lo, float(recovery_pct_from_log_d(fit.log_d(x), aq, org)))
     _, x, rec_lo, rec = best
     return {"recovery_pct": clean(rec_lo), "predicted_recovery_pct": clean(rec),
-            "pH": clean(x, 6), "aqueous_mL": clean(aq), "organic_mL": [clean(v) for v in org]}
+            "pH": clean(x, 6), "aqueous_mL": clean(aq), "organic_mL": [clean(v) for v in org],
+            "pH_band": [clean(lo_ph, 6), clean(hi_ph, 6)],
+            "pH_band_extrapolated": extrapolated}
 
 
 def steps_needed(fit: FitResult, p: Procedure, target_pct: float) -> tuple[dict | None, str]:
@@ -287,12 +316,34 @@ def best_split(fit: FitResult, p: Procedure, n_max: int = MAX_PORTIONS) -> tuple
     return tuple(rows), limit
 
 
-def pH_window(fit: FitResult, band: LogDBand, p: Procedure, target_pct: float):
+def pH_window(fit: FitResult, band: LogDBand, p: Procedure, target_pct: float,
+              span: Span | None = None):
     """pH range in which the procedure's volumes meet the target at the lower 95 % end.
 
     Found on the band's grid, then each edge is refined by root-finding on the exact lower
-    bound (profile likelihood) to 0.001 pH.
+    bound (profile likelihood) to 0.001 pH. With ``span`` (the runs' pH span) the window is
+    clipped to it: the part beyond the runs is named in the note and returned third, never
+    given as window.
     """
+    window, note = _pH_window(fit, band, p, target_pct)
+    if span is None or window is None:
+        return window, note, []
+    kept = span.clip_pH(*window)
+    outside = _outside(window, kept)
+    if not outside:
+        return window, note, []
+    parts = " and ".join(f"pH {a:.2f} to {b:.2f}" for a, b in outside)
+    words = (f"the target is also met at the lower 95 % end at {parts}, beyond the runs "
+             f"({span.pH_words()}): extrapolated, not part of the window")
+    if kept is None:
+        return None, (f"the target is met at the lower 95 % end only at {parts}, beyond the "
+                      f"runs ({span.pH_words()}): extrapolated, no window is given"), outside
+    # the traced-range notes concern the part left out; keep the others
+    rest = [n for n in (note or "").split("; ") if n and "edge of the traced range" not in n]
+    return kept, "; ".join(rest + [words]), outside
+
+
+def _pH_window(fit: FitResult, band: LogDBand, p: Procedure, target_pct: float):
     def rec_lo_at(x: float) -> float:
         r = _recovery_lower(fit.log_d_lower(x), p.aqueous_mL, p.organic_mL)
         return -1.0 if r is None else r      # an open lower end meets no target
@@ -328,15 +379,18 @@ def pH_window(fit: FitResult, band: LogDBand, p: Procedure, target_pct: float):
 
 
 def design_procedure(fit: FitResult, band: LogDBand, p: Procedure,
-                     target_pct: float | None) -> ProcedureDesign:
+                     target_pct: float | None, span: Span | None = None) -> ProcedureDesign:
+    """Worst case, portions needed, best split and pH window; with ``span`` (the runs' pH
+    span) the robustness band and the window are clipped to it, the rest named."""
     split, limit = best_split(fit, p)
-    wc = worst_case(fit, band, p)
+    wc = worst_case(fit, band, p, span)
     if target_pct is None:
         note = "no recovery target in study.yaml"
         return ProcedureDesign(wc, None, note, split, limit, None, note)
     steps, steps_note = steps_needed(fit, p, target_pct)
-    window, window_note = pH_window(fit, band, p, target_pct)
-    return ProcedureDesign(wc, steps, steps_note, split, limit, window, window_note)
+    window, window_note, outside = pH_window(fit, band, p, target_pct, span)
+    return ProcedureDesign(wc, steps, steps_note, split, limit, window, window_note,
+                           tuple(tuple(x) for x in outside))
 
 
 def _map_place(p: Procedure, pH_span: tuple[float, float]) -> dict:

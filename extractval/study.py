@@ -62,6 +62,7 @@ if TYPE_CHECKING:
     from .suitability_input import SuitabilitySet
 from . import method_input
 from .errors import Problem, StudyError
+from .extrapolation import Span, extrapolation_problems
 from .replicates import PH_TOLERANCE, precision_groups
 from .tables import (EXTENSIONS, HeaderRules, Location, Table, TableRow, decode_text,
                      parse_number, read_table)
@@ -1544,6 +1545,8 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
 
     # a replicate label shared by runs at different conditions is named here, once
     problems.extend(precision_groups([r for r in runs if not r.excluded], ph_tolerance).warnings)
+    # a procedure outside the runs' pH span or volume ratios is predicted by extrapolation
+    problems.extend(extrapolation_problems(procedures, Span.of_runs(runs), shown))
     problems = _in_file_order(problems)
     if _n_errors(problems):
         return None, problems

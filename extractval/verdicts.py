@@ -5,6 +5,8 @@ Criteria and their sources:
 * ``recovery_pct`` per procedure: the lower end of the 95 % interval of the predicted recovery,
   at the worst pH inside the procedure's pH tolerance and with each volume off by its volume
   tolerance, must reach the target (common practice of robustness by worst case, ICH Q2(R2)).
+  Not judged when the procedure lies outside the runs' pH span or volume ratios
+  (extrapolation.py: a prediction beyond the data is no evidence either way).
 * ``max_rsd_pct``: pooled repeatability RSD of what replicate runs measured: the recovery
   (organic-phase amount, % of spiked; also for runs measured in both phases), or the amount
   found in the water for aqueous-only runs. pH differences inside a group are taken out
@@ -256,13 +258,17 @@ def mass_balance(report_runs, lo_hi, basis: str = "target") -> Verdict | None:
                    f"{lo:g}-{hi:g} %{source}{aside}", basis)
 
 
-def recovery_verdict(design, targets) -> Verdict:
-    """The procedure's recovery target, judged at the lower 95 % end of its worst case."""
+def recovery_verdict(design, targets, extrapolation=None) -> Verdict:
+    """The procedure's recovery target, judged at the lower 95 % end of its worst case; not
+    judged when the procedure lies outside the runs (``extrapolation``, extrapolation.py)."""
     t = targets.recovery_pct
     wc = design.worst_case
     if t is None:
         return verdict("not judged", "recovery_pct", wc["recovery_pct"], None,
                        "no recovery target in study.yaml", "none")
+    if extrapolation is not None:
+        # a prediction beyond the data is no evidence for or against the target
+        return verdict("not judged", "recovery_pct", None, t, extrapolation.reason)
     if wc["recovery_pct"] is None:
         return verdict("fail", "recovery_pct", None, t,
                        "the lower end of the recovery interval is open at the worst case: "
@@ -373,16 +379,22 @@ def aoac_recovery(procedure, outcomes, level) -> Verdict:
 
 
 def procedure_verdicts(prediction, design, targets, outcomes=(),
-                       workup: dict | None = None) -> list[Verdict]:
+                       workup: dict | None = None, extrapolation=None) -> list[Verdict]:
     """The procedure's verdicts. With ``workup`` (its entry under ``selectivity.procedures``)
     a procedure with steps is judged on the work-up's recovery, and any procedure on the
-    product's purity when the study sets ``purity_pct``."""
+    product's purity when the study sets ``purity_pct``. With ``extrapolation`` (the
+    procedure lies outside the runs, extrapolation.py) its recovery and purity are predicted
+    beyond the data and not judged."""
     stepped = workup is not None and len(workup["steps"]) > 1
-    out = [workup_recovery_verdict(workup, targets) if stepped
-           else recovery_verdict(design, targets)]
+    if stepped and (extrapolation is None or targets.recovery_pct is None):
+        out = [workup_recovery_verdict(workup, targets)]
+    else:
+        out = [recovery_verdict(design, targets, extrapolation)]
     if targets.level:
         out.append(aoac_recovery(prediction.procedure, outcomes, targets.level))
     pv = None if workup is None else purity_verdict(workup, targets)
+    if pv is not None and extrapolation is not None:
+        pv = Verdict(pv.criterion, "not judged", None, pv.limit, extrapolation.reason, pv.basis)
     if pv is not None:
         out.append(pv)
     return out

@@ -16,8 +16,9 @@ import yaml
 from extractval import chemistry as chem
 from extractval.study import Location, Procedure, Run, Study, Targets
 
-PROCEDURES = (Procedure("P1", "Three 10 mL portions at pH 10", 10.0, 25.0, (10.0, 10.0, 10.0)),
-              Procedure("P2", "One 5 mL portion at pH 7", 7.0, 25.0, (5.0,)))
+#: inside the runs' pH span (6 to 10) and volume ratios (0.5 to 2), so both are judged
+PROCEDURES = (Procedure("P1", "Three 10 mL portions at pH 9.5", 9.5, 20.0, (10.0, 10.0, 10.0)),
+              Procedure("P2", "One 10 mL portion at pH 7", 7.0, 20.0, (10.0,)))
 
 
 def synthetic_runs(log_k: float = 2.2, pka: float = 8.0, pH=(6.0, 7.0, 8.0, 9.0, 10.0),

@@ -18,9 +18,9 @@ targets:
   recovery_pct: 95
 procedures:
   - id: P1
-    label: Three portions at pH 11
-    pH: 11.0
-    aqueous_mL: 25
+    label: Three portions at pH 8
+    pH: 8.0
+    aqueous_mL: 10
     organic_mL: [10, 10, 10]
 """
 
@@ -130,3 +130,14 @@ def snapshot(folder: Path) -> dict:
     return {p.relative_to(folder).as_posix(): (p.stat().st_size, p.stat().st_mtime_ns)
             for p in sorted(Path(folder).rglob("*"))} | {
         ".": (None, Path(folder).stat().st_mtime_ns)}
+
+
+def reading_problems(problems) -> list:
+    """The problems of reading a table: without the warning that the factory's procedure
+    (pH 8, one to one) lies outside the runs of a small test table, which
+    tests/test_extrapolation.py checks on its own."""
+    from extractval.extrapolation import MARK
+
+    return [p for p in problems if not (p.key and p.key.startswith("procedures[")
+                                        and MARK in p.message)]
+

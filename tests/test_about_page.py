@@ -47,3 +47,9 @@ def test_spiked_beside_recovery_is_one_measurement_checked_for_agreement(about):
 def test_lack_of_fit_is_a_diagnostic_unless_the_study_sets_alpha(about):
     assert "shown with its p value as a diagnostic, never as a pass or fail" in about
     assert "`targets: lack_of_fit_alpha`" in about
+
+
+def test_the_extrapolation_rule_is_stated_as_a_project_convention(about):
+    assert "not judged: extrapolated beyond the runs" in about
+    assert "0.05 unit outside the span of the runs" in about and "10 % outside" in about
+    assert "project's convention" in about

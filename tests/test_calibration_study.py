@@ -85,7 +85,7 @@ def test_responses_give_the_log_k_of_the_equivalent_amounts(tmp_path):
     assert d["calibration"]["readings"]["below_lloq"] == 0
     row = d["run_table"][0]
     assert row["quantitation"][0]["status"] == "quantified"
-    assert row["found_aqueous"] == pytest.approx(17.45, rel=1e-9)   # 0.8725 ug/mL x 20 mL
+    assert row["found_aqueous"] == pytest.approx(28.99, rel=1e-9)   # 1.4495 ug/mL x 20 mL
 
 
 def test_below_lloq_phase_is_censored_and_the_run_fitted_from_the_other(tmp_path):

@@ -72,8 +72,12 @@ def test_pH_window_closed_form():
     upper = PKA + math.log10(10 ** LOGK / d_star - 1)
     lo, hi = d["pH_window"]
     assert hi == pytest.approx(upper, abs=2e-3)
-    assert lo == pytest.approx(0.5)            # the traced range starts 2 units below the data
-    assert "extends below" in d["pH_window_note"]
+    # the window is clipped to the runs (pH 2.5 less the 0.05 slack of extrapolation.py); the
+    # part below, down to the traced range's start 2 units below the data, is named
+    assert lo == pytest.approx(2.45)
+    assert d["pH_window_extrapolated"] == [[0.5, 2.45]]
+    assert "beyond the runs" in d["pH_window_note"] and "extrapolated" in d["pH_window_note"]
+    assert "edge of the traced range" not in d["pH_window_note"]
 
 
 def test_best_split_never_beats_the_limit():

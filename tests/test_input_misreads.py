@@ -12,7 +12,8 @@ import pytest
 
 from extractval.scaffold import template
 from extractval.study import check_study
-from tests.study_factory import (HEADER, RUNS_CSV, STUDY_YAML, replace_line, snapshot,
+from tests.study_factory import (HEADER, RUNS_CSV, STUDY_YAML, reading_problems, replace_line,
+                                 snapshot,
                                  write_ods, write_study, write_xlsx)
 
 #: The header ``extractval new`` writes (its trailing columns are the optional ones).
@@ -42,7 +43,7 @@ def check(tmp_path, runs: str, yaml_text: str | None = None, runs_name: str = "r
     before = snapshot(folder)
     study, problems = check_study(folder)
     assert snapshot(folder) == before       # input files are never written
-    return study, problems
+    return study, reading_problems(problems)
 
 
 def with_yaml(line: str) -> str:
@@ -138,7 +139,7 @@ def test_recovery_pct_above_100_is_a_warning_with_its_run(tmp_path):
     p = only(problems, "recovery above 100 %")
     assert (p.severity, p.line, p.run, p.column, p.found) == (
         "warning", 3, "R2", "recovery_pct", "104 %")
-    assert study is not None and study.warnings == (p,)
+    assert study is not None and reading_problems(study.warnings) == [p]
 
 
 def test_found_organic_above_spiked_is_a_recovery_above_100(tmp_path):

@@ -19,12 +19,13 @@ from extractval import tables
 from extractval.errors import StudyError
 from extractval.study import check_study, discover_studies, load_study
 from extractval.tables import parse_number, read_table
-from tests.study_factory import (HEADER, ROWS, RUNS_CSV, STUDY_YAML, replace_line, snapshot,
+from tests.study_factory import (HEADER, ROWS, RUNS_CSV, STUDY_YAML, reading_problems,
+                                 replace_line, snapshot,
                                  write_ods, write_study, write_xlsx)
 
 REPO = Path(__file__).resolve().parents[1]
-DEMO = {"HPA-2026-014": (30, 1, "base"), "HPA-2026-015": (30, 0, "acid"),
-        "HPA-2026-016": (18, 0, "neutral")}
+DEMO = {"HPA-2026-014": (40, 1, "base"), "HPA-2026-015": (36, 0, "acid"),
+        "HPA-2026-016": (24, 0, "neutral")}
 
 
 @pytest.fixture(autouse=True)
@@ -58,7 +59,8 @@ def errors(problems):
 
 def check_csv(tmp_path, csv_text: str, yaml_text: str | None = None):
     folder = write_study(tmp_path, runs=csv_text, yaml_text=yaml_text)
-    return check_study(folder)
+    study, problems = check_study(folder)
+    return study, reading_problems(problems)
 
 
 def runs_with(row_line: str, header: str = ",".join(HEADER)) -> str:
@@ -85,7 +87,7 @@ def test_valid_study_reads_records_and_digests(tmp_path):
                             "temperature_C": 25.0}
     assert study.targets.recovery_pct == 95.0
     (p1,) = study.procedures
-    assert (p1.id, p1.pH, p1.aqueous_mL, p1.organic_mL) == ("P1", 11.0, 25.0, (10.0, 10.0, 10.0))
+    assert (p1.id, p1.pH, p1.aqueous_mL, p1.organic_mL) == ("P1", 8.0, 10.0, (10.0, 10.0, 10.0))
     assert (p1.pH_tolerance, p1.volume_tolerance_pct, p1.line) == (0.2, 2.0, 13)
     digests = {f.role: f.sha256 for f in study.inputs}
     assert digests["study"] == hashlib.sha256((folder / "study.yaml").read_bytes()).hexdigest()
@@ -419,7 +421,7 @@ def test_semicolon_and_decimal_comma(tmp_path):
     assert problems == [] and table.separator == ";" and table.decimal_comma
     assert table.rows[0].cells["ph"] == 7.25 and table.rows[0].text["ph"] == "7,25"
     study, problems = check_study(folder)
-    assert problems == []
+    assert reading_problems(problems) == []
     assert study.runs[0].pH == 7.25 and study.runs[1].organic_mL == 12.5
 
 
@@ -490,7 +492,7 @@ def test_xlsx_named_sheet_numbers_and_percentages(tmp_path):
                                       3: ["R8", "4.25", 10, 10, 81.5]},
                before=("Info",), percent={(2, 5)})
     study, problems = check_study(folder)
-    assert problems == []
+    assert reading_problems(problems) == []
     r7, r8 = study.runs
     assert (r7.run_id, r7.recovery_pct, r7.location.row, r7.location.sheet) == (
         "7", 95.5, 2, "Runs")
@@ -870,13 +872,13 @@ def test_procedure_with_non_positive_volumes(tmp_path):
     hits = matching(problems, "out of range", key="procedures[1].organic_mL")
     assert [p.found for p in hits] == ["0", "-5"]
     assert all(p.line == 17 and "greater than 0" in p.expected for p in hits)
-    text = replace_line(PROC, "aqueous_mL: 25", "    aqueous_mL: 0")
+    text = replace_line(PROC, "aqueous_mL: 10", "    aqueous_mL: 0")
     p = only(yaml_problems(tmp_path, text), "out of range", key="procedures[1].aqueous_mL")
     assert (p.line, p.found) == (16, "0")
 
 
 def test_procedure_missing_pH_and_aqueous_volume(tmp_path):
-    text = replace_line(replace_line(PROC, "pH: 11.0", ""), "aqueous_mL: 25", "")
+    text = replace_line(replace_line(PROC, "pH: 8.0", ""), "aqueous_mL: 10", "")
     problems = yaml_problems(tmp_path, text)
     only(problems, "missing key 'pH'", key="procedures[1].pH", line=13)
     only(problems, "missing key 'aqueous_mL'", key="procedures[1].aqueous_mL", line=13)
@@ -891,7 +893,7 @@ def test_duplicate_procedure_ids(tmp_path):
 
 
 def test_procedure_pH_out_of_range(tmp_path):
-    text = replace_line(PROC, "pH: 11.0", "    pH: 15")
+    text = replace_line(PROC, "pH: 8.0", "    pH: 15")
     p = only(yaml_problems(tmp_path, text), "out of range")
     assert (p.line, p.key, p.found, p.expected) == (15, "procedures[1].pH", "15",
                                                     "a pH from 0 to 14")

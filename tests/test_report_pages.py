@@ -42,6 +42,8 @@ SPAN = re.compile(r'<span class="xv-num"(?: data-study="([^"]*)")? '
 GOLD_PROCEDURES = (
     Procedure("P1", "Three 10 mL portions at pH 10", 10.0, 25.0, (10.0, 10.0, 10.0)),
     Procedure("P2", "One 10 mL portion at pH 5.5", 5.5, 25.0, (10.0,)),
+    # P1 and P2 lie outside the runs (pH 6 to 9, ratios 1 and 2): extrapolated; P3 inside
+    Procedure("P3", "Two 20 mL portions at pH 8", 8.0, 20.0, (20.0, 20.0)),
 )
 
 

@@ -26,8 +26,9 @@ TEMPLATES = Path(__file__).resolve().parent.parent / "site_templates"
 DOSSIER = Dossier("dv-000000000000", "extractval 0.0-test", "2026-01-01 00:00 UTC")
 SPAN = re.compile(r'<span class="xv-num" data-study="([^"]*)" data-src="([^"]*)">([^<]*)</span>')
 
-PROCS = (Procedure("P1", "One 5 mL portion at pH 7", 7.0, 25.0, (5.0,)),
-         Procedure("P2", "Three 10 mL portions at pH 10", 10.0, 25.0, (10.0, 10.0, 10.0)))
+# inside the runs' pH (6 to 10) and volume ratios (0.5 to 2): both are judged
+PROCS = (Procedure("P1", "One 10 mL portion at pH 7", 7.0, 20.0, (10.0,)),
+         Procedure("P2", "Three 10 mL portions at pH 9.5", 9.5, 20.0, (10.0, 10.0, 10.0)))
 
 
 @pytest.fixture(scope="module")
@@ -106,7 +107,7 @@ def _row(page: str, sid: str) -> str:
 
 def test_best_procedure_is_the_one_meeting_the_target_with_the_higher_lower_end(built):
     d = built["SYN-S-TOL"]
-    # log K 1.2, pKa 8: P1 (one 5 mL portion at pH 7) misses 95 %, P2 meets it
+    # log K 1.2, pKa 8: P1 (one 10 mL portion at pH 7) misses 95 %, P2 meets it
     v = {pr["id"]: pr["verdicts"][0]["status"] for pr in d["procedures"]}
     assert v == {"P1": "fail", "P2": "pass"}
     choice = best_procedure(d)

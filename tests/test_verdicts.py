@@ -14,7 +14,8 @@ from tests.reference import acceptance_refs as ref
 
 BASE = (2.6, 8.3)
 PH = [6.5, 7.5, 8.3, 9.0, 10.0]
-PROC = Procedure("P1", "three portions at pH 10", 10.0, 25.0, (10.0, 10.0, 10.0))
+#: inside the runs' pH (6.5 to 10) and volume ratios (0.5 to 2): its recovery is judged
+PROC = Procedure("P1", "three portions at pH 9.5", 9.5, 20.0, (10.0, 10.0, 10.0))
 
 
 def _d(targets=Targets(), model="base", theta=BASE, pH=PH, fit_model=None, edit=None, **kw):

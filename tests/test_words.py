@@ -33,9 +33,9 @@ def edge() -> dict:
     """A base (log K 2.2, pKa 8.0) with a procedure whose nominal lower end meets the 95 %
     target while the worst corner of a wide pH tolerance (7.0 +/- 0.5) does not, and one far
     into the plateau whose recovery rounds to 100 %."""
-    procs = (Procedure("EDGE", "Two 10 mL portions at pH 7, wide tolerance", 7.0, 25.0,
+    procs = (Procedure("EDGE", "Two 10 mL portions at pH 7, wide tolerance", 7.0, 20.0,
                        (10.0, 10.0), pH_tolerance=0.5),
-             Procedure("FULL", "Five 25 mL portions at pH 10", 10.0, 25.0, (25.0,) * 5))
+             Procedure("FULL", "Five 25 mL portions at pH 9.5", 9.5, 25.0, (25.0,) * 5))
     return as_json(fit_study(synthetic_study("SYN-EDGE", procedures=procs)).to_dict())
 
 
@@ -97,7 +97,10 @@ def test_demo_amine_p2_reading_no_longer_contradicts_its_verdict(demo_dicts):
     d = next(d for d in demo_dicts if d["study"] == "HPA-2026-014")
     pr = _procedure(d, "P2")
     assert pr["verdicts"][0]["status"] == "fail"
-    assert "not met" in pr["reading"] and "90.8 % at the worst case" in pr["reading"]
+    # 90.8 % before the demo runs were widened to the procedures' volume ratios; 90.7 % now
+    worst = fmt_pct(pr["worst_case"]["recovery_pct"])
+    assert worst == "90.7"
+    assert "not met" in pr["reading"] and f"{worst} % at the worst case" in pr["reading"]
 
 
 # -- digits near 100 % and near 0 ------------------------------------------------------------------

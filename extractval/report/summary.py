@@ -100,7 +100,9 @@ def verdict_lines(d: dict) -> list[str]:
                    f"{fmt_number(wc.get('recovery_pct'), 'pct')} % (predicted "
                    f"{fmt_number(wc.get('predicted_recovery_pct'), 'pct')} %) at pH "
                    f"{fmt_number(wc['pH'], 'pH')}, {fmt_number(wc['aqueous_mL'], 'mL')} mL "
-                   f"water, solvent {solvent} mL")
+                   f"water, solvent {solvent} mL"
+                   + ("; the pH band reaches beyond the runs (extrapolated)"
+                      if wc.get("pH_band_extrapolated") else ""))
     return out
 
 
