@@ -445,8 +445,9 @@ def make_method() -> None:
             "level,day,analyst,note")
     lines = [head]
     k = 0
+    # ratios 1:2, 1:1 and 3:1: the runs cover the SOP's 6 mL of MTBE per 2 mL of plasma
     for nominal in (6.8, 8.8, 10.8):
-        for v_org in ORGANIC_ML:
+        for v_org in (10.0, 20.0, 60.0):
             for rep in range(REPLICATES):
                 k += 1
                 pH = round(nominal + PH_SCATTER * rng.standard_normal(), 2)

@@ -99,7 +99,7 @@ def test_failing_sequence_leaves_its_runs_out_and_visible(tmp_path):
             assert "sequence S2 fails system suitability" in r["reason"]
             assert "resolution" in r["reason"] and "left out of the fit" in r["reason"]
             assert "fitted" not in r
-    assert len(d["run_table"]) == 30
+    assert len(d["run_table"]) == 40          # the demo HPA-2026-014, runs at four ratios
     assert any(r["status"] == "used" for r in s1)
     assert d["runs"]["used"] == sum(r["status"] == "used" for r in s1)
     left = [r["run"] for r in s2 if r["status"] == "not usable"]
@@ -127,7 +127,7 @@ def test_study_limits_and_switching_a_default_off(tmp_path):
     assert crit["suitability_resolution_min"]["basis"] == "target"
     assert crit["suitability_plates_min"]["status"] == "pass"         # 5899 >= 5000
     assert crit["suitability_injection_rsd_max_pct"]["basis"] == "default"
-    assert d["suitability"]["runs_flagged"] == 29          # the 30 runs but the excluded one
+    assert d["suitability"]["runs_flagged"] == 39          # the 40 runs but the excluded one
 
 
 def test_fit_json_and_summary_carry_the_suitability(tmp_path, capsys):
