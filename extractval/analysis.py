@@ -72,18 +72,29 @@ def _observation(run: Run) -> tuple[str, float] | str:
 
 
 
-def observed_log_d(run: Run) -> float | None:
+def observed_log_d(run: Run, fitted_log_d: float | None = None) -> float | None:
     """log D read off one run (excluded runs too), for plots: directly when both phases were
-    measured, from the fraction extracted when one phase was and it lies between 2 and 98 %."""
+    measured, from the fraction extracted when one phase was and it lies between 2 and 98 %.
+
+    Given the fitted log D at the run's pH, the fraction the fit expects must lie in that range
+    too: near complete (or no) extraction a few per cent of scatter in the one measured phase
+    moves the log D read off it by a whole unit, which would draw an ordinary run far from the
+    curve.
+    """
     got = _observation(run)
     if isinstance(got, str):
         return None
     kind, y = got
     if kind == LOG_D:
         return y
+    lo, hi = ONE_PHASE_PLOT_RANGE
     e = 10.0 ** y if kind == LOG_E else 1.0 - 10.0 ** y
-    if not ONE_PHASE_PLOT_RANGE[0] < e < ONE_PHASE_PLOT_RANGE[1]:
+    if not lo < e < hi:
         return None
+    if fitted_log_d is not None:
+        dr = 10.0 ** fitted_log_d * run.volume_ratio
+        if not lo < dr / (1.0 + dr) < hi:
+            return None
     return float(np.log10(e / (1.0 - e) / run.volume_ratio))
 
 
@@ -362,13 +373,14 @@ class StudyReport:
                 "fitted_as": o.kind, "y": clean(o.y), "location": str(r.location),
             }
             if self.fit is not None:
-                row["log_d_observed"] = clean(observed_log_d(r))
+                fitted_log_d = float(self.fit.log_d(r.pH))
+                row["log_d_observed"] = clean(observed_log_d(r, fitted_log_d))
                 if o.index is not None:
                     i = o.index
                     row["fitted"] = clean(self.fit.fitted[i])
                     row["residual"] = clean(self.fit.weighted_residuals[i])
                     row["studentized_residual"] = clean(self.fit.studentized_residuals[i])
-                row["fitted_log_d"] = clean(float(self.fit.log_d(r.pH)))
+                row["fitted_log_d"] = clean(fitted_log_d)
             if self.study.calibration is not None:
                 row.update(calibration_run_fields(r))
             if self.study.suitability is not None:

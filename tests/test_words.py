@@ -223,3 +223,23 @@ def test_reading_of_a_recovery_not_judged_gives_the_verdicts_reason(edge):
     assert text.endswith("Recovery target 95 %: not judged (extrapolated beyond the runs "
                          "(pH 6.0 to 10.0)).")
     assert ": met" not in text and "not met" not in text
+
+
+def test_one_phase_run_near_complete_extraction_is_not_drawn_far_from_the_curve():
+    """A run measured in the organic phase alone at 90 % of spiked, where the fit expects
+    99.6 % extracted (log D 2.1, ratio 2): 6 % of scatter would read as log D 0.65, a whole
+    unit and a half below the curve; the fit's own fraction is outside 2-98 %, so it is not
+    drawn. The same reading where the fit expects 80 % is drawn (log10(0.9 / 0.1 / 2))."""
+    import dataclasses
+    import math
+
+    from extractval.analysis import observed_log_d
+
+    st = simulated_study("SYN-ONE", "neutral", (2.1,), (7.0,), form="recovery", ratios=(2.0,),
+                         rng=3)
+    run = dataclasses.replace(st.runs[0], spiked=100.0, found_aqueous=None, found_organic=90.0,
+                              recovery_pct=None)
+    assert run.measurement == "organic" and run.volume_ratio == 2.0
+    assert observed_log_d(run) == pytest.approx(math.log10(4.5))   # no fit given: measured only
+    assert observed_log_d(run, fitted_log_d=2.1) is None
+    assert observed_log_d(run, fitted_log_d=math.log10(2.0)) == pytest.approx(math.log10(4.5))
