@@ -137,30 +137,13 @@ def read_targets(doc, entries, is_null, positive, percent) -> dict:
     if lots is not None:
         out["matrix_lots_min"] = int(lots)
     if "recovery_pct" in t and not is_null(t["recovery_pct"][1]):
-        band = _pair(doc, t["recovery_pct"][1], percent)
+        from .study import percent_band
+
+        band = percent_band(doc, t["recovery_pct"][1], "method_targets.recovery_pct", percent,
+                            "[80, 120]")
         if band is not None:
             out["recovery_pct"] = band
     return out
-
-
-def _pair(doc, node, check) -> tuple[float, float] | None:
-    import yaml
-
-    key = "method_targets.recovery_pct"
-    expected = "two percentages [low, high] with low < high, e.g. [80, 120]"
-    if not isinstance(node, yaml.SequenceNode) or len(node.value) != 2:
-        doc.report("'recovery_pct' must be a pair of percentages", node, key,
-                   found="a single value" if isinstance(node, yaml.ScalarNode)
-                   else f"{len(getattr(node, 'value', ()))} values", expected=expected)
-        return None
-    lo, hi = (doc._number_node(n, key, "recovery_pct", check, expected) for n in node.value)
-    if lo is None or hi is None:
-        return None
-    if not lo < hi:
-        doc.report("'recovery_pct' must go from low to high", node, key,
-                   found=f"[{lo:g}, {hi:g}]", expected=expected)
-        return None
-    return lo, hi
 
 
 def method_runs(study) -> list:

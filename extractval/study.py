@@ -640,19 +640,24 @@ def _alpha(value: float) -> str | None:
 
 
 def _band(doc: _Yaml, node) -> tuple[float, float] | None:
-    key = "targets.mass_balance_pct"
-    expected = "two percentages [low, high] with low < high, e.g. [90, 110]"
+    return percent_band(doc, node, "targets.mass_balance_pct", _non_negative, "[90, 110]")
+
+
+def percent_band(doc: _Yaml, node, key: str, check, example: str) -> tuple[float, float] | None:
+    """A [low, high] pair of percentages at ``key`` (e.g. "targets.mass_balance_pct"), each
+    passing ``check``, low below high; located errors otherwise."""
+    name = key.rpartition(".")[2]
+    expected = f"two percentages [low, high] with low < high, e.g. {example}"
     if not isinstance(node, yaml.SequenceNode) or len(node.value) != 2:
-        doc.report("'mass_balance_pct' must be a pair of percentages", node, key,
+        doc.report(f"'{name}' must be a pair of percentages", node, key,
                    found=_node_kind(node) if not isinstance(node, yaml.SequenceNode)
                    else f"a list of {len(node.value)}", expected=expected)
         return None
-    lo, hi = (doc._number_node(n, key, "mass_balance_pct", _non_negative, expected)
-              for n in node.value)
+    lo, hi = (doc._number_node(n, key, name, check, expected) for n in node.value)
     if lo is None or hi is None:
         return None
     if not lo < hi:
-        doc.report("'mass_balance_pct' must go from low to high", node, key,
+        doc.report(f"'{name}' must go from low to high", node, key,
                    found=f"[{lo:g}, {hi:g}]", expected=expected)
         return None
     return lo, hi
