@@ -306,12 +306,25 @@ def _procedure_target(pred: ProcedurePrediction, chosen_by: str) -> AdviceTarget
 # -- the candidates -----------------------------------------------------------------------------
 def usable_pH_range(fit: FitResult, study: Study) -> tuple[tuple[float, float], str | None]:
     """The measured pH span widened by PH_MARGIN, inside 0-14 and inside advice.pH_range."""
+    from .solvents import ESTER_HYDROLYSIS_PH, match_solvents
+
     lo = max(0.0, float(fit.obs.pH.min()) - PH_MARGIN)
     hi = min(14.0, float(fit.obs.pH.max()) + PH_MARGIN)
     declared = study.advice.pH_range
     if declared is None:
-        return (lo, hi), (f"measured pH {fit.obs.pH.min():g} to {fit.obs.pH.max():g} widened "
-                          f"by {PH_MARGIN:g} on each side; no advice.pH_range declared")
+        note = (f"measured pH {fit.obs.pH.min():g} to {fit.obs.pH.max():g} widened "
+                f"by {PH_MARGIN:g} on each side; no advice.pH_range declared")
+        # an ester solvent is hydrolysed by base: never advise a run further into that region
+        # than the study has already gone (advice.pH_range overrides)
+        esters = [x.name for x in match_solvents(study.system.get("organic")).solvents
+                  if x.ester]
+        cap = max(ESTER_HYDROLYSIS_PH, float(fit.obs.pH.max()))
+        if esters and hi > cap and cap - lo >= PH_STEP:
+            hi = cap
+            note += (f"; capped at pH {cap:g}: {' and '.join(esters)} is hydrolysed by base "
+                     f"from about pH {ESTER_HYDROLYSIS_PH:g} (common practice), so no run is "
+                     "advised beyond the measured runs there; set advice.pH_range to choose")
+        return (lo, hi), note
     a, b = max(lo, declared[0]), min(hi, declared[1])
     if b - a < PH_STEP:
         return declared, (f"advice.pH_range {declared[0]:g} to {declared[1]:g} lies outside the "

@@ -195,6 +195,21 @@ def test_usable_pH_range_is_the_span_widened_and_clipped_by_the_declared_buffers
     assert rng == (11.0, 13.0) and "extrapolates" in note
 
 
+def test_usable_pH_range_stops_where_an_ester_solvent_is_hydrolysed():
+    # ethyl acetate is saponified by base (common practice; the caution in solvents.py): the
+    # advice goes no further into pH above 10 than the measured runs already went
+    study = _study([6, 6.5, 7, 7.5, 8, 9], ratios=(1.0,))
+    fit = fit_study(study).fit
+    assert usable_pH_range(fit, study)[0] == (4.0, 11.0)
+    ester = dataclasses.replace(study, system={**study.system,
+                                               "organic": "ethyl acetate, pre-saturated"})
+    rng, note = usable_pH_range(fit, ester)
+    assert rng == (4.0, 10.0) and "ethyl acetate is hydrolysed" in note
+    assert advise(fit, ester).candidates.pH.max() == 10.0
+    declared = dataclasses.replace(ester, advice=AdviceRequest(pH_range=(4.0, 12.0)))
+    assert usable_pH_range(fit, declared)[0] == (4.0, 11.0)    # the study's choice wins
+
+
 # -- the weak case, by simulation ---------------------------------------------------------------
 WEAK_PH = [6.0, 6.5, 7.0, 7.5, 8.0]
 WEAK_THETA = (2.0, 5.0)
