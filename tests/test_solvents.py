@@ -146,7 +146,7 @@ def test_study_page_shows_cautions_once_and_procedure_lines_under_each():
     # the table's values with their sources
     assert "IEC 60079-20-1 (2010)" in page and "Flash point, closed cup" in page
     p1 = page[page.index("### P1"):page.index("### P2")]
-    p2 = page[page.index("### P2"):]
+    p2 = page[page.index("### P2"):page.index("\n## ", page.index("### P2"))]  # to the next "## "
     assert "At the bench for P1" in p1 and "hydrolysed" in p1 and "upper layer" in p1
     assert "At the bench for P2" in p2 and "hydrolysed" not in p2
     assert "safety data sheet (SDS)" in page and "approved procedures" in p2
