@@ -15,8 +15,9 @@ The tolerance rule is the project's convention (not a published standard):
   distribution ratio's independence of the volume ratio (OECD TG 107 runs three ratios to show
   it) is not expected to break within that.
 
-The span is that of the runs that enter the fit: not excluded, and with a measurement that
-gives a finite value on the log scale (as ``analysis._observation`` decides). Pure Python: it
+The span is that of the runs that enter the fit: not excluded, not left out by a failing
+system-suitability sequence, and with a measurement that gives a finite value on the log scale
+(as ``analysis.build_observations`` decides). Pure Python: it
 runs in ``extractval check``, which loads no numpy.
 """
 
@@ -33,8 +34,9 @@ MARK = "extrapolated beyond the runs"
 
 
 def enters_fit(run) -> bool:
-    """Whether a run enters the fit: not excluded, and some measured amount above zero."""
-    if run.excluded:
+    """Whether a run enters the fit: not excluded, not left out by a failing system-suitability
+    sequence, and some measured amount above zero (as analysis.build_observations decides)."""
+    if run.excluded or getattr(run, "suitability", None):
         return False
     m = run.measurement
     if m == "recovery":

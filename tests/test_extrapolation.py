@@ -93,6 +93,11 @@ def test_excluded_runs_do_not_widen_the_span():
     last = runs[-1]
     runs[-1] = type(last)(**{**vars(last), "pH": 8.0, "excluded": "emulsion"})
     assert Span.of_runs(runs).pH == (2.5, 6.0)
+    # nor do runs of a sequence that fails system suitability (left out of the fit)
+    runs[-1] = type(last)(**{**vars(last), "pH": 8.0, "suitability": "sequence S2 fails"})
+    assert Span.of_runs(runs).pH == (2.5, 6.0)
+    runs[-1] = type(last)(**{**vars(last), "pH": 8.0})
+    assert Span.of_runs(runs).pH == (2.5, 8.0)
 
 
 # -- the fit, the verdict, the reading, the page --------------------------------------------------
