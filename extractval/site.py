@@ -718,7 +718,8 @@ def _failure_text(failed: list[Outcome]) -> str:
     return "\n".join(lines)
 
 
-def prepare(studies_dir: Path | None, templates_dir: Path, config_file: Path | None, *,
+def prepare(studies_dir: Path | None, templates_dir: Path | Callable[[], Path],
+            config_file: Path | None, *,
             keep_going: bool = False, cache_dir: Path | None = None, jobs: int = 0,
             progress: Callable[[str], None] | None = None,
             sources: list[Source] | None = None, reuse_pages: bool = False,
@@ -728,9 +729,15 @@ def prepare(studies_dir: Path | None, templates_dir: Path, config_file: Path | N
     With ``reuse_pages`` (``extractval build``, whose generator step can put kept pages in
     place), study pages whose finished HTML is in the cache are not rendered again.
 
+    ``templates_dir`` may be a function giving the folder, called once the changed studies
+    are being fitted.
+
     Raises :class:`SiteBuildError` (with every located error) when a study cannot be read,
     unless ``keep_going``.
     """
+    def templates() -> Path:
+        return Path(templates_dir() if callable(templates_dir) else templates_dir)
+
     display_root = None
     if sources is None:
         studies_dir = Path(studies_dir).resolve()
@@ -744,8 +751,9 @@ def prepare(studies_dir: Path | None, templates_dir: Path, config_file: Path | N
     def read_ahead(cached: list[Outcome]) -> None:
         """While studies are fitted: the kept parts of those the cache held (render asks
         for them again and gets them from memory), and whatever the caller reads ahead."""
+        folder = templates()
         if page_cache is not None:
-            base = _site_digest(Path(templates_dir), config_file)
+            base = _site_digest(folder, config_file)
             for o in cached:
                 page_cache.get_parts(o.study_id, _parts_key(base, o))
         if also_meanwhile is not None:
@@ -758,7 +766,7 @@ def prepare(studies_dir: Path | None, templates_dir: Path, config_file: Path | N
         raise SiteBuildError(_failure_text(failed) + "\nthe site was not built; correct the "
                              "files above, or use --keep-going to publish the other studies")
     date, _ = build_date()
-    return render(outcomes, Path(templates_dir), config_file, date, page_cache)
+    return render(outcomes, templates(), config_file, date, page_cache)
 
 
 # -- publishing -----------------------------------------------------------------------------------
@@ -858,8 +866,6 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
     Every version already published (in the site's versions/ and in ``archive``) is carried
     into the new site; this version is added to ``archive`` once it is published.
     """
-    from . import mkdocs_plugin
-
     t0 = time.perf_counter()
     config_file = Path(config_file).resolve()
     if not config_file.is_file():
@@ -867,9 +873,9 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
     site_dir = Path(site_dir).resolve()
     if templates_dir is not None:
         templates_dir = check_templates(Path(templates_dir))
-    else:
-        templates_dir = mkdocs_plugin.docs_dir(config_file)
-    protected = [config_file.parent, templates_dir, PACKAGE]
+    protected = [config_file.parent, PACKAGE]
+    if templates_dir is not None:
+        protected.append(templates_dir)
     if studies_dir is not None:
         protected.append(Path(studies_dir))
     _check_target(site_dir, protected)
@@ -878,11 +884,25 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
         if archive == site_dir or archive.is_relative_to(site_dir):
             raise SiteBuildError(f"{archive}: the archive would be inside the site folder, "
                                  "which each build replaces; choose a folder beside it")
+
+    def templates() -> Path:
+        """The configuration's docs_dir when no folder was given: read with the site
+        generator's import, while the changed studies are fitted (prepare asks for it)."""
+        nonlocal templates_dir
+        if templates_dir is None:
+            from . import mkdocs_plugin
+
+            templates_dir = mkdocs_plugin.docs_dir(config_file)
+            _check_target(site_dir, [templates_dir])
+        return templates_dir
+
     from .versions import read_ahead
 
-    prepared = prepare(studies_dir, templates_dir, config_file, keep_going=keep_going,
+    prepared = prepare(studies_dir, templates, config_file, keep_going=keep_going,
                        cache_dir=cache_dir, jobs=jobs, progress=progress, sources=sources,
                        reuse_pages=True, also_meanwhile=lambda: read_ahead(site_dir))
+    templates_dir = templates()
+    from . import mkdocs_plugin
     _add_approvals(prepared, templates_dir, studies_dir)
     own = _add_versions(prepared, templates_dir, site_dir, archive)
     t1 = time.perf_counter()
