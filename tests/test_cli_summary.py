@@ -13,7 +13,7 @@ import pytest
 from extractval.acceptance import OUTCOME_WORDS
 from extractval.cli import main
 from extractval.formats import fmt_number
-from extractval.report.register import CRITERION_LABELS
+from extractval.report.register import CRITERION_LABELS, criterion_style
 from site_factory import synthetic_study, write_study_folder
 
 #: two runs whose organic-phase amount is planted 8 % high: recoveries above 100 % (warnings)
@@ -52,8 +52,12 @@ def test_text_shows_status_verdicts_and_worst_cases_from_the_json(outputs, capsy
         hits = [ln for ln in lines if ln.split()[:1] == [owner] and f" {label}" in ln]
         assert len(hits) == 1, (owner, label)
         assert f": {OUTCOME_WORDS[v['status']]};" in hits[0]
+        assert "value none" not in hits[0]
         if v["value"] is not None:
-            assert "value " in hits[0] and "value none" not in hits[0]
+            assert f"; value {fmt_number(v['value'], criterion_style(v['criterion']))};" \
+                in hits[0]
+        else:
+            assert "; value " not in hits[0]
     for p in d["procedures"]:
         wc = p["worst_case"]
         line, = [ln for ln in lines if ln.startswith(f"   {p['id']} worst case:")]

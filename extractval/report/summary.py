@@ -72,8 +72,10 @@ def _verdict_line(owner: str, v: dict) -> str:
         # a verdict that summarises others (a suitability sequence) says why in its detail
         return (f"     {owner:<6} {label}{basis}: {v.get('outcome') or v['status']}; "
                 f"{v['detail']}")
+    # a verdict without a value (not judged) shows none rather than 'value none'
+    shown = "" if v.get("value") is None else f"value {value}; "
     line = (f"     {owner:<6} {label}{basis}: {v.get('outcome') or v['status']}; "
-            f"value {value}; limit {_limit(v.get('limit'))}")
+            f"{shown}limit {_limit(v.get('limit'))}")
     if v["status"] not in ("pass", "fail") and v.get("detail"):
         line += f" ({v['detail']})"
     return line
