@@ -98,12 +98,6 @@ def replicate_groups(fit: FitResult) -> dict[tuple, list[int]]:
     return dict(groups)
 
 
-def _model_pct(fit: FitResult, quantity: str, pH, ratio) -> np.ndarray:
-    """What the fitted model expects a one-portion run to measure, % of the spiked amount."""
-    rd = np.asarray(ratio, dtype=float) * 10.0 ** np.asarray(fit.log_d(pH), dtype=float)
-    return 100.0 * (rd / (1.0 + rd) if quantity == "recovery" else 1.0 / (1.0 + rd))
-
-
 @dataclass(frozen=True)
 class Repeatability:
     """Pooled repeatability RSD of the measured quantity, with the groups behind it."""
@@ -153,25 +147,33 @@ def repeatability(fit: FitResult, outcomes) -> Repeatability | None:
             got = measured_pct(by_index[i].run, obs.kind[i]) if i in by_index else None
             if got is not None:
                 values[(label, got[0])].append((i, got[1]))
-    groups, rows = {}, []
-    for (label, quantity), items in values.items():
-        if len(items) < 2:
-            continue
-        idx = np.array([i for i, _ in items])
-        x = np.array([v for _, v in items])
-        ratio = 10.0 ** obs.log_ratio[idx]
-        ph_group = float(np.mean(obs.pH[idx]))
-        scale = _model_pct(fit, quantity, np.full(idx.size, ph_group), ratio) \
-            / _model_pct(fit, quantity, obs.pH[idx], ratio)
-        adjusted = x * scale
-        groups[(label, quantity)] = adjusted
-        rows.append({"label": label, "quantity": quantity,
-                     "runs": [obs.run_ids[i] for i in idx], "pH": clean(ph_group, 6),
-                     "n": int(idx.size), "mean_pct": clean(float(np.mean(adjusted))),
-                     "rsd_pct": clean(float(100.0 * np.std(adjusted, ddof=1)
-                                            / np.mean(adjusted)))})
-    if not groups:
+    kept = [(key, items) for key, items in values.items() if len(items) >= 2]
+    if not kept:
         return None
+    # every group's runs in one array, so that the model is evaluated twice in all (at the
+    # runs' pH and at their group's mean pH), not twice per group
+    idx = np.array([i for _, items in kept for i, _ in items])
+    x = np.array([v for _, items in kept for _, v in items])
+    sizes = [len(items) for _, items in kept]
+    starts = np.cumsum([0] + sizes)
+    ph_group = np.repeat(np.add.reduceat(obs.pH[idx], starts[:-1]) / sizes, sizes)
+    ratio = 10.0 ** obs.log_ratio[idx]
+    rd_run = ratio * 10.0 ** np.asarray(fit.log_d(obs.pH[idx]), dtype=float)
+    rd_group = ratio * 10.0 ** np.asarray(fit.log_d(ph_group), dtype=float)
+    recovery = np.repeat([quantity == "recovery" for (_, quantity), _ in kept], sizes)
+    # x * m(pH_group) / m(pH_run), m the expected recovery rd/(1+rd) or remainder 1/(1+rd)
+    scale = np.where(recovery, rd_group / rd_run, 1.0) * (1.0 + rd_run) / (1.0 + rd_group)
+    adjusted = x * scale
+    groups, rows = {}, []
+    for k, ((label, quantity), _) in enumerate(kept):
+        a, b = starts[k], starts[k + 1]
+        values_k = adjusted[a:b]
+        mean = float(values_k.mean())
+        groups[(label, quantity)] = values_k
+        rows.append({"label": label, "quantity": quantity,
+                     "runs": [obs.run_ids[i] for i in idx[a:b]], "pH": clean(ph_group[a], 6),
+                     "n": int(b - a), "mean_pct": clean(mean),
+                     "rsd_pct": clean(float(100.0 * values_k.std(ddof=1) / mean))})
     quantities = tuple(q for q in QUANTITY_WORDS if any(k[1] == q for k in groups))
     return Repeatability(acc.pooled_rsd(list(groups.values())), quantities, tuple(rows))
 
