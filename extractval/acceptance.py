@@ -34,9 +34,9 @@ from dataclasses import dataclass
 from decimal import Decimal, InvalidOperation
 
 import numpy as np
-from scipy import stats
 
 from extractval.formats import OUTCOME_WORDS  # noqa: F401  (named here too)
+from extractval.quantiles import f_sf, t_isf
 from extractval.results import clean, fmt_pct
 
 #: a verdict's machine-readable outcome: met, not met, judged but to be looked into (a HorRat
@@ -179,7 +179,7 @@ def grubbs_critical(n: int, alpha: float) -> float:
     if not 0.0 < alpha < 1.0:
         raise ValueError(f"Grubbs critical value: alpha = {alpha!r}; expected 0 < alpha < 1")
     n = int(n)
-    t = stats.t.isf(alpha / (2.0 * n), n - 2)
+    t = t_isf(alpha / (2.0 * n), n - 2)
     return float((n - 1) / math.sqrt(n) * math.sqrt(t * t / (n - 2 + t * t)))
 
 
@@ -366,7 +366,7 @@ def lack_of_fit_from_ss(ss_pe: float, ss_lof: float, df_pe: int, df_lof: int) ->
         return LackOfFit(ss_pe, ss_lof, df_pe, df_lof, None, None,
                          "pure error is zero: replicates agree exactly, F is undefined")
     f_stat = (ss_lof / df_lof) / (ss_pe / df_pe)
-    p = float(stats.f.sf(f_stat, df_lof, df_pe))
+    p = f_sf(f_stat, df_lof, df_pe)
     return LackOfFit(float(ss_pe), float(ss_lof), df_pe, df_lof, float(f_stat), p)
 
 

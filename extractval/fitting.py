@@ -36,10 +36,11 @@ from dataclasses import dataclass, field
 from functools import cached_property, lru_cache
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import optimize
 
 from . import chemistry as chem
 from .models import LogDModel
+from .quantiles import f_ppf, t_ppf
 from .results import Estimate, Interval
 
 LOG_D, LOG_E, LOG_Q = "log D", "log E", "log q"
@@ -64,7 +65,7 @@ def t975(dof: int) -> float:
     >>> round(t975(10), 3)
     2.228
     """
-    return float(stats.t.ppf(0.975, dof))
+    return t_ppf(0.975, dof)
 
 
 @lru_cache(maxsize=None)
@@ -74,7 +75,7 @@ def f95(dof: int) -> float:
     >>> round(f95(10), 3)
     4.965
     """
-    return float(stats.f.ppf(0.95, 1, dof))
+    return f_ppf(0.95, 1, dof)
 
 
 class FitImpossible(ValueError):

@@ -45,9 +45,9 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import stats
 
 from .acceptance import Verdict, _at_least, _at_most, verdict
+from .quantiles import chi2_ppf, t_ppf
 from .results import clean
 from .tables import Location
 
@@ -148,7 +148,7 @@ def ratio_of_means(num, den) -> dict:
     if sn is None or sd is None:
         return out
     se = abs(value) * math.sqrt(sn ** 2 / (nn * mn ** 2) + sd ** 2 / (nd * md ** 2))
-    t = float(stats.t.ppf(0.975, nn + nd - 2))
+    t = t_ppf(0.975, nn + nd - 2)
     out.update(se=clean(se), ci95=[clean(value - t * se), clean(value + t * se)])
     return out
 
@@ -163,7 +163,7 @@ def mean_interval(values) -> dict:
     m, s, n = _mean_sd(values)
     out = {"mean": clean(m), "sd": clean(s), "cv_pct": None, "n": n, "ci95": [None, None]}
     if s is not None:
-        half = float(stats.t.ppf(0.975, n - 1)) * s / math.sqrt(n)
+        half = t_ppf(0.975, n - 1) * s / math.sqrt(n)
         out.update(cv_pct=clean(100.0 * s / m) if m else None,
                    ci95=[clean(m - half), clean(m + half)])
     return out
@@ -227,9 +227,8 @@ def intermediate_interval(ms_b: float, ms_w: float, df_b: int, df_w: int, n0: fl
     """
     c1, c2 = 1.0 / n0, 1.0 - 1.0 / n0
     theta = c1 * ms_b + c2 * ms_w
-    chi = stats.chi2
-    g = [1.0 - df / chi.ppf(1.0 - alpha / 2.0, df) for df in (df_b, df_w)]
-    h = [df / chi.ppf(alpha / 2.0, df) - 1.0 for df in (df_b, df_w)]
+    g = [1.0 - df / chi2_ppf(1.0 - alpha / 2.0, df) for df in (df_b, df_w)]
+    h = [df / chi2_ppf(alpha / 2.0, df) - 1.0 for df in (df_b, df_w)]
     terms = (c1 * ms_b, c2 * ms_w)
     lo = theta - math.sqrt(sum((gi * t) ** 2 for gi, t in zip(g, terms)))
     hi = theta + math.sqrt(sum((hi_ * t) ** 2 for hi_, t in zip(h, terms)))
@@ -254,9 +253,8 @@ def variance_components(groups: dict[str, list[float]]) -> dict | None:
     s_l2 = max(0.0, (msb - msw) / n0)
     s_i2 = s_r2 + s_l2
     df_w, df_b = a["df_within"], a["df_between"]
-    chi = stats.chi2
-    sr_ci = [math.sqrt(df_w * s_r2 / chi.ppf(0.975, df_w)),
-             math.sqrt(df_w * s_r2 / chi.ppf(0.025, df_w))]
+    sr_ci = [math.sqrt(df_w * s_r2 / chi2_ppf(0.975, df_w)),
+             math.sqrt(df_w * s_r2 / chi2_ppf(0.025, df_w))]
     si_ci = list(intermediate_interval(msb, msw, df_b, df_w, n0))
     m = a["grand_mean"]
 

@@ -39,11 +39,12 @@ from dataclasses import dataclass, field
 from typing import Callable, Sequence
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import optimize
 
 from . import chemistry as chem
 from .fitting import FitResult
 from .models import LogDModel
+from .quantiles import f_ppf, t_ppf
 from .results import Interval, clean
 from .study import WorkupStep, workup_problem
 
@@ -138,7 +139,7 @@ def _s_crit(fit: FitResult, level: float) -> float:
     """Threshold on the weighted SS: the fit's profile threshold at another confidence."""
     if abs(level - 0.95) < 1e-12:
         return fit.s_crit
-    return fit.rss * (1.0 + float(stats.f.ppf(level, 1, fit.dof)) / fit.dof)
+    return fit.rss * (1.0 + f_ppf(level, 1, fit.dof) / fit.dof)
 
 
 def _num_grad(g: Callable[[np.ndarray], float], x: np.ndarray) -> np.ndarray:
@@ -212,7 +213,7 @@ class Region:
                 ends.append(value)
                 continue
             # start at the Wald end in parameter space (the linearised region's extreme point)
-            t = float(stats.t.ppf(0.5 + self.level / 2, min(f.dof for f in self.fits)))
+            t = t_ppf(0.5 + self.level / 2, min(f.dof for f in self.fits))
             x0 = np.clip(self.theta + sign * t * (self.cov @ grad) / np.sqrt(var),
                          self.lo, self.hi)
             res = optimize.minimize(lambda x: -sign * float(g(x)), x0, method="SLSQP",
