@@ -51,25 +51,21 @@ class RunOutcome:
 
 def _observation(run: Run) -> tuple[str, float] | str:
     """(kind, y) for a run, or the reason it cannot enter a log-scale fit."""
-    r = run.volume_ratio
-    m = run.measurement
-    if m == "recovery":
-        if run.recovery_pct <= 0:
-            return ("recovery_pct is 0: nothing measured in the organic phase, so the run sets "
-                    "no finite value on the log scale")
+    phase = run.fitted_phase
+    if phase == "recovery":
         return LOG_E, float(np.log10(run.recovery_pct / 100.0))
-    aq = run.found_aqueous if run.found_aqueous is not None else 0.0
-    org = run.found_organic if run.found_organic is not None else 0.0
-    if m == "both" and aq > 0 and org > 0:
-        return LOG_D, float(np.log10(org / aq) - np.log10(r))
-    if m in ("both", "organic") and org > 0:
-        return LOG_E, float(np.log10(org / run.spiked))
-    if m in ("both", "aqueous") and aq > 0:
-        return LOG_Q, float(np.log10(aq / run.spiked))
+    if phase == "both":
+        return LOG_D, float(np.log10(run.found_organic / run.found_aqueous)
+                            - np.log10(run.volume_ratio))
+    if phase == "organic":
+        return LOG_E, float(np.log10(run.found_organic / run.spiked))
+    if phase == "aqueous":
+        return LOG_Q, float(np.log10(run.found_aqueous / run.spiked))
+    if run.measurement == "recovery":
+        return ("recovery_pct is 0: nothing measured in the organic phase, so the run sets "
+                "no finite value on the log scale")
     return ("no analyte found in the measured phase(s): the run sets no finite value on the "
             "log scale")
-
-
 
 
 def observed_log_d(run: Run, fitted_log_d: float | None = None) -> float | None:

@@ -35,14 +35,11 @@ MARK = "extrapolated beyond the runs"
 
 def enters_fit(run) -> bool:
     """Whether a run enters the fit: not excluded, not left out by a failing system-suitability
-    sequence, and some measured amount above zero (as analysis.build_observations decides)."""
+    sequence, and some measured amount above zero (Run.fitted_phase, which
+    analysis.build_observations uses too)."""
     if run.excluded or getattr(run, "suitability", None):
         return False
-    m = run.measurement
-    if m == "recovery":
-        return bool(run.recovery_pct and run.recovery_pct > 0)
-    aq, org = run.found_aqueous or 0.0, run.found_organic or 0.0
-    return (m in ("both", "organic") and org > 0) or (m in ("both", "aqueous") and aq > 0)
+    return run.fitted_phase is not None
 
 
 def _g(x: float) -> str:

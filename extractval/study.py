@@ -125,6 +125,24 @@ class Run:
         return "organic" if self.found_organic is not None else "aqueous"
 
     @property
+    def fitted_phase(self) -> str | None:
+        """What the fit reads of the run: "both" (log D), "organic", "aqueous" or "recovery"
+        (a one-phase fraction), or None when no measured amount is above zero (the run then
+        sets no finite value on the log scale). Both analysis.build_observations and the
+        extrapolation span (extrapolation.enters_fit) decide with it."""
+        m = self.measurement
+        if m == "recovery":
+            return m if self.recovery_pct > 0 else None
+        aq, org = self.found_aqueous or 0.0, self.found_organic or 0.0
+        if m == "both" and aq > 0 and org > 0:
+            return "both"
+        if m in ("both", "organic") and org > 0:
+            return "organic"
+        if m in ("both", "aqueous") and aq > 0:
+            return "aqueous"
+        return None
+
+    @property
     def volume_ratio(self) -> float:
         """Organic over aqueous volume, r = V_org / V_aq."""
         return self.organic_mL / self.aqueous_mL
