@@ -287,8 +287,8 @@ def test_calibration_section_numbers_are_the_dicts_and_in_the_register(tmp_path)
 
     from extractval.report.pages import Pages, StudyInput
     from extractval.report.plots import plot_name, study_plots
-    from extractval.report.register import fmt_number, resolve, study_register
-    from tests.test_report_pages import DOSSIER, SPAN, TEMPLATES
+    from extractval.report.register import study_register
+    from tests.test_report_pages import DOSSIER, SPAN, TEMPLATES, assert_numbers_are_the_dicts
 
     d = _page_dict(tmp_path)
     curve = d["calibration"]["curves"][0]
@@ -302,14 +302,7 @@ def test_calibration_section_numbers_are_the_dicts_and_in_the_register(tmp_path)
     assert "calibration-curve.svg" in section and "calibration-curve-errors.svg" in section
     assert re.search(r"<tr><td>CS3-1</td>.*?xv-verdict--fail", section)
     assert section.count("xv-verdict--fail\">fail") == 1
-    styles = ("int", "g", "g6", "f1", "f2", "r4", "se", "rel")
-    spans = SPAN.findall(section)
-    assert len(spans) > 50
-    for _, src, text in spans:
-        value = resolve(d, html.unescape(src))
-        text = html.unescape(text)
-        assert any(fmt_number(value, st) in (text, text.removesuffix(" %")) for st in styles), \
-            (src, text)
+    assert_numbers_are_the_dicts(section, d, ("int", "g", "g6", "f1", "f2", "r4", "se", "rel"), 50)
     register = {n.source: n for q in study_register(d) for n in q.numbers}
     ids = [n.identifier for n in register.values()]
     assert len(ids) == len(set(ids))

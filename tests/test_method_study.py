@@ -216,20 +216,14 @@ def test_method_section_numbers_are_the_dicts_and_in_the_register():
     import re
 
     from extractval.report.pages import Pages, StudyInput
-    from extractval.report.register import fmt_number, resolve, study_register
-    from tests.test_report_pages import DOSSIER, SPAN, TEMPLATES
+    from extractval.report.register import study_register
+    from tests.test_report_pages import DOSSIER, SPAN, TEMPLATES, assert_numbers_are_the_dicts
 
     d = fit_study(load_study(DEMO)).to_dict()
     page = Pages(TEMPLATES, trace=True).study_page(StudyInput("HPA-2026-030", d), DOSSIER)
     section = page[page.index("## Method recovery"):page.index("## Fitted constants")]
+    assert_numbers_are_the_dicts(section, d, ("int", "g", "f1", "f2", "f3"), 150)
     spans = SPAN.findall(section)
-    assert len(spans) > 150
-    styles = ("int", "g", "f1", "f2", "f3")
-    for _, src, text in spans:
-        value = resolve(d, html.unescape(src))
-        text = html.unescape(text)
-        assert any(fmt_number(value, st) in (text, text.removesuffix(" %")) for st in styles), \
-            (src, text)
     # the level table, the lots' matrix factors and the precision components are all there
     for ptr in ("/method_recovery/recovery/low/value", "/method_recovery/recovery/high/ci95/1",
                 "/method_recovery/matrix_factor/mid/lots/PL-0402",

@@ -39,6 +39,21 @@ SPAN = re.compile(r'<span class="xv-num"(?: data-study="([^"]*)")? '
                   r'data-src="([^"]*)">([^<]*)</span>')
 
 
+def assert_numbers_are_the_dicts(section: str, d: dict, styles, more_than: int) -> None:
+    """Every traced number of ``section`` (a traced page or part of one) shows the value at its
+    pointer in ``d`` in one of the formatter's ``styles`` (a trailing " %" allowed), and there
+    are more than ``more_than`` of them."""
+    from extractval.report.register import fmt_number, resolve
+
+    spans = SPAN.findall(section)
+    assert len(spans) > more_than
+    for _, src, text in spans:
+        value = resolve(d, html.unescape(src))
+        text = html.unescape(text)
+        assert any(fmt_number(value, st) in (text, text.removesuffix(" %")) for st in styles), \
+            (src, text)
+
+
 GOLD_PROCEDURES = (
     Procedure("P1", "Three 10 mL portions at pH 10", 10.0, 25.0, (10.0, 10.0, 10.0)),
     Procedure("P2", "One 10 mL portion at pH 5.5", 5.5, 25.0, (10.0,)),

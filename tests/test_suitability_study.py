@@ -252,8 +252,8 @@ def test_injections_min_applies(tmp_path):
 
 def test_suitability_section_numbers_are_the_dicts_and_in_the_register(tmp_path):
     from extractval.report.pages import Pages, StudyInput
-    from extractval.report.register import fmt_number, resolve, study_register
-    from tests.test_report_pages import DOSSIER, SPAN, TEMPLATES
+    from extractval.report.register import study_register
+    from tests.test_report_pages import DOSSIER, SPAN, TEMPLATES, assert_numbers_are_the_dicts
 
     folder = suitability_study(tmp_path, bad={"S2": ("rt_neighbour", "5.90")})
     d = json.loads(json.dumps(fit_study(load_study(folder)).to_dict()))
@@ -263,14 +263,7 @@ def test_suitability_section_numbers_are_the_dicts_and_in_the_register(tmp_path)
     assert "common practice" in section
     assert section.count('xv-verdict--fail">') >= 2       # the sequence and its resolution
     assert "<details" in section                          # per-injection table folded
-    styles = ("int", "g", "g6", "f1", "f2", "r4", "se", "rel")
-    spans = SPAN.findall(section)
-    assert len(spans) > 30
-    for _, src, text in spans:
-        value = resolve(d, html.unescape(src))
-        text = html.unescape(text)
-        assert any(fmt_number(value, st) in (text, text.removesuffix(" %")) for st in styles), \
-            (src, text)
+    assert_numbers_are_the_dicts(section, d, ("int", "g", "g6", "f1", "f2", "r4", "se", "rel"), 30)
     register = {n.source: n for q in study_register(d) for n in q.numbers}
     ids = [n.identifier for n in register.values()]
     assert len(ids) == len(set(ids))
