@@ -40,7 +40,7 @@ import yaml
 from .calibration import (ACCEPTANCE_RULE, BELOW_LLOQ, CURVE_MODELS, QUANTIFIED,
                           WEIGHTING_RULE, WEIGHTINGS, CalibrationFit, CalibrationImpossible,
                           fit_calibration)
-from .errors import Problem
+from .errors import Problem, count_errors
 from .results import clean
 from .tables import Location, Table, read_table
 
@@ -185,7 +185,7 @@ def read_settings(doc, entries, folder: Path, resolve_path) -> CalibrationSettin
     c = doc.mapping(node, "calibration", YAML_KEYS, "calibration")
     if c is None:
         return None
-    before = _errors(doc.problems)
+    before = count_errors(doc.problems)
     text = doc.text(c, node, "calibration", "table",
                     expected="the calibration table's file name, e.g. calibration.csv")
     path = None if text is None else resolve_path(text, c["table"][1], "calibration.table")
@@ -196,7 +196,7 @@ def read_settings(doc, entries, folder: Path, resolve_path) -> CalibrationSettin
                     expected="the unit of the levels, e.g. ng/mL")
     model = _choice(doc, c, node, "model", CURVE_MODELS, "linear")
     weighting = _choice(doc, c, node, "weighting", ("auto",) + WEIGHTINGS, "auto")
-    if path is None or _errors(doc.problems) > before:
+    if path is None or count_errors(doc.problems) > before:
         return None
     return CalibrationSettings(path, _shown(path, folder), sheet, level, unit, model,
                                None if weighting == "auto" else weighting,
@@ -221,10 +221,6 @@ def _shown(path: Path, folder: Path) -> str:
     return display_path(path)
 
 
-def _errors(problems: list[Problem]) -> int:
-    return sum(p.severity == "error" for p in problems)
-
-
 # -- the calibration table ------------------------------------------------------------------------
 
 def read_curves(settings: CalibrationSettings,
@@ -234,7 +230,7 @@ def read_curves(settings: CalibrationSettings,
     problems.extend(_renamed(p) for p in more)
     if table is None:
         return (), None
-    before = _errors(problems)
+    before = count_errors(problems)
     where = table.header_location.where()
     present = ", ".join(table.header(c) for c in table.columns)
     for c in REQUIRED:
@@ -249,14 +245,14 @@ def read_curves(settings: CalibrationSettings,
                                     column=table.header(c), found=table.header(c),
                                     severity="warning",
                                     expected="known columns: " + ", ".join(COLUMNS)))
-    if _errors(problems) > before:
+    if count_errors(problems) > before:
         return (), table.sha256
     if not table.rows:
         problems.append(Problem("the calibration table has a header but no standards", **where,
                                 expected="one row per calibration standard"))
         return (), table.sha256
     standards = [s for row in table.rows if (s := _standard(table, row, problems)) is not None]
-    if _errors(problems) > before:
+    if count_errors(problems) > before:
         return (), table.sha256
     groups: dict[tuple, list[Standard]] = {}
     for s in standards:
@@ -266,7 +262,7 @@ def read_curves(settings: CalibrationSettings,
         curve = Curve(seq, phase, tuple(rows))
         _check_group(table, curve, problems)
         curves.append(curve)
-    if _errors(problems) > before:
+    if count_errors(problems) > before:
         return tuple(curves), table.sha256
     for curve in curves:
         x = np.array([s.level for s in curve.standards])
@@ -293,7 +289,7 @@ def _renamed(p: Problem) -> Problem:
 
 
 def _standard(table: Table, row, problems: list[Problem]) -> Standard | None:
-    before = _errors(problems)
+    before = count_errors(problems)
     where = row.location.where()
     sid = row.raw("standard").strip()
     if not sid:
@@ -335,7 +331,7 @@ def _standard(table: Table, row, problems: list[Problem]) -> Standard | None:
     if phase is not None and phase not in PHASES:
         problems.append(Problem("unknown phase", **where, column="phase", found=row.raw("phase"),
                                 expected="aqueous, organic, or empty for both"))
-    if _errors(problems) > before:
+    if count_errors(problems) > before:
         return None
     return Standard(sid, level, response, is_resp, row.raw("sequence").strip() or None, phase,
                     row.location)

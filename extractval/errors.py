@@ -151,12 +151,17 @@ class ProblemList:
         return len(self.items)
 
 
+def count_errors(problems) -> int:
+    """How many of ``problems`` are errors (the rest are warnings)."""
+    return sum(p.severity == "error" for p in problems)
+
+
 class StudyError(Exception):
     """A study could not be read; ``problems`` lists every located error (and warning)."""
 
     def __init__(self, problems: list[Problem], study: str | None = None):
         self.problems = list(problems)
         self.study = study
-        n = sum(p.severity == "error" for p in self.problems)
+        n = count_errors(self.problems)
         head = f"study {study!r}: " if study else ""
         super().__init__(f"{head}{n} error(s)\n" + "\n".join(str(p) for p in self.problems))

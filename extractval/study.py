@@ -61,7 +61,7 @@ if TYPE_CHECKING:
     from .calibration_input import CalibrationSet
     from .suitability_input import SuitabilitySet
 from . import method_input
-from .errors import Problem, StudyError
+from .errors import Problem, StudyError, count_errors
 from .extrapolation import Span, extrapolation_problems
 from .replicates import PH_TOLERANCE, precision_groups
 from .tables import (EXTENSIONS, HeaderRules, Location, Table, TableRow, decode_text,
@@ -852,7 +852,7 @@ def _steps(doc: _Yaml, p, key: str) -> tuple[WorkupStep, ...]:
         doc.report("'steps' must be a list of steps", node, path, found=_node_kind(node),
                    expected=_STEPS_EXPECTED)
         return ()
-    before = _n_errors(doc.problems)
+    before = count_errors(doc.problems)
     out = []
     for i, item in enumerate(node.value, start=1):
         k = f"{path}[{i}]"
@@ -869,7 +869,7 @@ def _steps(doc: _Yaml, p, key: str) -> tuple[WorkupStep, ...]:
         org = _volumes(doc, s, item, k, "organic_mL", kind == "extract")
         if kind is not None and pH is not None and aq:
             out.append(WorkupStep(kind, pH, aq, org))
-    if _n_errors(doc.problems) > before:
+    if count_errors(doc.problems) > before:
         return ()
     why = workup_problem(out)
     if why:
@@ -1109,10 +1109,6 @@ def _check_header(table: Table, problems: list[Problem], known=frozenset()) -> b
     return has_amounts or has_recovery
 
 
-def _n_errors(problems: list[Problem]) -> int:
-    return sum(p.severity == "error" for p in problems)
-
-
 def _runs(table: Table, problems: list[Problem], check_forms: bool) -> list[Run]:
     reader = _RowReader(table, problems)
     runs: list[Run] = []
@@ -1120,9 +1116,9 @@ def _runs(table: Table, problems: list[Problem], check_forms: bool) -> list[Run]
     for row in table.rows:
         if row.misaligned:     # reported by the reader: its cells sit under wrong columns
             continue
-        before = _n_errors(problems)
+        before = count_errors(problems)
         run = _run(reader, row, seen, check_forms)
-        if run is not None and _n_errors(problems) == before:
+        if run is not None and count_errors(problems) == before:
             runs.append(run)
     return runs
 
@@ -1542,7 +1538,7 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
             runs = _runs(table, problems, forms)
             fitted = [r for r in runs if r.spike_stage is None]   # method runs: not fitted
             if fitted and not any(not r.excluded for r in fitted) \
-                    and not _n_errors(problems):
+                    and not count_errors(problems):
                 problems.append(Problem("every run is excluded: nothing is left to fit",
                                         file=table.file, severity="warning",
                                         expected="at least one run without an exclusion"))
@@ -1554,7 +1550,7 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
     method_input.check_method_runs(method_runs, problems)
     method_targets = method_input.read_targets(doc, entries, _is_null, _positive,
                                                _non_negative)
-    if method_runs and not runs and not _n_errors(problems):
+    if method_runs and not runs and not count_errors(problems):
         problems.append(Problem("every run is a method-validation run (spike_stage): no "
                                 "shake-flask run is left to fit", file=table.file,
                                 expected="shake-flask runs without spike_stage beside the "
@@ -1571,7 +1567,7 @@ def check_study(path) -> tuple[Study | None, list[Problem]]:
     # a procedure outside the runs' pH span or volume ratios is predicted by extrapolation
     problems.extend(extrapolation_problems(procedures, Span.of_runs(runs), shown))
     problems = _in_file_order(problems)
-    if _n_errors(problems):
+    if count_errors(problems):
         return None, problems
     inputs = (InputFile(f"{study_id}/{STUDY_FILE}", _sha256(data), "study"),
               InputFile(f"{study_id}/{runs_path.relative_to(folder).as_posix()}", runs_digest,

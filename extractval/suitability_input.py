@@ -41,7 +41,7 @@ from pathlib import Path
 
 import yaml
 
-from .errors import Problem
+from .errors import Problem, count_errors
 from .suitability import Injection, SuitabilityLimits, SuitabilityReport, judge_suitability
 from .tables import Table, read_table
 
@@ -133,12 +133,12 @@ def read_settings(doc, entries, folder: Path, resolve_path) -> SuitabilitySettin
     s = doc.mapping(node, "suitability", YAML_KEYS, "suitability")
     if s is None:
         return None
-    before = _errors(doc.problems)
+    before = count_errors(doc.problems)
     text = doc.text(s, node, "suitability", "table", expected=expected)
     path = None if text is None else resolve_path(text, s["table"][1], "suitability.table")
     sheet = doc.text(s, node, "suitability", "sheet", required=False,
                      expected="the name of the sheet holding the suitability injections")
-    if path is None or _errors(doc.problems) > before:
+    if path is None or count_errors(doc.problems) > before:
         return None
     return _settings(path, folder, sheet)
 
@@ -189,10 +189,6 @@ def _whole_at_least_2(value: float) -> str | None:
     return None if value >= 2 and float(value).is_integer() else "a whole number of at least 2"
 
 
-def _errors(problems: list[Problem]) -> int:
-    return sum(p.severity == "error" for p in problems)
-
-
 # -- the suitability table -------------------------------------------------------------------------
 
 def read_injections(settings: SuitabilitySettings,
@@ -203,7 +199,7 @@ def read_injections(settings: SuitabilitySettings,
                     for p in more)
     if table is None:
         return None, None
-    before = _errors(problems)
+    before = count_errors(problems)
     where = table.header_location.where()
     present = ", ".join(table.header(c) for c in table.columns)
     if "sequence" not in table.headers:
@@ -221,7 +217,7 @@ def read_injections(settings: SuitabilitySettings,
         problems.append(Problem("the suitability table has no column of times, widths or "
                                 "responses", **where, found=present,
                                 expected="some of " + ", ".join(FIELDS)))
-    if _errors(problems) > before:
+    if count_errors(problems) > before:
         return None, table.sha256
     if not table.rows:
         problems.append(Problem("the suitability table has a header but no injections", **where,
@@ -240,13 +236,13 @@ def read_injections(settings: SuitabilitySettings,
                                     column=table.header("injection"), found=inj.injection,
                                     expected="a unique injection label per sequence"))
         seen[key] = inj.location
-    if _errors(problems) > before:
+    if count_errors(problems) > before:
         return None, table.sha256
     return injections, table.sha256
 
 
 def _injection(table: Table, row, problems: list[Problem]) -> Injection | None:
-    before = _errors(problems)
+    before = count_errors(problems)
     where = row.location.where()
 
     def report(column: str, message: str, expected: str, found: str | None = None) -> None:
@@ -277,7 +273,7 @@ def _injection(table: Table, row, problems: list[Problem]) -> Injection | None:
                    + ("time" if col.startswith("rt_") else "width"), _WHAT[col])
             continue
         values[col] = v
-    if _errors(problems) > before:
+    if count_errors(problems) > before:
         return None
     if not values:
         report("sequence", "the row gives no time, width or response", "some of "
@@ -296,7 +292,7 @@ def _injection(table: Table, row, problems: list[Problem]) -> Injection | None:
     if "f_5pct" in values and "w_5pct" in values and values["f_5pct"] >= values["w_5pct"]:
         report("f_5pct", "f is not inside W0.05",
                f"f less than W0.05 ({row.raw('w_5pct')}); f = W0.05 / 2 for a symmetric peak")
-    if _errors(problems) > before:
+    if count_errors(problems) > before:
         return None
     label = row.raw("injection").strip() or None
     return Injection(seq, row.location, label, **{FIELDS[c]: v for c, v in values.items()})
