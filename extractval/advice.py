@@ -35,7 +35,7 @@ from .fitting import (LOG_D, LOG_E, LOG_Q, FitImpossible, FitResult, Observation
                       t975)
 from .models import MODELS
 from .procedures import BAND_MARGIN, ProcedurePrediction, recovery_pct_from_log_d
-from .results import clean
+from .results import clean, clean_all
 from .study import Study
 
 #: measurement form of a run -> what the fit sees of it
@@ -211,7 +211,7 @@ class NextRuns:
                 "pH_range": [clean(x, 6) for x in self.pH_range],
                 "pH_range_note": self.pH_range_note,
                 "pH_step": PH_STEP,
-                "ratios": sorted({clean(x, 6) for x in c.ratio}),
+                "ratios": sorted(set(clean_all(c.ratio, 6))),
                 "forms": sorted(set(c.form)),
                 "count": c.size,
             },

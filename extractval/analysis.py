@@ -23,7 +23,7 @@ from .procedures import (LogDBand, ProcedureDesign, ProcedurePrediction, design_
                          design_space, log_d_band, predict_procedure)
 from .replicates import PH_TOLERANCE, precision_groups
 from .reading import procedure_reading, workup_reading
-from .results import clean
+from .results import clean, clean_all
 from .solvents import solvent_report
 from .screening import STUDENTIZED_LIMIT, refit_without, screen
 from .study import STUDY_FILE, Run, Study, display_path
@@ -349,15 +349,20 @@ class StudyReport:
         # the estimate alone on a grid ten times finer, so that the plotted line shows no
         # corners; the band keeps its profile points (each costs a profile search)
         fine = np.round(np.arange(b.pH[0], b.pH[-1] + CURVE_STEP / 2, CURVE_STEP), 6)
-        return {"pH": [clean(x, 6) for x in b.pH], "log_d": [clean(x, 6) for x in b.value],
-                "lo": [clean(x, 6) for x in b.lo], "hi": [clean(x, 6) for x in b.hi],
+        return {"pH": clean_all(b.pH, 6), "log_d": clean_all(b.value, 6),
+                "lo": clean_all(b.lo, 6), "hi": clean_all(b.hi, 6),
                 "method": b.method,
-                "fine": {"pH": [clean(x, 6) for x in fine],
-                         "log_d": [clean(x, 6) for x in self.fit.log_d(fine)]}}
+                "fine": {"pH": clean_all(fine, 6), "log_d": clean_all(self.fit.log_d(fine), 6)}}
 
     def run_rows(self) -> list[dict]:
         rows = []
-        for o in self.outcomes:
+        if self.fit is not None:
+            # the model at every run's pH in one call, not one call per run
+            fitted_log_ds = self.fit.log_d([o.run.pH for o in self.outcomes]).tolist()
+            fitted = self.fit.fitted.tolist()
+            residual = self.fit.weighted_residuals.tolist()
+            studentized = self.fit.studentized_residuals.tolist()
+        for k, o in enumerate(self.outcomes):
             r = o.run
             row = {
                 "run": r.run_id, "pH": clean(r.pH), "aqueous_mL": clean(r.aqueous_mL),
@@ -369,13 +374,13 @@ class StudyReport:
                 "fitted_as": o.kind, "y": clean(o.y), "location": str(r.location),
             }
             if self.fit is not None:
-                fitted_log_d = float(self.fit.log_d(r.pH))
+                fitted_log_d = fitted_log_ds[k]
                 row["log_d_observed"] = clean(observed_log_d(r, fitted_log_d))
                 if o.index is not None:
                     i = o.index
-                    row["fitted"] = clean(self.fit.fitted[i])
-                    row["residual"] = clean(self.fit.weighted_residuals[i])
-                    row["studentized_residual"] = clean(self.fit.studentized_residuals[i])
+                    row["fitted"] = clean(fitted[i])
+                    row["residual"] = clean(residual[i])
+                    row["studentized_residual"] = clean(studentized[i])
                 row["fitted_log_d"] = clean(fitted_log_d)
             if self.study.calibration is not None:
                 row.update(calibration_run_fields(r))
@@ -419,8 +424,7 @@ class StudyReport:
         if fit is not None:
             out["parameters"] = {k: e.to_dict() for k, e in fit.parameters.items()}
             out["correlation"] = {"parameters": list(fit.model.params),
-                                  "matrix": [[clean(c, 6) for c in row]
-                                             for row in fit.correlation]}
+                                  "matrix": [clean_all(row, 6) for row in fit.correlation]}
             out["statistics"] = {
                 "residual_sd": clean(fit.residual_sd),
                 "residual_sd_meaning": "relative sd of one measured amount (sigma)",

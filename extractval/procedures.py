@@ -16,7 +16,7 @@ from scipy import optimize
 from . import chemistry as chem
 from .extrapolation import Span
 from .fitting import FitResult
-from .results import Estimate, Interval, clean
+from .results import Estimate, Interval, clean, clean_all
 from .study import Procedure
 
 
@@ -443,7 +443,7 @@ def design_space(band: LogDBand, procedures, target_pct: float | None,
                       else [None] * len(row) for lo, row in zip(band.lo, rec.tolist())])
     span = (float(band.pH[0]), float(band.pH[-1]))
     return {
-        "pH": [clean(x, 6) for x in band.pH],
+        "pH": clean_all(band.pH, 6),
         "volume_ratio": list(MAP_RATIOS),
         "portions": list(MAP_PORTIONS),
         "recovery_lo_pct": table,

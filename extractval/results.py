@@ -12,9 +12,6 @@ from dataclasses import dataclass
 from .formats import fmt_pct  # noqa: F401  (re-exported: the engine's sentences use it)
 
 
-_SPECS = {d: f".{d}g" for d in range(1, 18)}
-
-
 def clean(x: float | None, digits: int = 10) -> float | None:
     """A float fit for JSON: None for missing or non-finite, rounded to ``digits`` significant."""
     if x is None:
@@ -22,8 +19,16 @@ def clean(x: float | None, digits: int = 10) -> float | None:
     x = float(x)
     if not math.isfinite(x):
         return None
-    # a report calls this thousands of times: the format specification is built once
-    return float(format(x, _SPECS.get(digits) or f".{digits}g"))
+    # printf-style "%.*g" writes what format(x, ".<digits>g") writes, with less overhead (a
+    # report calls this over a thousand times)
+    return float("%.*g" % (digits, x))
+
+
+def clean_all(values, digits: int = 10) -> list[float | None]:
+    """:func:`clean` of every value of a sequence or numpy array, in one pass."""
+    isfinite = math.isfinite
+    return [None if x is None or not isfinite(x) else float("%.*g" % (digits, x))
+            for x in (values.tolist() if hasattr(values, "tolist") else values)]
 
 
 @dataclass(frozen=True)
