@@ -35,6 +35,7 @@ a row nobody set (recovery without a target) has ``basis: "none"`` and is never 
 
 from __future__ import annotations
 
+import math
 from collections import defaultdict
 from dataclasses import dataclass
 
@@ -165,18 +166,18 @@ def repeatability(fit: FitResult, outcomes) -> Repeatability | None:
     # x * m(pH_group) / m(pH_run), m the expected recovery rd/(1+rd) or remainder 1/(1+rd)
     scale = np.where(recovery, rd_group / rd_run, 1.0) * (1.0 + rd_run) / (1.0 + rd_group)
     adjusted = x * scale
-    groups, rows = {}, []
+    means, ss = acc.group_mean_ss(adjusted, sizes)
+    rows = []
     for k, ((label, quantity), _) in enumerate(kept):
         a, b = starts[k], starts[k + 1]
-        values_k = adjusted[a:b]
-        mean = float(values_k.mean())
-        groups[(label, quantity)] = values_k
+        mean = means[k]
         rows.append({"label": label, "quantity": quantity,
                      "runs": [obs.run_ids[i] for i in idx[a:b]], "pH": clean(ph_group[a], 6),
                      "n": int(b - a), "mean_pct": clean(mean),
-                     "rsd_pct": clean(float(100.0 * values_k.std(ddof=1) / mean))})
-    quantities = tuple(q for q in QUANTITY_WORDS if any(k[1] == q for k in groups))
-    return Repeatability(acc.pooled_rsd(list(groups.values())), quantities, tuple(rows))
+                     "rsd_pct": clean(100.0 * math.sqrt(ss[k] / (b - a - 1)) / mean)})
+    quantities = tuple(q for q in QUANTITY_WORDS if any(key[1] == q for key, _ in kept))
+    pooled = acc.pooled_rsd([adjusted[starts[k]:starts[k + 1]] for k in range(len(kept))])
+    return Repeatability(pooled, quantities, tuple(rows))
 
 
 def lack_of_fit(fit: FitResult) -> acc.LackOfFit:
@@ -216,30 +217,36 @@ def ratio_agreement(fit: FitResult, limit: float) -> list[tuple[float, acc.Ratio
     differences between flasks do not count as disagreement.
     """
     obs = fit.obs
-    log_d = np.full(obs.n, np.nan)
     r = 10.0 ** obs.log_ratio
     lo, hi = ONE_PHASE_RANGE
-    rd = r * 10.0 ** np.asarray(fit.log_d(obs.pH), dtype=float)
+    fitted = np.asarray(fit.log_d(obs.pH), dtype=float)
+    rd = r * 10.0 ** fitted
     e_fit = rd / (1.0 + rd)
-    for i, (kind, y) in enumerate(zip(obs.kind, obs.y)):
-        v = 10.0 ** y
-        if kind == LOG_D:
-            log_d[i] = y
-        elif lo < e_fit[i] < hi:
-            e = v if kind == LOG_E else 1.0 - v
-            if 0.0 < e < 1.0:
-                log_d[i] = np.log10(e / (1.0 - e) / r[i])
-    out = []
+    # log D of each run: directly, or read off the one measured phase where the fitted
+    # fraction lies in ONE_PHASE_RANGE (NaN where it does not enter)
+    is_d = np.array([kind == LOG_D for kind in obs.kind], dtype=bool)
+    v = 10.0 ** obs.y
+    e = np.where([kind == LOG_E for kind in obs.kind], v, 1.0 - v)
+    one_phase = ~is_d & (lo < e_fit) & (e_fit < hi) & (0.0 < e) & (e < 1.0)
+    log_d = np.where(is_d, obs.y, np.nan)
+    log_d[one_phase] = np.log10(e[one_phase] / (1.0 - e[one_phase]) / r[one_phase])
+    ratio_key = [float(f"{x:.4g}") for x in r.tolist()]
+    clusters = []
     for idx in _ph_clusters(obs.pH):
         idx = idx[np.isfinite(log_d[idx])]
-        ratios = {float(f"{x:.4g}") for x in r[idx]}
-        if len(ratios) < 2:
-            continue
-        ph_mean = float(np.mean(obs.pH[idx]))
-        shift = float(fit.log_d(ph_mean)) - fit.log_d(obs.pH[idx])
+        if len({ratio_key[i] for i in idx.tolist()}) >= 2:
+            clusters.append(idx)
+    if not clusters:
+        return []
+    # each value moved to its cluster's mean pH along the fitted curve: the model at every
+    # cluster's mean pH in one call (the runs' own pH were evaluated above)
+    ph_means = [float(np.mean(obs.pH[idx])) for idx in clusters]
+    at_means = np.asarray(fit.log_d(ph_means), dtype=float).tolist()
+    out = []
+    for idx, ph_mean, at_mean in zip(clusters, ph_means, at_means):
         values: dict[float, list[float]] = defaultdict(list)
-        for i, s in zip(idx, shift):
-            values[float(f"{r[i]:.4g}")].append(float(log_d[i] + s))
+        for i, moved in zip(idx.tolist(), (log_d[idx] + (at_mean - fitted[idx])).tolist()):
+            values[ratio_key[i]].append(moved)
         out.append((ph_mean, acc.ratio_agreement(dict(values), limit)))
     return out
 

@@ -375,6 +375,21 @@ def test_pooled_rsd_refuses_non_positive_mean():
         acc.pooled_rsd([[-0.1, 0.1]])
 
 
+def test_group_mean_ss_is_numpy_per_group():
+    # reference: numpy's mean and sample sd of each group alone; to the last bit when no
+    # group has 8 values or more (replicate groups of a study), within rounding otherwise
+    rng = np.random.default_rng(7)
+    for sizes, exact in (([1, 2, 3, 2, 7, 5, 2], True), ([2, 3, 12, 1], False)):
+        groups = [rng.uniform(40.0, 110.0, n) for n in sizes]
+        means, ss = acc.group_mean_ss(np.concatenate(groups), sizes)
+        for g, mean, s in zip(groups, means, ss):
+            assert mean == (np.mean(g) if exact else pytest.approx(np.mean(g), rel=1e-14))
+            if g.size > 1:
+                sd = math.sqrt(s / (g.size - 1))
+                assert sd == (np.std(g, ddof=1) if exact
+                              else pytest.approx(np.std(g, ddof=1), rel=1e-12))
+
+
 # ------------------------------------------------------------------------------ ratio agreement
 
 
