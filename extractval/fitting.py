@@ -357,8 +357,7 @@ class FitResult:
             value, se = self._log_d_wald_at(key)
             return value - self.t95 * se
         if self.boundary is not None:
-            lo = float(self.boundary.log_d_range(self, key)[0][0])
-            return None if np.isnan(lo) else lo
+            return self.boundary.log_d_lower(self, key)
         return self._log_d_end(key, -1)
 
     @property
@@ -622,9 +621,9 @@ def _traced_steps(fit: FitResult, j: int) -> tuple[float, float] | None:
         fit._trace = _Boundary(fit)
     if not fit._trace.traced:
         return None
-    lo, hi = fit._trace.range_of(fit._trace.points[:, j][:, None])
+    lo, hi = fit._trace.parameter_ranges
     value = float(fit.theta[j])
-    return value - float(lo[0]), float(hi[0]) - value
+    return value - float(lo[j]), float(hi[j]) - value
 
 
 def _fill_parameters(fit: FitResult, intervals: bool) -> None:
@@ -633,8 +632,9 @@ def _fill_parameters(fit: FitResult, intervals: bool) -> None:
     for j, name in enumerate(fit.model.params):
         value, se = float(fit.theta[j]), float(se_all[j])
         wald = Interval(value - fit.t95 * se, value + fit.t95 * se, "Wald")
-        at_bound = bool(np.isclose(value, lo_b[j], atol=1e-6)
-                        or np.isclose(value, hi_b[j], atol=1e-6))
+        # np.isclose(value, limit, atol=1e-6) in scalars: |value - limit| <= 1e-6 + 1e-5 |limit|
+        at_bound = any(abs(value - limit) <= 1e-6 + 1e-5 * abs(limit)
+                       for limit in (float(lo_b[j]), float(hi_b[j])))
         reasons: dict[int, str] = {}
         if intervals and fit.rss > _NOISE_FREE_RSS * fit.n:
             prof = _Profile(fit, param=j)
@@ -1110,30 +1110,33 @@ class _Boundary:
         self.points = theta + radius[:, None] * directions(m)
         self.traced = True
 
+    @cached_property
+    def parameter_ranges(self) -> tuple[np.ndarray, np.ndarray]:
+        """Least and greatest value of each parameter over the boundary (each of shape (p,)):
+        the first steps of the parameters' profiles and the check of the trace share them."""
+        return self.range_of(self.points)
+
     def reproduces(self, fit: FitResult) -> bool:
         """Do the traced ranges of the parameters match their profile intervals?"""
+        lo, hi = self.parameter_ranges
         for j, name in enumerate(fit.model.params):
             ci = fit.parameters[name].ci95
             if ci.lo is None or ci.hi is None or ci.method != INTERVAL_METHOD:
                 return False
-            lo, hi = self.range_of(self.points[:, j][:, None])
             tol = BOUNDARY_REL_TOL * 0.5 * (ci.hi - ci.lo) + BOUNDARY_ABS_TOL
-            if abs(lo[0] - ci.lo) > tol or abs(hi[0] - ci.hi) > tol:
+            if abs(lo[j] - ci.lo) > tol or abs(hi[j] - ci.hi) > tol:
                 return False
         return True
 
     @staticmethod
-    def _range_1d(g: np.ndarray) -> tuple[float, float]:
-        """:meth:`range_of` for one quantity, in scalars (the common call, one pH at a time)."""
-        n = g.size
-        ends = []
-        for sign in (-1.0, 1.0):
-            i = int(np.argmax(sign * g))
-            a, b, c = sign * g[i - 1], sign * g[i], sign * g[(i + 1) % n]
-            curv = a - 2.0 * b + c
-            shift = min(max(0.5 * (a - c) / curv, -1.0), 1.0) if curv < 0 else 0.0
-            ends.append(sign * (b - 0.25 * (a - c) * shift))
-        return ends[0], ends[1]
+    def _end_1d(g: np.ndarray, sign: float) -> float:
+        """:meth:`range_of` for one quantity and one end (sign -1: least, +1: greatest), in
+        scalars (the common call, one pH at a time)."""
+        i = int(np.argmax(g)) if sign > 0 else int(np.argmin(g))
+        a, b, c = sign * g.item(i - 1), sign * g.item(i), sign * g.item((i + 1) % g.size)
+        curv = a - 2.0 * b + c
+        shift = min(max(0.5 * (a - c) / curv, -1.0), 1.0) if curv < 0 else 0.0
+        return sign * (b - 0.25 * (a - c) * shift)
 
     @staticmethod
     def range_of(g: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -1155,8 +1158,8 @@ class _Boundary:
     def log_d_range(self, fit: FitResult, pH) -> tuple[np.ndarray, np.ndarray]:
         """Ends of the 95 % interval of log D at each pH (NaN beyond LOG_D_LIMITS: open)."""
         if np.ndim(pH) == 0:
-            g = self.points[:, 0] + fit.model.h(float(pH), *self.points[:, 1:].T)
-            lo, hi = (np.array([x]) for x in self._range_1d(g))
+            g = self._log_d_at(fit, pH)
+            lo, hi = np.array([self._end_1d(g, -1.0)]), np.array([self._end_1d(g, 1.0)])
         else:
             pH = np.asarray(pH, dtype=float)
             g = self.points[:, :1] + fit.model.h(pH[None, :], *[self.points[:, k:k + 1]
@@ -1165,3 +1168,13 @@ class _Boundary:
         lo = np.where(lo <= LOG_D_LIMITS[0], np.nan, lo)
         hi = np.where(hi >= LOG_D_LIMITS[1], np.nan, hi)
         return lo, hi
+
+    def log_d_lower(self, fit: FitResult, pH0: float) -> float | None:
+        """The lower end alone of :meth:`log_d_range` at one pH, None where open."""
+        lo = self._end_1d(self._log_d_at(fit, pH0), -1.0)
+        return lo if lo > LOG_D_LIMITS[0] else None
+
+    def _log_d_at(self, fit: FitResult, pH0: float) -> np.ndarray:
+        """log D at one pH at each point of the boundary."""
+        return self.points[:, 0] + fit.model.h(float(pH0), *self.points[:, 1:].T)
+

@@ -106,24 +106,19 @@ def predict_procedure(fit: FitResult, procedure: Procedure,
     est = fit.log_d_interval(p.pH)
     method = f"{est.ci95.method}, mapped from log D at pH {p.pH:g}"
 
-    def rem(x):
-        return chem.remaining_fraction(_ratio(x), p.aqueous_mL, p.organic_mL)
-
-    def rec(x):
-        return recovery_pct_from_log_d(x, p.aqueous_mL, p.organic_mL)
-
-    value, lo, hi = _at_ends(rec, est)
+    # the remaining fraction after each portion at the value and the ends of log D; after
+    # the last portion it is the procedure's, and the recovery is 100 (1 - q) of it (what
+    # recovery_pct_from_log_d computes)
+    after_each = [_at_ends(lambda x, n=n: chem.remaining_fraction(_ratio(x), p.aqueous_mL,
+                                                                  p.organic_mL[:n]), est)
+                  for n in range(1, len(p.organic_mL) + 1)]
+    q = after_each[-1]
+    value, lo, hi = (None if x is None else 100.0 * (1.0 - x) for x in q)
     recovery = ValueInterval(value, Interval(lo, hi, method),
                              _prediction_interval(fit, est, value))
     # the remaining fractions fall as log D rises: the upper end of log D gives their lower end
-    value, lo, hi = _at_ends(rem, est)
-    remaining = ValueInterval(value, Interval(hi, lo, method))
-    after = []
-    for n in range(1, len(p.organic_mL) + 1):
-        def rem_n(x, n=n):
-            return chem.remaining_fraction(_ratio(x), p.aqueous_mL, p.organic_mL[:n])
-        value, lo, hi = _at_ends(rem_n, est)
-        after.append(ValueInterval(value, Interval(hi, lo, method)))
+    remaining = ValueInterval(q[0], Interval(q[2], q[1], method))
+    after = [ValueInterval(value, Interval(hi, lo, method)) for value, lo, hi in after_each]
 
     def split(x):
         return chem.split_limit_remaining(_ratio(x), p.aqueous_mL, p.total_organic_mL)
@@ -203,7 +198,7 @@ def log_d_band(fit: FitResult, step: float = BAND_STEP) -> LogDBand:
 
 
 def _recovery_lower(log_d_lo: float | None, aqueous_mL: float, organic_mL) -> float | None:
-    if log_d_lo is None or not np.isfinite(log_d_lo):
+    if log_d_lo is None or not math.isfinite(log_d_lo):
         return None
     return float(recovery_pct_from_log_d(log_d_lo, aqueous_mL, organic_mL))
 
