@@ -857,9 +857,9 @@ def pooled_rsd(
     """
     items = groups_of_values.values() if isinstance(groups_of_values, Mapping) else groups_of_values
     groups = [np.asarray(values, dtype=float).ravel() for values in items]
-    for k, x in enumerate(groups):
-        if not np.all(np.isfinite(x)):
-            raise ValueError(f"pooled RSD: group {k} has values that are not finite numbers")
+    if groups and not np.all(np.isfinite(np.concatenate(groups))):
+        k = next(k for k, x in enumerate(groups) if not np.all(np.isfinite(x)))
+        raise ValueError(f"pooled RSD: group {k} has values that are not finite numbers")
     pooled = [k for k, x in enumerate(groups) if x.size >= 2]
     per_group: list[float | None] = [None] * len(groups)
     if not pooled:
@@ -1001,18 +1001,19 @@ def ratio_agreement(
     values: list[float] = []
     owner: list[Hashable] = []
     for ratio, v in log_d_values_by_ratio.items():
-        arr = np.atleast_1d(np.asarray(v, dtype=float)).ravel()
-        if not np.all(np.isfinite(arr)):
-            raise ValueError(
-                f"ratio agreement: ratio {ratio!r} has log D values that are not finite numbers"
-            )
+        arr = np.asarray(v, dtype=float).ravel()
         values.extend(arr.tolist())
         owner.extend([ratio] * arr.size)
+    x = np.asarray(values, dtype=float)
+    if not np.all(np.isfinite(x)):
+        ratio = owner[int(np.flatnonzero(~np.isfinite(x))[0])]
+        raise ValueError(
+            f"ratio agreement: ratio {ratio!r} has log D values that are not finite numbers"
+        )
     ratios = set(owner)
     if len(ratios) < 2:
         return RatioAgreement(len(ratios), len(values), None, None, None, None, None, None,
                               float(limit), None)
-    x = np.asarray(values)
     mean = float(np.mean(x))
     dev = np.abs(x - mean)
     i = int(np.argmax(dev))

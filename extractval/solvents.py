@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import re
 from dataclasses import dataclass
+from functools import lru_cache
 
 # -- sources --------------------------------------------------------------------------------
 CRC = "CRC Handbook, Physical Constants of Organic Compounds (as tabulated in chemicals 1.5.2)"
@@ -246,7 +247,13 @@ def match_solvents(organic) -> SolventMatch:
     >>> [s.name for s in m.solvents], m.unmatched
     (['cyclohexane'], 'diisopropyl ether')
     """
-    named = "" if organic is None else str(organic)
+    return _match("" if organic is None else str(organic))
+
+
+@lru_cache(maxsize=256)
+def _match(named: str) -> SolventMatch:
+    """:func:`match_solvents` of the name as written; kept per name, since a report asks twice
+    (next-run advice, solvent cautions) and the studies of a dossier share a few solvents."""
     text = _normalise(named)
     found: list[tuple[int, str]] = []
     for pattern, name in _PATTERNS:

@@ -168,15 +168,16 @@ def repeatability(fit: FitResult, outcomes) -> Repeatability | None:
     adjusted = x * scale
     means, ss = acc.group_mean_ss(adjusted, sizes)
     rows = []
-    for k, ((label, quantity), _) in enumerate(kept):
-        a, b = starts[k], starts[k + 1]
-        mean = means[k]
+    ids, ph_runs, bounds = idx.tolist(), ph_group.tolist(), starts.tolist()
+    for k, ((label, quantity), _), mean, ss_k in zip(range(len(kept)), kept, means.tolist(),
+                                                     ss.tolist()):
+        a, b = bounds[k], bounds[k + 1]
         rows.append({"label": label, "quantity": quantity,
-                     "runs": [obs.run_ids[i] for i in idx[a:b]], "pH": clean(ph_group[a], 6),
-                     "n": int(b - a), "mean_pct": clean(mean),
-                     "rsd_pct": clean(100.0 * math.sqrt(ss[k] / (b - a - 1)) / mean)})
+                     "runs": [obs.run_ids[i] for i in ids[a:b]], "pH": clean(ph_runs[a], 6),
+                     "n": b - a, "mean_pct": clean(mean),
+                     "rsd_pct": clean(100.0 * math.sqrt(ss_k / (b - a - 1)) / mean)})
     quantities = tuple(q for q in QUANTITY_WORDS if any(key[1] == q for key, _ in kept))
-    pooled = acc.pooled_rsd([adjusted[starts[k]:starts[k + 1]] for k in range(len(kept))])
+    pooled = acc.pooled_rsd([adjusted[a:b] for a, b in zip(bounds, bounds[1:])])
     return Repeatability(pooled, quantities, tuple(rows))
 
 
