@@ -114,11 +114,11 @@ class Candidates:
 
     def observations(self, idx, y=None) -> Observations:
         idx = np.asarray(idx, dtype=int)
-        kinds = tuple(FORM_KIND[self.form[i]] for i in idx)
-        return Observations(tuple(f"next-{j + 1}" for j in range(idx.size)), self.pH[idx],
-                            np.log10(self.ratio[idx]), kinds,
+        kinds = tuple(FORM_KIND[self.form[i]] for i in idx.tolist())
+        ids = tuple(f"next-{j + 1}" for j in range(idx.size))
+        return Observations(ids, self.pH[idx], np.log10(self.ratio[idx]), kinds,
                             np.zeros(idx.size) if y is None else np.asarray(y, dtype=float),
-                            tuple(f"next-{j + 1}" for j in range(idx.size)))
+                            ids)
 
     def run(self, i: int) -> dict:
         return {"pH": clean(self.pH[i], 6), "ratio": clean(self.ratio[i], 6),
@@ -346,19 +346,16 @@ def build_candidates(fit: FitResult, study: Study, pH_range: tuple[float, float]
     lo, hi = pH_range
     grid = np.round(np.arange(np.ceil(lo / PH_STEP - 1e-9) * PH_STEP, hi + 1e-9, PH_STEP),
                     6) + 0.0
-    pH, rat, form, block = [], [], [], []
-    for f in forms:
-        for r in ([main] if FORM_KIND[f] == LOG_D else ratios):
-            pH.extend(grid)
-            rat.extend([r] * grid.size)
-            form.extend([f] * grid.size)
-            block.extend([len(set(block))] * grid.size)
-    pH = np.array(pH, dtype=float)
+    # one block of the pH grid per (form, ratio), in order of preference
+    blocks = [(f, r) for f in forms for r in ([main] if FORM_KIND[f] == LOG_D else ratios)]
+    pH = np.tile(grid, len(blocks))
+    block = np.repeat(np.arange(len(blocks)), grid.size)
     # among equally good runs, the one that extrapolates least from the measured pH
     outside = np.maximum(fit.obs.pH.min() - pH, 0.0) + np.maximum(pH - fit.obs.pH.max(), 0.0)
     preference = np.empty(pH.size, dtype=int)
-    preference[np.lexsort((outside, np.array(block)))] = np.arange(pH.size)
-    return Candidates(pH, np.array(rat, dtype=float), tuple(form), preference)
+    preference[np.lexsort((outside, block))] = np.arange(pH.size)
+    return Candidates(pH, np.repeat(np.array([r for _, r in blocks], dtype=float), grid.size),
+                      tuple(f for f, _ in blocks for _ in range(grid.size)), preference)
 
 
 def _by_frequency(items: list) -> list:
@@ -424,13 +421,14 @@ def predicted_variance(fit: FitResult, c: np.ndarray, rows: np.ndarray) -> float
 
 
 def _greedy(m_inv: np.ndarray, c: np.ndarray, x: np.ndarray, k: int,
-            preference: np.ndarray) -> tuple[list[int], list]:
+            preference: np.ndarray, first: np.ndarray | None = None) -> tuple[list[int], list]:
     """Greedy c-optimal batch: the run that lowers c'M^-1c most, then again given it, k times.
-    Returns the chosen indices and c'M^-1c after each choice."""
+    Returns the chosen indices and c'M^-1c after each choice. ``first`` is
+    ``_after_one(m_inv, c, x)`` when the caller has it already (the single-run ranking)."""
     chosen, crit = [], []
     m_inv = m_inv.copy()
-    for _ in range(k):
-        v = _after_one(m_inv, c, x)
+    for j in range(k):
+        v = first if j == 0 and first is not None else _after_one(m_inv, c, x)
         i = _argmin_stable(v, preference)
         chosen.append(i)
         crit.append(float(v[i]))
@@ -460,8 +458,11 @@ def _ties(scores: np.ndarray, rel: float) -> np.ndarray:
 
 def _argmin_stable(v: np.ndarray, preference: np.ndarray) -> int:
     """The best run; among runs equal to round-off, the study's own form and ratio first,
-    then the one nearest the measured pH."""
-    return int(np.lexsort((preference, _ties(v, TIE["linearised"])))[0])
+    then the one nearest the measured pH (the first of a lexsort by ties, then preference,
+    found without sorting: preference ranks every candidate differently)."""
+    ties = _ties(v, TIE["linearised"])
+    best = np.flatnonzero(ties == ties.min())
+    return int(best[np.argmin(preference[best])])
 
 
 def _ranked_distinct(cands: Candidates, scores: np.ndarray, n: int,
@@ -572,7 +573,7 @@ def advise(fit: FitResult, study: Study,
 
     before = width(float(c @ m_inv @ c), 0)
     single_crit = _after_one(m_inv, c, x)
-    greedy, crit = _greedy(m_inv, c, x, max(BATCH_SIZES), cands.preference)
+    greedy, crit = _greedy(m_inv, c, x, max(BATCH_SIZES), cands.preference, single_crit)
     weak = weak_reasons(fit, target)
     notes = []
     if target.kind == "parameter" and target.name == "logK" and fit.p == 1:

@@ -98,7 +98,7 @@ def build_observations(runs, ph_tolerance: float = PH_TOLERANCE,
                        ) -> tuple[Observations, tuple[RunOutcome, ...]]:
     """The fitted runs' observations, each with its precision group (replicates.py), and how
     every run entered the fit."""
-    outcomes, ids, pH, lr, kinds, ys, fitted = [], [], [], [], [], [], []
+    outcomes, ids, pH, ratios, kinds, ys, fitted = [], [], [], [], [], [], []
     for run in runs:
         if run.excluded:
             outcomes.append(RunOutcome(run, "excluded", run.excluded))
@@ -123,14 +123,15 @@ def build_observations(runs, ph_tolerance: float = PH_TOLERANCE,
         outcomes.append(RunOutcome(run, "used", note, kind, y, len(ids)))
         ids.append(run.run_id)
         pH.append(run.pH)
-        lr.append(np.log10(run.volume_ratio))
+        ratios.append(run.volume_ratio)
         kinds.append(kind)
         ys.append(y)
         fitted.append(run)
     key = precision_groups(fitted, ph_tolerance).key_of()
     groups = [key[rid] for rid in ids]
-    obs = Observations(tuple(ids), np.array(pH, dtype=float), np.array(lr, dtype=float),
-                       tuple(kinds), np.array(ys, dtype=float), tuple(groups))
+    obs = Observations(tuple(ids), np.array(pH, dtype=float),
+                       np.log10(np.array(ratios, dtype=float)), tuple(kinds),
+                       np.array(ys, dtype=float), tuple(groups))
     return obs, tuple(outcomes)
 
 
