@@ -50,6 +50,7 @@ class DossierPlugin(BasePlugin[DossierConfig]):
         super().__init__()
         self.prepared: site.Prepared | None = None     # set by `extractval build`
         self._blocks: dict[str, list[str]] = {}
+        self._late: dict[str, list[str]] = {}          # late_html's blocks, by page
         self._done: set[str] = set()     # files already written with this build's values
 
     def _studies(self, config) -> Path:
@@ -70,10 +71,14 @@ class DossierPlugin(BasePlugin[DossierConfig]):
         return config
 
     def on_files(self, files, *, config):
+        self._late.clear()
         for path, content in sorted(self.prepared.files.items()):
             old = files.get_file_from_path(path)
             if old is not None:
                 files.remove(old)
+            if path.endswith(".md") and LATE_OPEN.encode() in content:
+                text, self._late[path] = set_aside_late(content.decode("utf-8"))
+                content = text.encode("utf-8")
             files.append(File.generated(config, path, content=content))
         for path, source in sorted(self.prepared.linked.items()):
             old = files.get_file_from_path(path)
@@ -98,6 +103,7 @@ class DossierPlugin(BasePlugin[DossierConfig]):
     def on_post_page(self, output, *, page, config):
         output = put_back_html(output, self._blocks.pop(page.file.src_uri, ()),
                                searchable=False)
+        output = put_back_late(output, self._late.pop(page.file.src_uri, ()))
         p = self.prepared
         if p is not None and p.tokens and not (p.page_cache is not None
                                                and page.file.src_uri in p.page_keys):
@@ -254,6 +260,59 @@ def put_back_html(html: str, blocks, searchable: bool) -> str:
 
 
 _PLACEHOLDER = re.compile(r"<!--xv-block-(\d+)-->")
+
+#: the markers of a part of a page that the site generator is not to read (set_aside_late)
+LATE_OPEN, LATE_CLOSE = "<!--xv-late-->", "<!--/xv-late-->"
+_LATE_PLACEHOLDER = re.compile(r"<!--xv-late-(\d+)-->")
+
+
+def set_aside_late(markdown: str) -> tuple[str, list[str]]:
+    r"""Replace each part between ``<!--xv-late-->`` and ``<!--/xv-late-->`` (markers
+    included) by a placeholder comment: (text, parts).
+
+    A template marks so a part that is finished HTML, that nobody searches for and that is
+    large: the number register's citation lines (tens of megabytes for hundreds of studies).
+    The generator then never reads, converts or parses it; the part is put back, as it was,
+    into the finished page (:func:`put_back_late`), which is what Python-Markdown itself
+    gives for a raw HTML part standing between blank lines (tests/test_site_build.py). Found
+    with plain string searches, not line by line.
+
+    >>> set_aside_late("a
+
+<!--xv-late-->
+<div>x</div>
+<!--/xv-late-->
+
+b")
+    ('a
+
+<!--xv-late-0-->
+
+b', ['<!--xv-late-->
+<div>x</div>
+<!--/xv-late-->'])
+    """
+    out: list[str] = []
+    parts: list[str] = []
+    at = 0
+    while (start := markdown.find(LATE_OPEN, at)) >= 0:
+        end = markdown.find(LATE_CLOSE, start)
+        if end < 0:
+            break                     # never closed: left for the generator, as it is
+        end += len(LATE_CLOSE)
+        out += [markdown[at:start], f"<!--xv-late-{len(parts)}-->"]
+        parts.append(markdown[start:end])
+        at = end
+    out.append(markdown[at:])
+    return "".join(out), parts
+
+
+def put_back_late(html: str, parts) -> str:
+    """The parts set aside by :func:`set_aside_late` back at their placeholders."""
+    if not parts:
+        return html
+    return _LATE_PLACEHOLDER.sub(
+        lambda m: parts[int(m.group(1))] if int(m.group(1)) < len(parts) else m.group(0), html)
 
 
 def docs_dir(config_file: Path) -> Path:
