@@ -277,20 +277,8 @@ def set_aside_late(markdown: str) -> tuple[str, list[str]]:
     gives for a raw HTML part standing between blank lines (tests/test_site_build.py). Found
     with plain string searches, not line by line.
 
-    >>> set_aside_late("a
-
-<!--xv-late-->
-<div>x</div>
-<!--/xv-late-->
-
-b")
-    ('a
-
-<!--xv-late-0-->
-
-b', ['<!--xv-late-->
-<div>x</div>
-<!--/xv-late-->'])
+    >>> set_aside_late("a\n\n<!--xv-late-->\n<div>x</div>\n<!--/xv-late-->\n\nb")
+    ('a\n\n<!--xv-late-0-->\n\nb', ['<!--xv-late-->\n<div>x</div>\n<!--/xv-late-->'])
     """
     out: list[str] = []
     parts: list[str] = []
