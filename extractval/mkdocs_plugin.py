@@ -26,8 +26,8 @@ from mkdocs.structure.files import File  # noqa: E402
 
 from . import site  # noqa: E402
 from .versions import VERSIONS  # noqa: E402
-from .report.pages import PRINT, study_url  # noqa: E402
-from .report.printview import PrintedStudy, assemble  # noqa: E402
+from .report.pages import PRINT, study_page_path, study_url  # noqa: E402
+from .report.printview import PrintedStudy, assemble, study_body  # noqa: E402
 
 #: the print page's folder in the site (directory URLs)
 PRINT_DIR = PRINT[:-len(".md")]
@@ -50,7 +50,9 @@ class DossierPlugin(BasePlugin[DossierConfig]):
         super().__init__()
         self.prepared: site.Prepared | None = None     # set by `extractval build`
         self._blocks: dict[str, list[str]] = {}
-        self._late: dict[str, list[str]] = {}          # late_html's blocks, by page
+        self._late: dict[str, list[str]] = {}          # set_aside_late's parts, by page
+        #: each study's body of the print page, with the tokens, kept with its page
+        self._print_bodies: dict[str, str] = {}
         self._done: set[str] = set()     # files already written with this build's values
 
     def _studies(self, config) -> Path:
@@ -139,22 +141,31 @@ class DossierPlugin(BasePlugin[DossierConfig]):
         self._print_page(root)
 
     def _print_page(self, root: Path) -> None:
-        """Put every study page's finished content into the print page (printview)."""
+        """Put every study page's finished content into the print page (printview): the
+        bodies kept with the pages in this build, else made from the written pages."""
         target = root / PRINT_DIR / "index.html"
+        kept, self._print_bodies = self._print_bodies, {}
         if self.prepared is None or not target.is_file():
             return
-        studies = []
-        for study_id in sorted(o.study_id for o in self.prepared.outcomes):
-            folder = study_url(study_id)
-            page = root / folder / "index.html"
-            if page.is_file():
-                studies.append(PrintedStudy(study_id, folder,
-                                            page.read_text(encoding="utf-8")))
-        html = target.read_text(encoding="utf-8")
+        bodies = []
         try:
-            target.write_text(assemble(html, studies, PRINT_DIR + "/"), encoding="utf-8")
+            for study_id in sorted(o.study_id for o in self.prepared.outcomes):
+                body = kept.get(study_id)
+                if body is None:
+                    folder = study_url(study_id)
+                    page = root / folder / "index.html"
+                    if not page.is_file():
+                        continue
+                    body = study_body(PrintedStudy(study_id, folder,
+                                                   page.read_text(encoding="utf-8")),
+                                      PRINT_DIR + "/")
+                bodies.append((study_id, body))
         except ValueError as exc:
             raise PluginError(f"the print page: {exc}") from None
+        html = assemble(target.read_text(encoding="utf-8"), bodies)
+        for token, value in self.prepared.tokens.items():
+            html = html.replace(token, value)
+        target.write_text(html, encoding="utf-8")
 
     def on_env(self, env, *, config, files):
         """Keep the theme's compiled templates between builds, beside the page cache."""
@@ -380,6 +391,23 @@ def _reusing_pages(cfg, plugin: DossierPlugin, prepared: site.Prepared):
         yield
         return
     tokens, kept = prepared.tokens, reused
+    studies = {study_page_path(o.study_id): o.study_id for o in prepared.outcomes}
+    plugin._print_bodies.clear()
+
+    def keep_print_body(uri: str, html: bytes) -> None:
+        """The study's body of the print page, kept with its page (its key)."""
+        study_id = studies.get(uri)
+        if study_id is None:
+            return
+        body = cache.get_print(uri, keys[uri])
+        if body is None:
+            try:
+                body = study_body(PrintedStudy(study_id, study_url(study_id),
+                                               html.decode("utf-8")), PRINT_DIR + "/")
+            except ValueError:
+                return          # _print_page makes it from the written page and says why
+            cache.put_print(uri, keys[uri], body)
+        plugin._print_bodies[study_id] = body
 
     def populate_page(page, config, files, dirty=False):
         if page.file.src_uri in kept:
@@ -399,6 +427,7 @@ def _reusing_pages(cfg, plugin: DossierPlugin, prepared: site.Prepared):
         if uri in kept:
             html, found = kept[uri]
             write(page, html)
+            keep_print_body(uri, html)
             if entries is not None:
                 entries.extend(found)
             return None
@@ -409,6 +438,7 @@ def _reusing_pages(cfg, plugin: DossierPlugin, prepared: site.Prepared):
                 html = fh.read()
             cache.put(uri, keys[uri], html, [] if entries is None else entries[n0:])
             write(page, html)
+            keep_print_body(uri, html)
         return out
 
     _mkdocs_build_module._populate_page = populate_page

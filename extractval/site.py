@@ -170,6 +170,11 @@ def draw(text: str) -> dict[str, bytes]:
     return study_plots(json.loads(text))
 
 
+def _import_plots() -> None:
+    """A drawing worker's first task: the plotting's imports, while the studies are fitted."""
+    from .report import plots  # noqa: F401
+
+
 def compute(study) -> tuple[str, dict[str, bytes]]:
     """Fit one study: its dict as JSON text, and its plots. Runs in a worker process."""
     text = fit_report(study)
@@ -388,7 +393,8 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
 
     ``meanwhile`` is called with the studies the cache held while worker processes fit the
     others (with two or more cores, even for one study: the fit's imports of scipy and
-    matplotlib then cost this process nothing, and it reads what it will need next).
+    matplotlib then cost this process nothing, and it reads what it will need next; one
+    more worker draws the plots).
 
     File names in messages are given relative to ``display_root`` (the studies folder's
     parent), so that a page does not depend on where the build was started.
@@ -456,19 +462,27 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
 
     jobs = jobs or (os.cpu_count() or 1)
     if todo and len(todo) < jobs and meanwhile is not None:
-        # a few studies changed: workers fit them (and import scipy) while this process
-        # reads ahead and imports matplotlib, then draws their plots itself
-        with _pool(len(todo)) as pool:
+        # a few studies changed: workers fit them (importing scipy) while another imports
+        # the plotting and then draws each study as its fit arrives, and this process reads
+        # ahead: the three overlap instead of the plotting waiting for the reading
+        with _pool(len(todo)) as pool, _pool(1) as drawer:
+            drawer.submit(_import_plots)
             started = {pool.submit(fit_report, study): (src, study, key, time.perf_counter())
                        for src, study, key in todo}
             meanwhile([o for o in outcomes.values() if o.cached])
-            from .report import plots  # noqa: F401  (the import, while the workers fit)
-
+            drawing = {}
             for fut in as_completed(started):
                 src, study, key, t0 = started[fut]
                 try:
                     text = fut.result()
-                    drawn = draw(text)
+                except Exception as exc:
+                    failed(src, study, exc)
+                    continue
+                drawing[drawer.submit(draw, text)] = (src, study, key, t0, text)
+            for fut in as_completed(drawing):
+                src, study, key, t0, text = drawing[fut]
+                try:
+                    drawn = fut.result()
                 except Exception as exc:
                     failed(src, study, exc)
                     continue
@@ -640,9 +654,9 @@ def _page_keys(outcomes: list[Outcome], site_nav: list, base: str) -> dict[str, 
 class PageCache:
     """Finished HTML pages (with the tokens, not this build's version and date) and their
     search-index entries, one entry per page: ``<root>/pages/<page-hash>/<key>.html`` and
-    ``.json``; and each study's parts of the pages listing every study
-    (``<root>/parts/<study-hash>/<key>.json``). Written whole or not at all; safe to
-    delete."""
+    ``.json`` (and a study page's body of the print page, ``.print.html``); and each
+    study's parts of the pages listing every study (``<root>/parts/<study-hash>/<key>.json``).
+    Written whole or not at all; safe to delete."""
 
     def __init__(self, root: Path):
         self.root = Path(root) / "pages"
@@ -675,6 +689,24 @@ class PageCache:
                 with os.fdopen(fd, "wb") as fh:
                     fh.write(data)
                 os.replace(tmp, folder / (key + suffix))
+        except OSError:
+            pass        # a cache that cannot be written only costs time
+
+    def get_print(self, page: str, key: str) -> str | None:
+        """A study page's body of the print page (printview.study_body), kept with it."""
+        try:
+            return (self._folder(page) / (key + ".print.html")).read_text(encoding="utf-8")
+        except (OSError, ValueError):
+            return None
+
+    def put_print(self, page: str, key: str, body: str) -> None:
+        folder = self._folder(page)
+        try:
+            folder.mkdir(parents=True, exist_ok=True)
+            fd, tmp = tempfile.mkstemp(prefix=".tmp-", dir=folder)
+            with os.fdopen(fd, "wb") as fh:
+                fh.write(body.encode("utf-8"))
+            os.replace(tmp, folder / (key + ".print.html"))
         except OSError:
             pass        # a cache that cannot be written only costs time
 

@@ -7,7 +7,7 @@ from __future__ import annotations
 import pytest
 
 from extractval.report.printview import (MARKER, PrintedStudy, article, assemble, rebase_url,
-                                         study_section)
+                                         study_body, study_section)
 
 
 def _page(body: str) -> str:
@@ -58,11 +58,12 @@ def test_assemble_puts_every_study_at_the_marker_with_its_running_head():
     studies = [PrintedStudy(s, f"studies/{s}/", _page(f'<h1 id="t">Study {s}</h1>'))
                for s in ("A-1", 'B"2')]
     page = _page(f"<h1>All</h1>\n<p>{MARKER}</p>")
-    out = assemble(page, studies, "print/")
+    bodies = [(s.study_id, study_body(s, "print/")) for s in studies]
+    out = assemble(page, bodies)
     assert MARKER not in out
     assert out.index("Study A-1</h1>") < out.index("Study B\"2</h1>")
     assert '@page xv-study-0 { @top-left { content: "Study A-1"; } }' in out
     # a quote in a study id cannot end the CSS string of the running head
     assert '@page xv-study-1 { @top-left { content: "Study B\\22 2"; } }' in out
     assert out.count('class="xv-print-study"') == 2
-    assert assemble("<p>no marker</p>", studies, "print/") == "<p>no marker</p>"
+    assert assemble("<p>no marker</p>", bodies) == "<p>no marker</p>"

@@ -111,12 +111,15 @@ def test_an_unreadable_page_cache_entry_is_made_again(project, tmp_path):
 class Made:
     """Counts, by page or study, what a build makes: pages rendered from their template, the
     study parts of the pages listing every study, pages converted by the generator (its
-    Markdown step, seen by the plugin's hook) and pages it builds (its per-page step)."""
+    Markdown step, seen by the plugin's hook), pages it builds (its per-page step) and
+    studies whose body of the print page is made from their page."""
 
     def __init__(self, monkeypatch):
         self.rendered, self.parts = collections.Counter(), collections.Counter()
         self.converted, self.built = collections.Counter(), collections.Counter()
+        self.printed = collections.Counter()
         study_page, study_parts = pages.Pages.study_page, pages.Pages.study_parts
+        study_body = mkdocs_plugin.study_body
         on_markdown = mkdocs_plugin.DossierPlugin.on_page_markdown
         build_page = mkdocs_build._build_page
 
@@ -136,6 +139,11 @@ class Made:
             self.built[page.file.src_uri] += 1
             return build_page(page, *args, **kwargs)
 
+        def count_print(study, to_dir):
+            self.printed[study.study_id] += 1
+            return study_body(study, to_dir)
+
+        monkeypatch.setattr(mkdocs_plugin, "study_body", count_print)
         monkeypatch.setattr(pages.Pages, "study_page", count_page)
         monkeypatch.setattr(pages.Pages, "study_parts", count_parts)
         monkeypatch.setattr(mkdocs_plugin.DossierPlugin, "on_page_markdown", count_markdown)
@@ -152,9 +160,10 @@ def test_unchanged_studies_are_neither_rendered_nor_converted_again(project, tmp
     # the counters see a cold build make every page once
     assert sorted(cold.rendered) == ["SYN-001", "SYN-002", "SYN-003"]
     assert all(cold.built[p] == 1 and cold.converted[p] == 1 for p in studies)
+    assert cold.printed == {"SYN-001": 1, "SYN-002": 1, "SYN-003": 1}
     change_one_run(project, "SYN-002")
     made = Made(monkeypatch)
-    # two workers: the changed study is fitted in a worker process, its plots drawn here
+    # two workers: the changed study is fitted in a worker process, its plots drawn in another
     second = build(project, tmp_path / "b", cache, jobs=2)
     assert [o.study_id for o in second.prepared.outcomes if not o.cached] == ["SYN-002"]
     assert made.rendered == {"SYN-002": 1}
@@ -163,6 +172,8 @@ def test_unchanged_studies_are_neither_rendered_nor_converted_again(project, tmp
     for page in ("studies/SYN-001/index.md", "studies/SYN-003/index.md"):
         assert made.built[page] == 0 and made.converted[page] == 0
     assert made.built["studies/SYN-002/index.md"] == 1
+    # the print page takes the unchanged studies' sections as kept with their pages
+    assert made.printed == {"SYN-002": 1}
     # the pages that list every study are made every build, from the kept parts
     for page in ("index.md", "register.md", "changes.md"):
         assert made.built[page] == 1

@@ -5,7 +5,8 @@ has written every study page, :func:`assemble` puts each study page's content (i
 ``<article>``) at the marker, one section per study, each on its own named CSS page whose
 running head names the study. Working on the finished HTML costs a few string operations
 per study: nothing is rendered or converted a second time, so a study page kept from the
-last build is not made again for the print page either.
+last build is not made again for the print page either, and its section's body is kept with
+it (:func:`study_body`).
 
 Each section's relative links are rebased from the study page's folder to the print page's,
 and its ids (and the links to them inside the section) get the study's prefix, so headings
@@ -89,8 +90,9 @@ def _section_id(study_id: str) -> str:
     return "print-" + re.sub(r"[^A-Za-z0-9_-]", "-", study_id)
 
 
-def study_section(study: PrintedStudy, index: int, to_dir: str) -> str:
-    """One study's content for the print page, on the named CSS page ``xv-study-<index>``."""
+def study_body(study: PrintedStudy, to_dir: str) -> str:
+    """One study's content for the print page, its links rebased to ``to_dir`` and its ids
+    prefixed. It depends on the study page alone, so a build keeps it with the page."""
     body = _PAGE_STYLE.sub("", article(study.html))
     prefix = _section_id(study.study_id) + "--"
 
@@ -101,9 +103,18 @@ def study_section(study: PrintedStudy, index: int, to_dir: str) -> str:
         return f'{m.group(1)}="{rebase_url(value, study.folder, to_dir)}"'
 
     body = _URL_ATTR.sub(url, body)
-    body = _ID_ATTR.sub(lambda m: f'{m.group(1)}="{prefix}{m.group(2)}"', body)
-    return (f'<section class="xv-print-study" id="{html_attr(_section_id(study.study_id))}" '
+    return _ID_ATTR.sub(lambda m: f'{m.group(1)}="{prefix}{m.group(2)}"', body)
+
+
+def section(study_id: str, body: str, index: int) -> str:
+    """A study's body (:func:`study_body`) on the named CSS page ``xv-study-<index>``."""
+    return (f'<section class="xv-print-study" id="{html_attr(_section_id(study_id))}" '
             f'style="page: xv-study-{index}">\n{body}\n</section>')
+
+
+def study_section(study: PrintedStudy, index: int, to_dir: str) -> str:
+    """One study's content for the print page, on the named CSS page ``xv-study-<index>``."""
+    return section(study.study_id, study_body(study, to_dir), index)
 
 
 def page_rules(study_ids: list[str]) -> str:
@@ -115,11 +126,11 @@ def page_rules(study_ids: list[str]) -> str:
     return f"<style>{rules}</style>"
 
 
-def assemble(print_html: str, studies: list[PrintedStudy], to_dir: str) -> str:
-    """The print page with every study's section at its marker (the page unchanged when it
-    has no marker)."""
+def assemble(print_html: str, bodies: list[tuple[str, str]]) -> str:
+    """The print page with every study's section at its marker, from (study id, body) in
+    print order (the page unchanged when it has no marker)."""
     if MARKER not in print_html:
         return print_html
-    parts = [page_rules([s.study_id for s in studies])]
-    parts += [study_section(s, i, to_dir) for i, s in enumerate(studies)]
+    parts = [page_rules([study_id for study_id, _ in bodies])]
+    parts += [section(study_id, body, i) for i, (study_id, body) in enumerate(bodies)]
     return print_html.replace(MARKER, "\n".join(parts), 1)
