@@ -1,5 +1,6 @@
 /* Copy a number's citation line: the buttons beside the numbers (class xv-copy) carry it in
-   data-cite. navigator.clipboard needs a secure context (https or localhost); over plain http
+   data-cite; in the register, where the line is shown, a button copies the line it stands in
+   (its code.xv-cite). navigator.clipboard needs a secure context (https or localhost); over plain http
    on an intranet the text is copied through a hidden text area, and where even that is refused
    it is shown selected in a prompt for Ctrl+C. Nothing is fetched from anywhere. */
 (function () {
@@ -43,7 +44,12 @@
       return;
     }
     event.preventDefault();
-    var text = button.getAttribute("data-cite") || "";
+    var text = button.getAttribute("data-cite");
+    if (text === null) {
+      var line = button.closest(".xv-reg");
+      var code = line ? line.querySelector("code.xv-cite") : null;
+      text = code ? code.textContent : "";
+    }
     if (navigator.clipboard && window.isSecureContext) {
       navigator.clipboard.writeText(text).then(function () {
         mark(button, true);

@@ -211,10 +211,17 @@ def test_copy_button_copies_the_citation_line(served, browser_context, demo_ids)
         if not without_api:
             assert page.evaluate("navigator.clipboard.readText()") == expected
         page.close()
+    # the register's button copies the line it stands in (it carries no copy of it)
     page = browser_context.new_page()
     page.goto(f"{served}register/")
     line = page.locator(f'[id="{study_id}/logK"] code.xv-cite').inner_text()
     assert line == expected
+    button = page.locator(f'[id="{study_id}/logK"] .xv-copy')
+    assert button.get_attribute("data-cite") is None
+    button.click()
+    page.wait_for_function("b => b.getAttribute('data-copied') === 'yes'",
+                           arg=button.element_handle())
+    assert page.evaluate("navigator.clipboard.readText()") == expected
     page.close()
 
 

@@ -226,7 +226,7 @@ class StudyView:
                     "description": q.description,
                     "statistic": n.statistic,
                     "citation": self.citation(q, n),
-                    "button": copy_button(n.identifier, self.citation(q, n), ""),
+                    "button": copy_button(n.identifier, None, ""),   # copies the line
                 })
         return rows
 
@@ -270,21 +270,23 @@ class StudyView:
         return study_status(self.d)
 
 
-def copy_button(identifier: str, citation: str, register_url: str,
+def copy_button(identifier: str, citation: str | None, register_url: str,
                 anchor: str | None = None, shown: str | None = None) -> Markup:
     """A number's id with a button that copies its citation line (assets/extractval.js; works
     offline, with a fallback where navigator.clipboard is missing, e.g. over plain http).
     With ``register_url`` the id links to the number's line in the register; ``shown`` is the
-    id as written there (on a study page: without the study id, which heads the page)."""
+    id as written there (on a study page: without the study id, which heads the page).
+    Without ``citation`` the button copies the line it stands in (``p.xv-reg``: the register,
+    where the line is shown anyway; the page is then half the size)."""
     ident = html_attr(identifier)
     id_attr = f' id="{html_attr(anchor)}"' if anchor else ""
     label = (f'<a class="xv-id-link" href="{html_attr(register_url)}#{ident}" '
              f'title="{ident} in the register">{md_text(shown or identifier)}</a>'
              if register_url else "")
+    cite = "" if citation is None else f' data-cite="{html_attr(citation)}"'
     return Markup(f'<span class="xv-idcell"{id_attr}>{label}<button type="button" '
-                  f'class="xv-copy" data-cite="{html_attr(citation)}" title="Copy the '
-                  f'citation line of {ident}" aria-label="Copy the citation line of {ident}">'
-                  f'copy</button></span>')
+                  f'class="xv-copy"{cite} title="Copy the citation line of {ident}" '
+                  f'aria-label="Copy the citation line of {ident}">copy</button></span>')
 
 
 def all_verdicts(d: dict) -> list[dict]:
