@@ -223,9 +223,13 @@ class FitResult:
         return float(np.sqrt(self.rss / self.dof))
 
     @cached_property
+    def _jtj_pinv(self) -> np.ndarray:
+        """(J'J)^+ at the estimate: the covariance and the leverages both need it."""
+        return np.linalg.pinv(self.jac.T @ self.jac, rcond=1e-12)
+
+    @cached_property
     def covariance(self) -> np.ndarray:
-        jtj = self.jac.T @ self.jac
-        return self.residual_sd ** 2 * np.linalg.pinv(jtj, rcond=1e-12)
+        return self.residual_sd ** 2 * self._jtj_pinv
 
     @cached_property
     def correlation(self) -> np.ndarray:
@@ -260,7 +264,7 @@ class FitResult:
     def studentized_residuals(self) -> np.ndarray:
         """Internally studentized residuals e_i / (s sqrt(1 - h_ii))."""
         j = self.jac
-        h = np.einsum("ij,jk,ik->i", j, np.linalg.pinv(j.T @ j, rcond=1e-12), j)
+        h = np.einsum("ij,jk,ik->i", j, self._jtj_pinv, j)
         return self.weighted_residuals / (self.residual_sd * np.sqrt(np.clip(1 - h, 1e-12, None)))
 
     @property

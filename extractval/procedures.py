@@ -434,7 +434,7 @@ def design_space(band: LogDBand, procedures, target_pct: float | None,
         q = np.exp(-np.sum(np.log1p(D[:, None, None] * portions / aqueous_mL), axis=-1))
         rec = 100.0 * (1.0 - q)
         # what clean(x, 6) gives, inline: ~1000 cells per study, all finite where lo is
-        table.append([[float(format(x, ".6g")) for x in row] if np.isfinite(lo)
+        table.append([[float("%.6g" % x) for x in row] if np.isfinite(lo)
                       else [None] * len(row) for lo, row in zip(band.lo, rec.tolist())])
     span = (float(band.pH[0]), float(band.pH[-1]))
     return {

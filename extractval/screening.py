@@ -14,6 +14,7 @@ side by side so a reader sees how much the flags matter.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -41,10 +42,10 @@ class Flag:
 
 def screen(fit: FitResult) -> list[Flag]:
     flags: list[Flag] = []
-    t = fit.studentized_residuals
+    t = fit.studentized_residuals.tolist()
     for rid, ti in zip(fit.obs.run_ids, t):
-        if np.isfinite(ti) and abs(ti) > STUDENTIZED_LIMIT:
-            flags.append(Flag(rid, "studentized residual", "flag", float(ti),
+        if math.isfinite(ti) and abs(ti) > STUDENTIZED_LIMIT:
+            flags.append(Flag(rid, "studentized residual", "flag", ti,
                               f"|t| = {abs(ti):.2f} > {STUDENTIZED_LIMIT:g}"))
     groups: dict[tuple, list[int]] = {}
     for i, key in enumerate(zip(fit.obs.replicate_key, fit.obs.kind)):
