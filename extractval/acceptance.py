@@ -861,24 +861,46 @@ def pooled_rsd(
         k = next(k for k, x in enumerate(groups) if not np.all(np.isfinite(x)))
         raise ValueError(f"pooled RSD: group {k} has values that are not finite numbers")
     pooled = [k for k, x in enumerate(groups) if x.size >= 2]
-    per_group: list[float | None] = [None] * len(groups)
     if not pooled:
-        return PooledRSD(None, 0, 0, 0, tuple(per_group), "no group with two or more values")
+        return PooledRSD(None, 0, 0, 0, (None,) * len(groups), "no group with two or more values")
     sizes = [groups[k].size for k in pooled]
     means, ss = group_mean_ss(np.concatenate([groups[k] for k in pooled]), sizes)
+    found = pooled_rsd_from_moments(sizes, means, ss, pooled)
+    per_group: list[float | None] = [None] * len(groups)
+    for k, rsd in zip(pooled, found.group_rsd_pct):
+        per_group[k] = rsd
+    return PooledRSD(found.rsd_pct, found.df, found.n_groups, found.n_values, tuple(per_group))
+
+
+def pooled_rsd_from_moments(sizes: Sequence[int], means: np.ndarray, ss: np.ndarray,
+                            names: Sequence[Hashable] | None = None) -> PooledRSD:
+    """:func:`pooled_rsd` of groups of two or more values given by their sizes, means and sums
+    of squared deviations (:func:`group_mean_ss`), for a caller that has these already;
+    ``names`` label the groups in errors (default: their positions).
+
+    >>> means, ss = group_mean_ss(np.array([99.0, 101.0, 49.0, 51.0, 50.0]), [2, 3])
+    >>> round(pooled_rsd_from_moments([2, 3], means, ss).rsd_pct, 3)
+    1.826
+    """
+    names = range(len(sizes)) if names is None else names
     num = 0.0
     df = 0
-    for k, n, mean, ss_group in zip(pooled, sizes, means.tolist(), ss.tolist()):
+    per_group = []
+    for k, n, mean, ss_group in zip(names, sizes, np.asarray(means).tolist(),
+                                    np.asarray(ss).tolist()):
+        if not (math.isfinite(mean) and math.isfinite(ss_group)):
+            raise ValueError(f"pooled RSD: group {k} has values that are not finite numbers")
         if not mean > 0.0:
             raise ValueError(
                 f"pooled RSD: group {k} has mean {mean:g}; a relative SD needs positive values "
                 "(give D or recovery, not log D)"
             )
         rel = math.sqrt(ss_group / (n - 1)) / mean
-        per_group[k] = 100.0 * rel
+        per_group.append(100.0 * rel)
         num += (n - 1) * rel * rel
         df += n - 1
-    return PooledRSD(100.0 * math.sqrt(num / df), df, len(pooled), sum(sizes), tuple(per_group))
+    return PooledRSD(100.0 * math.sqrt(num / df), df, len(per_group), int(sum(sizes)),
+                     tuple(per_group))
 
 
 def group_mean_ss(values: np.ndarray, sizes: Sequence[int]) -> tuple[np.ndarray, np.ndarray]:

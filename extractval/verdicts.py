@@ -177,7 +177,7 @@ def repeatability(fit: FitResult, outcomes) -> Repeatability | None:
                      "n": b - a, "mean_pct": clean(mean),
                      "rsd_pct": clean(100.0 * math.sqrt(ss_k / (b - a - 1)) / mean)})
     quantities = tuple(q for q in QUANTITY_WORDS if any(key[1] == q for key, _ in kept))
-    pooled = acc.pooled_rsd([adjusted[a:b] for a, b in zip(bounds, bounds[1:])])
+    pooled = acc.pooled_rsd_from_moments(sizes, means, ss)
     return Repeatability(pooled, quantities, tuple(rows))
 
 

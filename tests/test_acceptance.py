@@ -390,6 +390,16 @@ def test_group_mean_ss_is_numpy_per_group():
                               else pytest.approx(np.std(g, ddof=1), rel=1e-12))
 
 
+def test_pooled_rsd_from_moments_is_pooled_rsd_usp1010():
+    # the same USP <1010> runs, given as sizes, means and squared deviations
+    runs = [np.asarray(g, dtype=float) for g in ref.USP1010_RUNS]
+    sizes = [g.size for g in runs]
+    means, ss = acc.group_mean_ss(np.concatenate(runs), sizes)
+    assert acc.pooled_rsd_from_moments(sizes, means, ss) == acc.pooled_rsd(ref.USP1010_RUNS)
+    with pytest.raises(ValueError, match="group b has values that are not finite"):
+        acc.pooled_rsd_from_moments([2, 2], [1.0, np.inf], [0.1, 0.1], ["a", "b"])
+
+
 # ------------------------------------------------------------------------------ ratio agreement
 
 
