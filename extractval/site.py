@@ -862,8 +862,9 @@ def sweep_leftovers(site_dir: Path) -> None:
         shutil.rmtree(p, ignore_errors=True)
 
 
-def publish(built: Path, site_dir: Path) -> None:
-    """Put the finished site in place of the old one (two renames on the same disk)."""
+def publish(built: Path, site_dir: Path, later: bool = False) -> None:
+    """Put the finished site in place of the old one (two renames on the same disk); the old
+    one is then removed, ``later`` by a process of its own (:func:`remove_later`)."""
     if site_dir.exists():
         old = Path(tempfile.mkdtemp(prefix=_leftover(site_dir, "old"), dir=site_dir.parent))
         os.rmdir(old)
@@ -873,9 +874,41 @@ def publish(built: Path, site_dir: Path) -> None:
         except BaseException:
             os.replace(old, site_dir)
             raise
-        shutil.rmtree(old, ignore_errors=True)
+        if later:
+            remove_later(old)
+        else:
+            shutil.rmtree(old, ignore_errors=True)
     else:
         os.replace(built, site_dir)
+
+
+def remove_later(folder: Path) -> None:
+    """Remove ``folder`` in a detached process, so that a build returns as soon as its site
+    is published (a site of hundreds of studies is thousands of files: ~0.3 s to delete).
+
+    POSIX only, and only while this process runs one thread (forking a threaded process is
+    unsafe); otherwise the folder is removed now. The folder is first renamed after the
+    process removing it, so a build starting meanwhile leaves it alone (sweep_leftovers
+    clears folders of processes that no longer run, such as one killed halfway).
+    """
+    if not hasattr(os, "fork") or threading.active_count() != 1:
+        shutil.rmtree(folder, ignore_errors=True)
+        return
+    site_name = folder.name.split(".old-", 1)[0].lstrip(".")
+    pid = os.fork()
+    if pid == 0:                            # the child: start the remover and leave at once
+        try:
+            if os.fork() == 0:              # the remover, adopted by init when the child ends
+                os.setsid()
+                mine = folder.with_name(f".{site_name}.old-{os.getpid()}-removing")
+                try:
+                    os.replace(folder, mine)
+                except OSError:
+                    mine = folder
+                shutil.rmtree(mine, ignore_errors=True)
+        finally:
+            os._exit(0)
+    os.waitpid(pid, 0)
 
 
 @dataclass
@@ -891,8 +924,12 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
           keep_going: bool = False, cache_dir: Path | None = None, jobs: int = 0,
           progress: Callable[[str], None] | None = None,
           sources: list[Source] | None = None,
-          templates_dir: Path | None = None, archive: Path | None = None) -> BuildResult:
+          templates_dir: Path | None = None, archive: Path | None = None,
+          remove_old_later: bool = False) -> BuildResult:
     """The whole build; on any failure the published ``site_dir`` is left as it was.
+
+    With ``remove_old_later`` (the command line) the previous site is removed by a process
+    of its own once the new one is published (:func:`remove_later`).
 
     ``templates_dir`` replaces the configuration's ``docs_dir`` (the templates and CSS).
     Every version already published (in the site's versions/ and in ``archive``) is carried
@@ -954,7 +991,7 @@ def build(studies_dir: Path | None, site_dir: Path, config_file: Path, *,
                 os.environ["SOURCE_DATE_EPOCH"] = saved
         (tmp / MARKER).write_text(f"{prepared.dossier.version}\n", encoding="utf-8")
         os.chmod(tmp, 0o755)        # mkdtemp makes it private; a web server must read it
-        publish(tmp, site_dir)
+        publish(tmp, site_dir, later=remove_old_later)
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
@@ -1137,7 +1174,8 @@ def build_command(args) -> int:
                        keep_going=getattr(args, "keep_going", False), cache_dir=paths.cache,
                        jobs=getattr(args, "jobs", 0) or 0, progress=say,
                        templates_dir=paths.templates,
-                       archive=Path(args.archive) if getattr(args, "archive", None) else None)
+                       archive=Path(args.archive) if getattr(args, "archive", None) else None,
+                       remove_old_later=True)
     except SiteBuildError as exc:
         print(str(exc), file=sys.stderr)
         print("build failed: the published site was left as it was", file=sys.stderr)

@@ -352,6 +352,25 @@ def test_an_interrupted_build_leaves_the_site_and_no_half_built_folder(
     assert sorted(p.name for p in tmp_path.iterdir()) == ["site"]
 
 
+def test_the_old_site_removed_later_goes_in_a_process_of_its_own(tmp_path):
+    """`extractval build` returns once the new site is in place; a detached process
+    removes the old one (named after itself meanwhile, so a build starting then leaves it)."""
+    import time
+
+    old = tmp_path / ".site.old-1-abc"
+    for i in range(50):
+        (old / f"s{i}").mkdir(parents=True)
+        (old / f"s{i}" / "index.html").write_text("x", encoding="utf-8")
+    # in a process of one thread, as the command line is (pytest's may run others)
+    subprocess.run([sys.executable, "-c", "import sys; from pathlib import Path; "
+                    "from extractval.site import remove_later; remove_later(Path(sys.argv[1]))",
+                    str(old)], check=True, timeout=60, env=dict(os.environ, PYTHONPATH=str(ROOT)))
+    deadline = time.monotonic() + 30
+    while any(tmp_path.iterdir()) and time.monotonic() < deadline:
+        time.sleep(0.05)
+    assert list(tmp_path.iterdir()) == []
+
+
 def test_a_killed_build_leaves_the_site_and_the_next_build_clears_its_folder(
         built, studies, cache, env_epoch, tmp_path):
     """SIGKILL while the generator writes: nothing can clean up then, so the published site
