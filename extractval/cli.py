@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import signal
 import sys
 import threading
@@ -241,5 +242,19 @@ def main(argv: list[str] | None = None) -> int:
             signal.signal(signal.SIGTERM, saved)
 
 
+def run() -> None:
+    """The ``extractval`` command: :func:`main`, then, its output flushed, leave without the
+    interpreter's teardown, which only frees memory the process gives back anyway (0.1 s
+    after building a dossier of 200 studies). Every file was closed by then, the worker
+    processes were joined."""
+    code = main()
+    for stream in (sys.stdout, sys.stderr):
+        try:
+            stream.flush()
+        except (OSError, ValueError):       # closed, or its reader went away
+            pass
+    os._exit(code)
+
+
 if __name__ == "__main__":
-    sys.exit(main())
+    run()
