@@ -1023,24 +1023,23 @@ def ratio_agreement(
     values: list[float] = []
     owner: list[Hashable] = []
     for ratio, v in log_d_values_by_ratio.items():
-        arr = np.asarray(v, dtype=float).ravel()
-        values.extend(arr.tolist())
-        owner.extend([ratio] * arr.size)
-    x = np.asarray(values, dtype=float)
-    if not np.all(np.isfinite(x)):
-        ratio = owner[int(np.flatnonzero(~np.isfinite(x))[0])]
-        raise ValueError(
-            f"ratio agreement: ratio {ratio!r} has log D values that are not finite numbers"
-        )
+        given = [float(x) for x in np.ravel(v).tolist()]
+        if not all(math.isfinite(x) for x in given):
+            raise ValueError(
+                f"ratio agreement: ratio {ratio!r} has log D values that are not finite numbers"
+            )
+        values.extend(given)
+        owner.extend([ratio] * len(given))
     ratios = set(owner)
     if len(ratios) < 2:
         return RatioAgreement(len(ratios), len(values), None, None, None, None, None, None,
                               float(limit), None)
-    mean = float(np.mean(x))
-    dev = np.abs(x - mean)
-    i = int(np.argmax(dev))
-    max_dev = float(dev[i])
+    # a handful of values: plain Python, but the mean as numpy sums (pairwise from 8 values)
+    mean = float(np.mean(values))
+    dev = [abs(x - mean) for x in values]
+    i = dev.index(max(dev))         # the first of equal deviations, as np.argmax
+    lo, hi = min(values), max(values)
     return RatioAgreement(
-        len(ratios), int(x.size), mean, float(x.min()), float(x.max()),
-        float(x.max() - x.min()), max_dev, owner[i], float(limit), _at_most(max_dev, limit),
+        len(ratios), len(values), mean, lo, hi, hi - lo, dev[i], owner[i], float(limit),
+        _at_most(dev[i], limit),
     )

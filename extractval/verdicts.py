@@ -189,16 +189,16 @@ def lack_of_fit(fit: FitResult) -> acc.LackOfFit:
     return acc.lack_of_fit_test(fit.weighted_residuals, labels, fit.p)
 
 
-def _ph_clusters(pH: np.ndarray) -> list[np.ndarray]:
-    order = np.argsort(pH, kind="stable")
-    clusters, current = [], [order[0]] if len(order) else []
-    for a, b in zip(order, order[1:]):
-        if pH[b] - pH[a] > PH_CLUSTER_GAP:
-            clusters.append(np.array(current))
-            current = []
-        current.append(b)
-    if current:
-        clusters.append(np.array(current))
+def _ph_clusters(pH: list[float]) -> list[list[int]]:
+    """Indices of the runs at each nominal pH: in order of pH (ties in run order), a new
+    cluster wherever the step to the next run exceeds PH_CLUSTER_GAP."""
+    clusters: list[list[int]] = []
+    last = None
+    for i in sorted(range(len(pH)), key=pH.__getitem__):
+        if last is None or pH[i] - last > PH_CLUSTER_GAP:
+            clusters.append([])
+        clusters[-1].append(i)
+        last = pH[i]
     return clusters
 
 
@@ -232,10 +232,11 @@ def ratio_agreement(fit: FitResult, limit: float) -> list[tuple[float, acc.Ratio
     log_d = np.where(is_d, obs.y, np.nan)
     log_d[one_phase] = np.log10(e[one_phase] / (1.0 - e[one_phase]) / r[one_phase])
     ratio_key = [float(f"{x:.4g}") for x in r.tolist()]
+    log_d, fitted = log_d.tolist(), fitted.tolist()
     clusters = []
-    for idx in _ph_clusters(obs.pH):
-        idx = idx[np.isfinite(log_d[idx])]
-        if len({ratio_key[i] for i in idx.tolist()}) >= 2:
+    for idx in _ph_clusters(obs.pH.tolist()):
+        idx = [i for i in idx if math.isfinite(log_d[i])]
+        if len({ratio_key[i] for i in idx}) >= 2:
             clusters.append(idx)
     if not clusters:
         return []
@@ -246,8 +247,8 @@ def ratio_agreement(fit: FitResult, limit: float) -> list[tuple[float, acc.Ratio
     out = []
     for idx, ph_mean, at_mean in zip(clusters, ph_means, at_means):
         values: dict[float, list[float]] = defaultdict(list)
-        for i, moved in zip(idx.tolist(), (log_d[idx] + (at_mean - fitted[idx])).tolist()):
-            values[ratio_key[i]].append(moved)
+        for i in idx:
+            values[ratio_key[i]].append(log_d[i] + (at_mean - fitted[i]))
         out.append((ph_mean, acc.ratio_agreement(dict(values), limit)))
     return out
 
