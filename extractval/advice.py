@@ -498,7 +498,7 @@ class _Simulator:
         leaves a parameter at its search limit, counts as an open (infinite) width."""
         fit, obs = self.fit, self.fit.obs
         new = self.cands.observations(idx)
-        y_mean, _ = new.predict(fit.model.log_d(new.pH, fit.theta))
+        y_mean = new.predict_y(fit.model.log_d(new.pH, fit.theta))
         widths = []
         # new runs carry the error model's variance alone (no calibration share is known yet)
         extra = (None if obs.extra_var is None

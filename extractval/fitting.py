@@ -118,19 +118,28 @@ class Observations:
 
     def predict(self, log_d: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Predicted y and dy/dlogD for log D values (shape (..., n))."""
-        is_d, is_e, is_q = self._masks
+        _, is_e, is_q = self._masks
+        log_d = np.asarray(log_d, dtype=float)
+        y = self.predict_y(log_d)
+        slope = np.ones_like(log_d)
+        if is_e.any():
+            slope[..., is_e] = chem.fraction_of_pow10(-(log_d[..., is_e] + self.log_ratio[is_e]))
+        if is_q.any():
+            slope[..., is_q] = -chem.fraction_of_pow10(log_d[..., is_q] + self.log_ratio[is_q])
+        return y, slope
+
+    def predict_y(self, log_d: np.ndarray) -> np.ndarray:
+        """Predicted y alone for log D values (shape (..., n)): what a sum of squares needs."""
+        _, is_e, is_q = self._masks
         log_d = np.asarray(log_d, dtype=float)
         y = log_d.copy()
-        slope = np.ones_like(log_d)
         if is_e.any():
             z = log_d[..., is_e] + self.log_ratio[is_e]          # log10(r D)
             y[..., is_e] = -chem.log10_one_plus_pow10(-z)
-            slope[..., is_e] = chem.fraction_of_pow10(-z)
         if is_q.any():
             z = log_d[..., is_q] + self.log_ratio[is_q]
             y[..., is_q] = -chem.log10_one_plus_pow10(z)
-            slope[..., is_q] = -chem.fraction_of_pow10(z)
-        return y, slope
+        return y
 
     def implied_log_d(self) -> tuple[np.ndarray, np.ndarray]:
         """A rough log D per run (for start values) and its information weight."""
@@ -249,7 +258,7 @@ class FitResult:
 
     @cached_property
     def fitted(self) -> np.ndarray:
-        return self.obs.predict(self.model.log_d(self.obs.pH, self.theta))[0]
+        return self.obs.predict_y(self.model.log_d(self.obs.pH, self.theta))
 
     @cached_property
     def _r_hat(self) -> np.ndarray:
@@ -534,7 +543,7 @@ def _start_values(obs: Observations, model: LogDModel, n_best: int = 3) -> list[
             h = np.stack([model.h(obs.pH, *r) for r in rest])
     logk = np.sum(w * (implied - h), axis=1) / np.sum(w)
     log_d = logk[:, None] + h
-    y, _ = obs.predict(log_d)
+    y = obs.predict_y(log_d)
     s = np.sum(((y - obs.y) / obs.sd_factor) ** 2, axis=1)
     order = _grid_minima(rest, s)[:n_best]
     return [np.concatenate([[logk[i]], rest[i]]) for i in order]
@@ -1024,7 +1033,7 @@ def _batch_ss(fit: FitResult, thetas: np.ndarray) -> np.ndarray:
     obs = fit.obs
     rest = [thetas[:, k:k + 1] for k in range(1, thetas.shape[1])]
     log_d = thetas[:, :1] + fit.model.h(obs.pH[None, :], *rest)
-    r = (obs.predict(log_d)[0] - obs.y) / obs.sd_factor
+    r = (obs.predict_y(log_d) - obs.y) / obs.sd_factor
     return np.einsum("ij,ij->i", r, r)
 
 
