@@ -263,12 +263,14 @@ def worst_case(fit: FitResult, band: LogDBand, p: Procedure, span: Span | None =
     candidates = [lo_ph] + ([p.pH] if lo_ph <= p.pH <= hi_ph else []) + [hi_ph]
     inside = (band.pH > lo_ph) & (band.pH < hi_ph)
     candidates += [float(x) for x in band.pH[inside]]
+    # the predicted recovery at every candidate in one call (the array path, as for one pH)
+    predicted = recovery_pct_from_log_d(fit.log_d(candidates), aq, org).tolist()
     best = None
-    for x in candidates:
+    for x, rec in zip(candidates, predicted):
         rec_lo = _recovery_lower(fit.log_d_lower(x), aq, org)
         key = -np.inf if rec_lo is None else rec_lo
         if best is None or key < best[0]:
-            best = (key, x, rec_lo, float(recovery_pct_from_log_d(fit.log_d(x), aq, org)))
+            best = (key, x, rec_lo, rec)
     _, x, rec_lo, rec = best
     return {"recovery_pct": clean(rec_lo), "predicted_recovery_pct": clean(rec),
             "pH": clean(x, 6), "aqueous_mL": clean(aq), "organic_mL": [clean(v) for v in org],
