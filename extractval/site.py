@@ -170,9 +170,56 @@ def draw(text: str) -> dict[str, bytes]:
     return study_plots(json.loads(text))
 
 
-def _import_plots() -> None:
-    """A drawing worker's first task: the plotting's imports, while the studies are fitted."""
-    from .report import plots  # noqa: F401
+class _Drawer:
+    """A process that imports the plotting as soon as it starts and then draws the studies it
+    is sent (:func:`draw`), one at a time. A plain process and pipe, not a pool: the build
+    may still fork workers after starting it, and a pool would run threads by then."""
+
+    def __init__(self, method: str):
+        ctx = multiprocessing.get_context(method)
+        self._conn, child = ctx.Pipe()
+        self._proc = ctx.Process(target=_drawing_loop, args=(child,), daemon=True)
+        self._proc.start()
+        child.close()
+
+    def draw(self, text: str) -> dict[str, bytes]:
+        self._conn.send(text)
+        ok, value = self._conn.recv()
+        if not ok:
+            raise RuntimeError(value)
+        return value
+
+    def close(self) -> None:
+        try:
+            self._conn.send(None)
+        except OSError:
+            pass
+        self._conn.close()
+        self._proc.join(timeout=5)
+        if self._proc.is_alive():
+            self._proc.terminate()
+
+
+def _drawing_loop(conn) -> None:
+    """The drawer's life: the imports, then (ok, plots or the error) for each report text,
+    until told to stop or the build is gone."""
+    from .report import plots  # noqa: F401  (now, while the studies are read and fitted)
+
+    while True:
+        try:
+            text = conn.recv()
+        except (EOFError, OSError, KeyboardInterrupt):
+            return
+        if text is None:
+            return
+        try:
+            reply = (True, draw(text))
+        except Exception as exc:             # the build reports it as the study's failure
+            reply = (False, f"{type(exc).__name__}: {exc}")
+        try:
+            conn.send(reply)
+        except OSError:
+            return
 
 
 def compute(study) -> tuple[str, dict[str, bytes]]:
@@ -363,11 +410,14 @@ def _progress_line(i: int, n: int, o: Outcome) -> str:
     return f"{bar}{i:>{width}}/{n} {o.study_id:<20} {state:<14} {o.runs:>3} runs  {how}"
 
 
-def _pool(n_jobs: int) -> ProcessPoolExecutor:
+def _start_method() -> str:
     # fork is quick and safe while this is the only thread; otherwise (the preview server
     # runs threads) start clean workers
-    method = "fork" if threading.active_count() == 1 and sys.platform != "win32" else "spawn"
-    return ProcessPoolExecutor(n_jobs, mp_context=multiprocessing.get_context(method))
+    return "fork" if threading.active_count() == 1 and sys.platform != "win32" else "spawn"
+
+
+def _pool(n_jobs: int) -> ProcessPoolExecutor:
+    return ProcessPoolExecutor(n_jobs, mp_context=multiprocessing.get_context(_start_method()))
 
 
 @contextlib.contextmanager
@@ -399,120 +449,122 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
     File names in messages are given relative to ``display_root`` (the studies folder's
     parent), so that a page does not depend on where the build was started.
     """
-    outcomes: dict[str, Outcome] = {}
-    todo: list[tuple[Source, object, str]] = []
-    n, done = len(sources), 0
-
-    def report(o: Outcome) -> None:
-        nonlocal done
-        done += 1
-        outcomes[o.study_id] = o
-        if progress:
-            progress(_progress_line(done, n, o))
-
-    def from_cache(src, text, plots, meta) -> Outcome:
-        return Outcome(src.study_id, None, plots, [], meta["inputs_key"], meta["runs"],
-                       cached=True, text_sha=_sha(text), text=text,
-                       fit_problems=meta.get("problems"))
-
-    for src in sources:
-        t0 = time.perf_counter()
-        key = None
-        files = folder_files(src.folder)      # read once: the cache key, or the error key
-        if src.folder is not None and cache.root is not None and src.folder.is_dir():
-            shown = (os.path.relpath(src.folder, display_root) if display_root is not None
-                     else str(src.folder))
-            key = cache.folder_key(files, shown)
-            hit = cache.get(src.study_id, key)
-            if hit is not None:
-                report(from_cache(src, *hit))
-                continue
-        try:
-            with _working_folder(display_root):
-                study, errors = src.load()
-        except Exception as exc:       # a reader bug must not hide the other studies
-            study, errors = None, [f"{src.study_id}: the study could not be read "
-                                   f"({type(exc).__name__}: {exc}); this is a fault in "
-                                   "extractval, please report it"]
-        if study is None:
-            report(Outcome(src.study_id, None, {}, errors, _folder_key(files, errors),
-                           seconds=time.perf_counter() - t0))
-            continue
-        if key is None:
-            key = cache.key(study)
-            hit = cache.get(src.study_id, key)
-            if hit is not None:
-                report(from_cache(src, *hit))
-                continue
-        todo.append((src, study, key))
-
-    def finish(src, study, key, text, plots, seconds):
-        data = json.loads(text)
-        meta = {"inputs_key": inputs_key(study), "runs": len(study.runs),
-                "problems": list(data.get("problems", []))}
-        kept = cache.put(src.study_id, key, text, plots, meta)
-        report(Outcome(src.study_id, data, plots if kept is None else kept, [],
-                       meta["inputs_key"],
-                       meta["runs"], seconds=seconds, text_sha=_sha(text)))
-
-    def failed(src, study, exc):
-        report(Outcome(src.study_id, None, {}, [
-            f"{src.study_id}: the fit stopped ({type(exc).__name__}: {exc}); this is a fault "
-            "in extractval, please report it"], inputs_key(study), len(study.runs)))
-
     jobs = jobs or (os.cpu_count() or 1)
-    if todo and len(todo) < jobs and meanwhile is not None:
-        # a few studies changed: workers fit them (importing scipy) while another imports
-        # the plotting and then draws each study as its fit arrives, and this process reads
-        # ahead: the three overlap instead of the plotting waiting for the reading
-        with _pool(len(todo)) as pool, _pool(1) as drawer:
-            drawer.submit(_import_plots)
-            started = {pool.submit(fit_report, study): (src, study, key, time.perf_counter())
-                       for src, study, key in todo}
-            meanwhile([o for o in outcomes.values() if o.cached])
-            drawing = {}
-            for fut in as_completed(started):
-                src, study, key, t0 = started[fut]
-                try:
-                    text = fut.result()
-                except Exception as exc:
-                    failed(src, study, exc)
+    # a rebuild that fits a few studies draws them in a worker of its own: started first, it
+    # imports the plotting while this process looks the studies up in the cache
+    drawer = _Drawer(_start_method()) if meanwhile is not None and jobs > 1 else None
+    try:
+        outcomes: dict[str, Outcome] = {}
+        todo: list[tuple[Source, object, str]] = []
+        n, done = len(sources), 0
+
+        def report(o: Outcome) -> None:
+            nonlocal done
+            done += 1
+            outcomes[o.study_id] = o
+            if progress:
+                progress(_progress_line(done, n, o))
+
+        def from_cache(src, text, plots, meta) -> Outcome:
+            return Outcome(src.study_id, None, plots, [], meta["inputs_key"], meta["runs"],
+                           cached=True, text_sha=_sha(text), text=text,
+                           fit_problems=meta.get("problems"))
+
+        for src in sources:
+            t0 = time.perf_counter()
+            key = None
+            files = folder_files(src.folder)      # read once: the cache key, or the error key
+            if src.folder is not None and cache.root is not None and src.folder.is_dir():
+                shown = (os.path.relpath(src.folder, display_root) if display_root is not None
+                         else str(src.folder))
+                key = cache.folder_key(files, shown)
+                hit = cache.get(src.study_id, key)
+                if hit is not None:
+                    report(from_cache(src, *hit))
                     continue
-                drawing[drawer.submit(draw, text)] = (src, study, key, t0, text)
-            for fut in as_completed(drawing):
-                src, study, key, t0, text = drawing[fut]
-                try:
-                    drawn = fut.result()
-                except Exception as exc:
-                    failed(src, study, exc)
+            try:
+                with _working_folder(display_root):
+                    study, errors = src.load()
+            except Exception as exc:       # a reader bug must not hide the other studies
+                study, errors = None, [f"{src.study_id}: the study could not be read "
+                                       f"({type(exc).__name__}: {exc}); this is a fault in "
+                                       "extractval, please report it"]
+            if study is None:
+                report(Outcome(src.study_id, None, {}, errors, _folder_key(files, errors),
+                               seconds=time.perf_counter() - t0))
+                continue
+            if key is None:
+                key = cache.key(study)
+                hit = cache.get(src.study_id, key)
+                if hit is not None:
+                    report(from_cache(src, *hit))
                     continue
-                finish(src, study, key, text, drawn, time.perf_counter() - t0)
-    elif todo and jobs > 1 and (len(todo) >= 3 or meanwhile is not None):
-        with _pool(min(jobs, len(todo))) as pool:
-            started = {pool.submit(compute, study): (src, study, key, time.perf_counter())
-                       for src, study, key in todo}
+            todo.append((src, study, key))
+
+        def finish(src, study, key, text, plots, seconds):
+            data = json.loads(text)
+            meta = {"inputs_key": inputs_key(study), "runs": len(study.runs),
+                    "problems": list(data.get("problems", []))}
+            kept = cache.put(src.study_id, key, text, plots, meta)
+            report(Outcome(src.study_id, data, plots if kept is None else kept, [],
+                           meta["inputs_key"],
+                           meta["runs"], seconds=seconds, text_sha=_sha(text)))
+
+        def failed(src, study, exc):
+            report(Outcome(src.study_id, None, {}, [
+                f"{src.study_id}: the fit stopped ({type(exc).__name__}: {exc}); this is a fault "
+                "in extractval, please report it"], inputs_key(study), len(study.runs)))
+
+        if todo and len(todo) < jobs and drawer is not None:
+            # a few studies changed: workers fit them (importing scipy) while the drawer
+            # imports the plotting and then draws each study as its fit arrives, and this
+            # process reads ahead: the three overlap instead of waiting for each other
+            with _pool(len(todo)) as pool:
+                started = {pool.submit(fit_report, study): (src, study, key, time.perf_counter())
+                           for src, study, key in todo}
+                meanwhile([o for o in outcomes.values() if o.cached])
+                for fut in as_completed(started):
+                    src, study, key, t0 = started[fut]
+                    try:
+                        text = fut.result()
+                    except Exception as exc:
+                        failed(src, study, exc)
+                        continue
+                    try:
+                        drawn = drawer.draw(text)
+                    except Exception as exc:
+                        failed(src, study, exc)
+                        continue
+                    finish(src, study, key, text, drawn, time.perf_counter() - t0)
+        elif todo and jobs > 1 and (len(todo) >= 3 or meanwhile is not None):
+            with _pool(min(jobs, len(todo))) as pool:
+                started = {pool.submit(compute, study): (src, study, key, time.perf_counter())
+                           for src, study, key in todo}
+                if meanwhile is not None:
+                    meanwhile([o for o in outcomes.values() if o.cached])
+                for fut in as_completed(started):
+                    src, study, key, t0 = started[fut]
+                    try:
+                        text, plots = fut.result()
+                    except Exception as exc:
+                        failed(src, study, exc)
+                        continue
+                    finish(src, study, key, text, plots, time.perf_counter() - t0)
+        else:
             if meanwhile is not None:
                 meanwhile([o for o in outcomes.values() if o.cached])
-            for fut in as_completed(started):
-                src, study, key, t0 = started[fut]
+            for src, study, key in todo:
+                t0 = time.perf_counter()
                 try:
-                    text, plots = fut.result()
+                    text, plots = compute(study)
                 except Exception as exc:
                     failed(src, study, exc)
                     continue
                 finish(src, study, key, text, plots, time.perf_counter() - t0)
-    else:
-        if meanwhile is not None:
-            meanwhile([o for o in outcomes.values() if o.cached])
-        for src, study, key in todo:
-            t0 = time.perf_counter()
-            try:
-                text, plots = compute(study)
-            except Exception as exc:
-                failed(src, study, exc)
-                continue
-            finish(src, study, key, text, plots, time.perf_counter() - t0)
-    return [outcomes[s.study_id] for s in sources]
+        return [outcomes[s.study_id] for s in sources]
+    finally:
+        if drawer is not None:
+            drawer.close()
 
 
 def dossier_version(outcomes: list[Outcome], templates_dir: Path, config_file: Path | None) -> str:
