@@ -356,33 +356,38 @@ class StudyReport:
                 "fine": {"pH": clean_all(fine, 6), "log_d": clean_all(self.fit.log_d(fine), 6)}}
 
     def run_rows(self) -> list[dict]:
-        rows = []
+        runs = [o.run for o in self.outcomes]
+        # each numeric column cleaned in one pass (clean_all), not one call per cell
+        col = {name: clean_all([getattr(r, name) for r in runs])
+               for name in ("pH", "aqueous_mL", "organic_mL", "volume_ratio", "mass_balance_pct",
+                            "spiked", "found_aqueous", "found_organic", "recovery_pct")}
+        ys = clean_all([o.y for o in self.outcomes])
         if self.fit is not None:
             # the model at every run's pH in one call, not one call per run
-            fitted_log_ds = self.fit.log_d([o.run.pH for o in self.outcomes]).tolist()
-            fitted = self.fit.fitted.tolist()
-            residual = self.fit.weighted_residuals.tolist()
-            studentized = self.fit.studentized_residuals.tolist()
-        for k, o in enumerate(self.outcomes):
-            r = o.run
+            fitted_log_ds = self.fit.log_d([r.pH for r in runs]).tolist()
+            fitted_log_d_col = clean_all(fitted_log_ds)
+            fitted = clean_all(self.fit.fitted)
+            residual = clean_all(self.fit.weighted_residuals)
+            studentized = clean_all(self.fit.studentized_residuals)
+        rows = []
+        for k, (o, r) in enumerate(zip(self.outcomes, runs)):
             row = {
-                "run": r.run_id, "pH": clean(r.pH), "aqueous_mL": clean(r.aqueous_mL),
-                "organic_mL": clean(r.organic_mL), "volume_ratio": clean(r.volume_ratio),
+                "run": r.run_id, "pH": col["pH"][k], "aqueous_mL": col["aqueous_mL"][k],
+                "organic_mL": col["organic_mL"][k], "volume_ratio": col["volume_ratio"][k],
                 "measurement": r.measurement, "replicate": r.replicate, "status": o.status,
-                "reason": o.reason, "note": r.note, "mass_balance_pct": clean(r.mass_balance_pct),
-                "spiked": clean(r.spiked), "found_aqueous": clean(r.found_aqueous),
-                "found_organic": clean(r.found_organic), "recovery_pct": clean(r.recovery_pct),
-                "fitted_as": o.kind, "y": clean(o.y), "location": str(r.location),
+                "reason": o.reason, "note": r.note, "mass_balance_pct": col["mass_balance_pct"][k],
+                "spiked": col["spiked"][k], "found_aqueous": col["found_aqueous"][k],
+                "found_organic": col["found_organic"][k], "recovery_pct": col["recovery_pct"][k],
+                "fitted_as": o.kind, "y": ys[k], "location": str(r.location),
             }
             if self.fit is not None:
-                fitted_log_d = fitted_log_ds[k]
-                row["log_d_observed"] = clean(observed_log_d(r, fitted_log_d))
+                row["log_d_observed"] = clean(observed_log_d(r, fitted_log_ds[k]))
                 if o.index is not None:
                     i = o.index
-                    row["fitted"] = clean(fitted[i])
-                    row["residual"] = clean(residual[i])
-                    row["studentized_residual"] = clean(studentized[i])
-                row["fitted_log_d"] = clean(fitted_log_d)
+                    row["fitted"] = fitted[i]
+                    row["residual"] = residual[i]
+                    row["studentized_residual"] = studentized[i]
+                row["fitted_log_d"] = fitted_log_d_col[k]
             if self.study.calibration is not None:
                 row.update(calibration_run_fields(r))
             if self.study.suitability is not None:

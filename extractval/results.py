@@ -27,7 +27,7 @@ def clean(x: float | None, digits: int = 10) -> float | None:
 def clean_all(values, digits: int = 10) -> list[float | None]:
     """:func:`clean` of every value of a sequence or numpy array, in one pass."""
     isfinite = math.isfinite
-    return [None if x is None or not isfinite(x) else float("%.*g" % (digits, x))
+    return [None if x is None or not isfinite(y := float(x)) else float("%.*g" % (digits, y))
             for x in (values.tolist() if hasattr(values, "tolist") else values)]
 
 

@@ -152,3 +152,14 @@ def test_design_space_map_is_the_cell_by_cell_recovery():
                 else:
                     assert cell == clean(float(recovery_pct_from_log_d(lo, 10.0, [r * 10.0] * n)),
                                          6)
+
+
+def test_clean_all_is_clean_of_each_value():
+    # the one-pass cleaning of a column or an array writes what clean() writes for each value:
+    # Python's own format(x, ".<n>g") as reference, None for missing and non-finite values
+    from extractval.results import clean, clean_all
+
+    values = [None, 1, 2.5, float("nan"), float("inf"), -0.0, np.float64(1 / 3), 123456.789e-12]
+    assert clean_all(values) == [clean(x) for x in values]
+    assert clean_all(np.array([1 / 3, 2.0 / 7.0, np.nan]), 6) == [
+        float(format(1 / 3, ".6g")), float(format(2.0 / 7.0, ".6g")), None]
