@@ -106,11 +106,11 @@ def predict_procedure(fit: FitResult, procedure: Procedure,
     est = fit.log_d_interval(p.pH)
     method = f"{est.ci95.method}, mapped from log D at pH {p.pH:g}"
 
-    # the remaining fraction after each portion at the value and the ends of log D; after
-    # the last portion it is the procedure's, and the recovery is 100 (1 - q) of it (what
-    # recovery_pct_from_log_d computes)
-    after_each = [_at_ends(lambda x, n=n: chem.remaining_fraction(_ratio(x), p.aqueous_mL,
-                                                                  p.organic_mL[:n]), est)
+    # D at the value and the ends of log D, then the remaining fraction after each portion
+    # there; after the last portion it is the procedure's, and the recovery is 100 (1 - q) of
+    # it (what recovery_pct_from_log_d computes)
+    d = _ratio(_value_and_ends(est))
+    after_each = [_at_ends(chem.remaining_fraction(d, p.aqueous_mL, p.organic_mL[:n]), est)
                   for n in range(1, len(p.organic_mL) + 1)]
     q = after_each[-1]
     value, lo, hi = (None if x is None else 100.0 * (1.0 - x) for x in q)
@@ -119,22 +119,24 @@ def predict_procedure(fit: FitResult, procedure: Procedure,
     # the remaining fractions fall as log D rises: the upper end of log D gives their lower end
     remaining = ValueInterval(q[0], Interval(q[2], q[1], method))
     after = [ValueInterval(value, Interval(hi, lo, method)) for value, lo, hi in after_each]
-
-    def split(x):
-        return chem.split_limit_remaining(_ratio(x), p.aqueous_mL, p.total_organic_mL)
-
-    value, lo, hi = _at_ends(split, est)
+    value, lo, hi = _at_ends(chem.split_limit_remaining(d, p.aqueous_mL, p.total_organic_mL),
+                             est)
     split_limit = ValueInterval(value, Interval(hi, lo, method))
     return ProcedurePrediction(p, est, recovery, remaining, tuple(after), split_limit,
                                target_recovery_pct)
 
 
-def _at_ends(f, est: Estimate) -> tuple[float, float | None, float | None]:
-    """f at the value and at the two ends of est's interval, in one call (None where open)."""
+def _value_and_ends(est: Estimate) -> np.ndarray:
+    """est's value and the two ends of its interval (NaN where open), as one array."""
     lo, hi = est.ci95.lo, est.ci95.hi
-    out = f(np.array([est.value, np.nan if lo is None else lo, np.nan if hi is None else hi]))
-    return (float(out[0]), None if lo is None else float(out[1]),
-            None if hi is None else float(out[2]))
+    return np.array([est.value, np.nan if lo is None else lo, np.nan if hi is None else hi])
+
+
+def _at_ends(out: np.ndarray, est: Estimate) -> tuple[float, float | None, float | None]:
+    """A quantity computed at :func:`_value_and_ends`, as (value, lo, hi) (None where est's
+    interval is open)."""
+    return (float(out[0]), None if est.ci95.lo is None else float(out[1]),
+            None if est.ci95.hi is None else float(out[2]))
 
 
 def _prediction_interval(fit: FitResult, est: Estimate, recovery_pct: float) -> Interval:
