@@ -95,10 +95,13 @@ def test_an_unreadable_page_cache_entry_is_made_again(project, tmp_path):
     cache = tmp_path / "cache"
     build(project, tmp_path / "a", cache)
     entries = sorted((cache / site.CACHE_FORMAT / "pages").rglob("*.json"))
-    parts = sorted((cache / site.CACHE_FORMAT / "parts").rglob("*.json"))
+    parts = sorted((cache / site.CACHE_FORMAT / "parts").rglob("*.parts"))
     assert len(entries) == 3 and len(parts) == 3           # one per study page
-    for entry in entries + parts:
+    for entry in entries:
         entry.write_text("{ half written")                 # e.g. a disk that filled up
+    for entry in parts:                                    # cut short, or one byte too many
+        data = entry.read_bytes()
+        entry.write_bytes(data[:len(data) // 2] if entry == parts[0] else data + b"x")
     again = build(project, tmp_path / "b", cache)
     assert again.prepared.reused == {} and again.prepared.parts_reused == []
     assert tree(tmp_path / "b") == tree(tmp_path / "a")
