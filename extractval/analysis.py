@@ -568,10 +568,13 @@ def fit_study(study: Study) -> StudyReport:
     warnings.extend(fit.warnings)
     # procedures beyond the runs: check_study warns already (same rule, same words); a Study
     # made in code gets the warning here
-    known = set(study.warnings)
-    warnings.extend(p.text() for p in extrapolation_problems(
-        study.procedures, Span.of_runs(study.runs),
-        display_path(Path(study.folder) / STUDY_FILE)) if p not in known)
+    span = Span.of_runs(study.runs)
+    if any(extrapolation(p, span) is not None for p in study.procedures):
+        # (the study file's shown path asks the file system: only when a warning needs it)
+        known = set(study.warnings)
+        warnings.extend(p.text() for p in extrapolation_problems(
+            study.procedures, span, display_path(Path(study.folder) / STUDY_FILE))
+            if p not in known)
     target = study.targets.recovery_pct
     preds = tuple(predict_procedure(fit, p, target) for p in study.procedures)
     return StudyReport(study, fit, outcomes, preds, tuple(candidates), warnings=warnings,
