@@ -23,6 +23,7 @@ import json
 import multiprocessing
 import os
 import shutil
+import signal
 import sys
 import tempfile
 import threading
@@ -170,56 +171,81 @@ def draw(text: str) -> dict[str, bytes]:
     return study_plots(json.loads(text))
 
 
-class _Drawer:
-    """A process that imports the plotting as soon as it starts and then draws the studies it
-    is sent (:func:`draw`), one at a time. A plain process and pipe, not a pool: the build
-    may still fork workers after starting it, and a pool would run threads by then."""
+class HelperFailed(Exception):
+    """A task failed in a helper process; the message is its exception, type first."""
 
-    def __init__(self, method: str):
+
+class _Helper:
+    """A process that gets ready for one kind of task as soon as it starts (its imports:
+    ``ready``) and then does the tasks it is sent (``task``), one at a time, through a pipe.
+
+    A one-study rebuild starts two: one fits (scipy), one draws (matplotlib), each importing
+    while this process looks the studies up in the cache. Plain processes and pipes, not
+    pools: the build may still fork workers after starting them, and a pool runs threads.
+    A helper that was given nothing to do is stopped at once when closed.
+    """
+
+    def __init__(self, method: str, ready, task):
         ctx = multiprocessing.get_context(method)
         self._conn, child = ctx.Pipe()
-        self._proc = ctx.Process(target=_drawing_loop, args=(child,), daemon=True)
+        self._proc = ctx.Process(target=_helper_loop, args=(child, ready, task), daemon=True)
         self._proc.start()
         child.close()
+        self._used = False
 
-    def draw(self, text: str) -> dict[str, bytes]:
-        self._conn.send(text)
+    def send(self, payload) -> None:
+        self._used = True
+        self._conn.send(payload)
+
+    def result(self):
         ok, value = self._conn.recv()
         if not ok:
-            raise RuntimeError(value)
+            raise HelperFailed(value)
         return value
 
     def close(self) -> None:
-        try:
-            self._conn.send(None)
-        except OSError:
-            pass
-        self._conn.close()
-        self._proc.join(timeout=5)
+        if self._used:
+            try:
+                self._conn.send(None)
+            except OSError:
+                pass
+            self._proc.join(timeout=5)
         if self._proc.is_alive():
             self._proc.terminate()
+            self._proc.join(timeout=5)
+        self._conn.close()
 
 
-def _drawing_loop(conn) -> None:
-    """The drawer's life: the imports, then (ok, plots or the error) for each report text,
-    until told to stop or the build is gone."""
-    from .report import plots  # noqa: F401  (now, while the studies are read and fitted)
-
+def _helper_loop(conn, ready, task) -> None:
+    """A helper's life: ``ready()``, then (ok, result or the error) for each payload, until
+    told to stop or the build is gone. Ctrl-C is the build's to handle, and being stopped
+    ends the process quietly."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+    ready()
     while True:
         try:
-            text = conn.recv()
-        except (EOFError, OSError, KeyboardInterrupt):
+            payload = conn.recv()
+        except (EOFError, OSError):
             return
-        if text is None:
+        if payload is None:
             return
         try:
-            reply = (True, draw(text))
+            reply = (True, task(payload))
         except Exception as exc:             # the build reports it as the study's failure
             reply = (False, f"{type(exc).__name__}: {exc}")
         try:
             conn.send(reply)
         except OSError:
             return
+
+
+def _import_fit() -> None:
+    from . import analysis  # noqa: F401
+
+
+def _import_plots() -> None:
+    from .report import plots  # noqa: F401
 
 
 def compute(study) -> tuple[str, dict[str, bytes]]:
@@ -450,9 +476,11 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
     parent), so that a page does not depend on where the build was started.
     """
     jobs = jobs or (os.cpu_count() or 1)
-    # a rebuild that fits a few studies draws them in a worker of its own: started first, it
-    # imports the plotting while this process looks the studies up in the cache
-    drawer = _Drawer(_start_method()) if meanwhile is not None and jobs > 1 else None
+    # a rebuild that fits a few studies fits and draws them in helper processes: started
+    # first, they import scipy and matplotlib while this process looks the studies up
+    helpers = meanwhile is not None and jobs > 1
+    fitter = _Helper(_start_method(), _import_fit, fit_report) if helpers else None
+    drawer = _Helper(_start_method(), _import_plots, draw) if helpers else None
     try:
         outcomes: dict[str, Outcome] = {}
         todo: list[tuple[Source, object, str]] = []
@@ -511,14 +539,28 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
                            meta["runs"], seconds=seconds, text_sha=_sha(text)))
 
         def failed(src, study, exc):
+            what = str(exc) if isinstance(exc, HelperFailed) else f"{type(exc).__name__}: {exc}"
             report(Outcome(src.study_id, None, {}, [
-                f"{src.study_id}: the fit stopped ({type(exc).__name__}: {exc}); this is a fault "
-                "in extractval, please report it"], inputs_key(study), len(study.runs)))
+                f"{src.study_id}: the fit stopped ({what}); this is a fault in extractval, "
+                "please report it"], inputs_key(study), len(study.runs)))
 
-        if todo and len(todo) < jobs and drawer is not None:
-            # a few studies changed: workers fit them (importing scipy) while the drawer
-            # imports the plotting and then draws each study as its fit arrives, and this
-            # process reads ahead: the three overlap instead of waiting for each other
+        if len(todo) == 1 and fitter is not None:
+            # one study changed: the fitter (scipy imported by now) fits it while this
+            # process reads ahead, then the drawer draws it
+            (src, study, key), t0 = todo[0], time.perf_counter()
+            fitter.send(study)
+            meanwhile([o for o in outcomes.values() if o.cached])
+            try:
+                text = fitter.result()
+                drawer.send(text)
+                drawn = drawer.result()
+            except Exception as exc:
+                failed(src, study, exc)
+            else:
+                finish(src, study, key, text, drawn, time.perf_counter() - t0)
+        elif todo and len(todo) < jobs and drawer is not None:
+            # a few studies changed: workers fit them while the drawer draws each as its fit
+            # arrives, and this process reads ahead
             with _pool(len(todo)) as pool:
                 started = {pool.submit(fit_report, study): (src, study, key, time.perf_counter())
                            for src, study, key in todo}
@@ -527,11 +569,8 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
                     src, study, key, t0 = started[fut]
                     try:
                         text = fut.result()
-                    except Exception as exc:
-                        failed(src, study, exc)
-                        continue
-                    try:
-                        drawn = drawer.draw(text)
+                        drawer.send(text)
+                        drawn = drawer.result()
                     except Exception as exc:
                         failed(src, study, exc)
                         continue
@@ -563,8 +602,9 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
                 finish(src, study, key, text, plots, time.perf_counter() - t0)
         return [outcomes[s.study_id] for s in sources]
     finally:
-        if drawer is not None:
-            drawer.close()
+        for helper in (fitter, drawer):
+            if helper is not None:
+                helper.close()
 
 
 def dossier_version(outcomes: list[Outcome], templates_dir: Path, config_file: Path | None) -> str:

@@ -446,3 +446,26 @@ def test_the_command_line_build_stops_cleanly_on_sigterm(studies, cache, env_epo
     assert sent and proc.returncode == 130, err
     assert "interrupted" in err and "Traceback" not in err
     assert list(tmp_path.iterdir()) == []        # no site was there before, none now
+
+
+def test_a_helper_process_does_its_tasks_reports_failures_and_stops():
+    """The helpers of a one-study rebuild (site._Helper): results and errors come back
+    through the pipe (an error as its type and message, for the located build error), and a
+    helper given nothing to do is stopped at once, however long its imports would take."""
+    import functools
+    import gc
+    import math
+    import time
+
+    helper = site._Helper(site._start_method(), gc.collect, math.sqrt)
+    helper.send(6.25)
+    assert helper.result() == 2.5
+    helper.send(-1.0)
+    with pytest.raises(site.HelperFailed, match="^ValueError: math domain error$"):
+        helper.result()
+    helper.close()
+    assert not helper._proc.is_alive()
+    idle = site._Helper(site._start_method(), functools.partial(time.sleep, 60), math.sqrt)
+    t0 = time.monotonic()
+    idle.close()
+    assert time.monotonic() - t0 < 10 and not idle._proc.is_alive()
