@@ -163,3 +163,23 @@ def test_clean_all_is_clean_of_each_value():
     assert clean_all(values) == [clean(x) for x in values]
     assert clean_all(np.array([1 / 3, 2.0 / 7.0, np.nan]), 6) == [
         float(format(1 / 3, ".6g")), float(format(2.0 / 7.0, ".6g")), None]
+
+
+def test_rounding_a_long_array_at_once_writes_what_format_writes():
+    # clean_all rounds a long float array with array operations (round_significant); the
+    # reference is Python's own format(x, ".<n>g") for every value: random values over 24
+    # decades, values that are exact halves at the last kept digit (rounded to even by both),
+    # exact powers of ten, zeros and non-finite values
+    from extractval.results import clean_all, round_significant
+
+    rng = np.random.default_rng(20261204)
+    values = np.concatenate([
+        rng.uniform(-1.0, 1.0, 60000) * 10.0 ** rng.integers(-14, 10, 60000),
+        np.array([0.125, 2.5, 0.5, 1.5, 12.5, 1e-7, 1e5, 100.0, 0.0, -0.0, 99.99995]),
+        np.array([np.nan, np.inf, -np.inf])])
+    for digits in (2, 3, 6, 10):
+        assert clean_all(values, digits) == [
+            None if not np.isfinite(x) else float(format(x, f".{digits}g")) for x in values]
+    # where array operations could not round exactly, it says so (the caller then formats)
+    assert round_significant(np.array([1.5e12]), 6) is None
+    assert clean_all(np.full(100, 1.5e12), 6) == [1.5e12] * 100
