@@ -544,20 +544,24 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
                 f"{src.study_id}: the fit stopped ({what}); this is a fault in extractval, "
                 "please report it"], inputs_key(study), len(study.runs)))
 
+        def drawn_by_helper(src, study, key, t0, fitted_text) -> None:
+            """A study whose fit gives ``fitted_text()``, drawn by the drawer: finished."""
+            try:
+                text = fitted_text()
+                drawer.send(text)
+                drawn = drawer.result()
+            except Exception as exc:
+                failed(src, study, exc)
+                return
+            finish(src, study, key, text, drawn, time.perf_counter() - t0)
+
         if len(todo) == 1 and fitter is not None:
             # one study changed: the fitter (scipy imported by now) fits it while this
             # process reads ahead, then the drawer draws it
             (src, study, key), t0 = todo[0], time.perf_counter()
             fitter.send(study)
             meanwhile([o for o in outcomes.values() if o.cached])
-            try:
-                text = fitter.result()
-                drawer.send(text)
-                drawn = drawer.result()
-            except Exception as exc:
-                failed(src, study, exc)
-            else:
-                finish(src, study, key, text, drawn, time.perf_counter() - t0)
+            drawn_by_helper(src, study, key, t0, fitter.result)
         elif todo and len(todo) < jobs and drawer is not None:
             # a few studies changed: workers fit them while the drawer draws each as its fit
             # arrives, and this process reads ahead
@@ -566,15 +570,7 @@ def collect(sources: list[Source], cache: Cache, jobs: int = 0,
                            for src, study, key in todo}
                 meanwhile([o for o in outcomes.values() if o.cached])
                 for fut in as_completed(started):
-                    src, study, key, t0 = started[fut]
-                    try:
-                        text = fut.result()
-                        drawer.send(text)
-                        drawn = drawer.result()
-                    except Exception as exc:
-                        failed(src, study, exc)
-                        continue
-                    finish(src, study, key, text, drawn, time.perf_counter() - t0)
+                    drawn_by_helper(*started[fut], fut.result)
         elif todo and jobs > 1 and (len(todo) >= 3 or meanwhile is not None):
             with _pool(min(jobs, len(todo))) as pool:
                 started = {pool.submit(compute, study): (src, study, key, time.perf_counter())

@@ -70,6 +70,22 @@ def test_one_changed_study_is_the_only_page_made_again(project, tmp_path):
     assert tree(tmp_path / "b") == tree(tmp_path / "c")
 
 
+def test_two_changed_studies_with_spare_cores_are_fitted_by_workers_and_drawn_by_the_drawer(
+        project, tmp_path):
+    """With more cores than changed studies, workers fit them and the drawing helper draws
+    each as its fit arrives: the site is the one an empty cache gives."""
+    cache = tmp_path / "cache"
+    build(project, tmp_path / "a", cache)
+    change_one_run(project, "SYN-001")
+    change_one_run(project, "SYN-003")
+    second = build(project, tmp_path / "b", cache, jobs=4)
+    assert sorted(o.study_id for o in second.prepared.outcomes if not o.cached) == [
+        "SYN-001", "SYN-003"]
+    assert all(o.plots for o in second.prepared.outcomes)
+    build(project, tmp_path / "c", tmp_path / "empty-cache")
+    assert tree(tmp_path / "b") == tree(tmp_path / "c")
+
+
 def test_a_reused_page_shows_the_new_dossier_version_and_no_token(project, tmp_path):
     cache = tmp_path / "cache"
     first = build(project, tmp_path / "a", cache)
