@@ -374,7 +374,7 @@ def weighted_rows(fit: FitResult, cands: Candidates, theta: np.ndarray | None = 
     idx = np.arange(cands.size) if idx is None else np.asarray(idx, dtype=int)
     obs = cands.observations(idx)
     g = fit.model.jacobian(obs.pH, theta)
-    _, slope = obs.predict(fit.model.log_d(obs.pH, theta))
+    slope = obs.slope(fit.model.log_d(obs.pH, theta))
     return g * (slope / obs.sd_factor)[:, None]
 
 

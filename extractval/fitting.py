@@ -116,21 +116,34 @@ class Observations:
         code = self._code
         return code == 0, code == 1, code == 2
 
+    @cached_property
+    def _one_kind(self) -> str | None:
+        """The kind of every run when they are all of one kind (the common case), else None."""
+        return self.kind[0] if self.kind and len(set(self.kind)) == 1 else None
+
     def predict(self, log_d: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Predicted y and dy/dlogD for log D values (shape (..., n))."""
+        return self.predict_y(log_d), self.slope(log_d)
+
+    def slope(self, log_d: np.ndarray) -> np.ndarray:
+        """dy/dlogD alone for log D values (shape (..., n)): what information weights need."""
         _, is_e, is_q = self._masks
         log_d = np.asarray(log_d, dtype=float)
-        y = self.predict_y(log_d)
         slope = np.ones_like(log_d)
         if is_e.any():
             slope[..., is_e] = chem.fraction_of_pow10(-(log_d[..., is_e] + self.log_ratio[is_e]))
         if is_q.any():
             slope[..., is_q] = -chem.fraction_of_pow10(log_d[..., is_q] + self.log_ratio[is_q])
-        return y, slope
+        return slope
 
     def predict_y(self, log_d: np.ndarray) -> np.ndarray:
         """Predicted y alone for log D values (shape (..., n)): what a sum of squares needs."""
         _, is_e, is_q = self._masks
+        if self._one_kind == LOG_D:
+            return np.array(log_d, dtype=float)
+        if self._one_kind == LOG_E:
+            # what the masked assignment below gives when every run is log E, without it
+            return -chem.log10_one_plus_pow10(-(np.asarray(log_d, dtype=float) + self.log_ratio))
         log_d = np.asarray(log_d, dtype=float)
         y = log_d.copy()
         if is_e.any():
@@ -151,8 +164,7 @@ class Observations:
             q = np.clip(v, 1e-12, 1 - 1e-6)
             from_q = np.log10(1 / q - 1) - self.log_ratio
         log_d = np.where(code == 0, self.y, np.where(code == 1, from_e, from_q))
-        _, slope = self.predict(log_d)
-        return log_d, (slope / self.sd_factor) ** 2 + 1e-6
+        return log_d, (self.slope(log_d) / self.sd_factor) ** 2 + 1e-6
 
 
 class _Residuals:
@@ -591,13 +603,14 @@ def fit_model(obs: Observations, model: LogDModel, simple_model: LogDModel | Non
         starts = _start_values(obs, model)
     best = None
     for x0 in starts:
-        x, s, (_, jac), _ = _least_squares(res, x0, lo, hi)
+        x, s, (r, jac), _ = _least_squares(res, x0, lo, hi)
         if best is None or s < best[1] - 1e-12:
-            best = (x, s, jac)
-    theta, rss, jac = best
+            best = (x, s, r, jac)
+    theta, rss, r, jac = best
     if rss <= 0.0:
         rss = 1e-300   # noise-free data: keep the statistics finite
     result = FitResult(model, obs, theta, rss, jac, (lo, hi), residuals=res)
+    result._r_hat = r      # the fit's last evaluation: the residuals at the estimate, as cached
     _fill_parameters(result, intervals)
     _correlation_warnings(result)
     if model.ion_pair and intervals and result.parameters["logK_ion"].ci95.lo is None:
