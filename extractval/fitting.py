@@ -32,6 +32,7 @@ reported beside it.
 from __future__ import annotations
 
 import itertools
+import math
 from dataclasses import dataclass, field
 from functools import cached_property, lru_cache
 
@@ -841,7 +842,7 @@ class _Profile:
 
     def tau(self, pt: _Point) -> float:
         """Signed-root profile statistic in units of s: compare with the t quantile."""
-        return float(np.sqrt(max(pt.s - self.fit.rss, 0.0) / self.s2))
+        return math.sqrt(max(pt.s - self.fit.rss, 0.0) / self.s2)
 
     def _inner(self, v: float) -> _Point:
         """The evaluated point nearest to v between the estimate and v: the profile is traced
@@ -873,7 +874,7 @@ class _Profile:
                 c -= float(b @ np.linalg.solve(a, b))
             except np.linalg.LinAlgError:
                 pass
-        return float(np.sqrt(max(c, 0.0) / self.s2))
+        return math.sqrt(max(c, 0.0) / self.s2)
 
     def evaluate(self, v: float, start: np.ndarray | None = None) -> _Point:
         """The profile at v, from ``start`` (default: the tangent at the inner neighbour).
@@ -915,8 +916,8 @@ class _Profile:
     # -- the ends ----------------------------------------------------------------------------
     def wald_step(self, se: float) -> float:
         """First distance to try: the Wald half-width."""
-        step = self.t_crit * se if np.isfinite(se) and se > 1e-8 else 0.5
-        return float(np.clip(step, 1e-6, 2.0))
+        step = self.t_crit * se if math.isfinite(se) and se > 1e-8 else 0.5
+        return min(max(step, 1e-6), 2.0)
 
     def interval(self, se: float, lo_lim: float, hi_lim: float,
                  steps: tuple[float, float] | None = None) -> tuple[float | None, float | None]:
@@ -924,7 +925,7 @@ class _Profile:
         Wald half-width)."""
         step = self.wald_step(se)
         d_lo, d_hi = (step, step) if steps is None else (
-            d if np.isfinite(d) and d > 1e-6 else step for d in steps)
+            d if math.isfinite(d) and d > 1e-6 else step for d in steps)
         return self.end(-1, lo_lim, d_lo)[0], self.end(+1, hi_lim, d_hi)[0]
 
     def end(self, sign: int, limit: float, d0: float,
@@ -972,14 +973,14 @@ class _Profile:
                         outside = None         # not monotone: keep searching outward
             elif outside is None or d < outside:
                 outside = d
-            newton = (t_c - tau) / slope if slope > 0.0 and np.isfinite(slope) else None
+            newton = (t_c - tau) / slope if slope > 0.0 and math.isfinite(slope) else None
             if newton is not None and abs(tau - t_c) <= END_TAU_TOL * t_c:
                 follows = self._follows_limit(pt)
                 if follows is not None:
                     self.open_reason[sign] = f"follows {follows}"
                     return None, pt
                 hi = d_lim if outside is None else outside
-                return v_hat + sign * float(np.clip(d + newton, inside, hi)), pt
+                return v_hat + sign * min(max(d + newton, inside), hi), pt
             if newton is not None:
                 d_new = d + newton
             elif tau < t_c:
@@ -988,7 +989,7 @@ class _Profile:
                 d_new = 0.5 * (inside + d)
             # keep the step sane: within a factor of four of the last distance, and inside
             # the bracket once there is one
-            d_new = float(np.clip(d_new, 0.25 * d, 4.0 * d))
+            d_new = min(max(d_new, 0.25 * d), 4.0 * d)
             if outside is not None and not inside < d_new < outside:
                 d_new = 0.5 * (inside + outside)
             d = min(d_new, d_lim)
