@@ -457,13 +457,17 @@ def _least_squares(fun, x0, lo, hi, max_iter: int = 200, s_tol: float = 0.0,
     if x.size == 0:
         return x, s, out, True
     lam = 1e-3
+    # the box as Python floats: the checks below are on 1-3 numbers, where numpy's per-call
+    # overhead is most of the cost
+    box = list(zip(np.broadcast_to(lo, x.shape).tolist(), np.broadcast_to(hi, x.shape).tolist()))
     for _ in range(max_iter):
         J = out[1]
         g = r @ J
         A = J.T @ J
-        at_lo, at_hi = x <= lo, x >= hi
+        xs = x.tolist()
         held = None
-        if at_lo.any() or at_hi.any():
+        if any(not a < xj < b for xj, (a, b) in zip(xs, box)):
+            at_lo, at_hi = x <= lo, x >= hi
             held = (at_lo & (g > 0)) | (at_hi & (g < 0))
             if held.all():
                 break
@@ -479,16 +483,16 @@ def _least_squares(fun, x0, lo, hi, max_iter: int = 200, s_tol: float = 0.0,
                     break
             except np.linalg.LinAlgError:
                 pass
-        d = A.diagonal().copy()
-        d[d <= 0] = 1e-12
+        d = [1e-12 if v <= 0 else v for v in A.diagonal().tolist()]
+        scale = 1.0 + _max_abs(xs)
         improved = False
         while lam < 1e16:
             try:
-                step = _solve_small(A + np.diag(lam * d), -g)
+                step = _solve_small(A, -g, [lam * dj for dj in d])
             except np.linalg.LinAlgError:
                 lam *= 10.0
                 continue
-            longest = float(np.abs(step).max())
+            longest = _max_abs(step.tolist())
             if longest > max_step:
                 step = step * (max_step / longest)
             if held is None:
@@ -497,8 +501,7 @@ def _least_squares(fun, x0, lo, hi, max_iter: int = 200, s_tol: float = 0.0,
                 x_new = x.copy()
                 x_new[~held] += step
             x_new = np.minimum(np.maximum(x_new, lo), hi)
-            moved = float(np.abs(x_new - x).max())
-            scale = 1.0 + float(np.abs(x).max())
+            moved = _max_abs([a - b for a, b in zip(x_new.tolist(), xs)])
             if moved <= 1e-11 * scale:
                 break          # no step left to take: converged (or pinned at a bound)
             out_new = fun(x_new)
@@ -521,22 +524,33 @@ def _least_squares(fun, x0, lo, hi, max_iter: int = 200, s_tol: float = 0.0,
     return x, s, out, True
 
 
-def _solve_small(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Solve a x = b for the 1-3 parameters here; 1 x 1 and 2 x 2 in closed form, which is
-    several times cheaper than a LAPACK call at this size."""
+def _max_abs(values: list[float]) -> float:
+    """The largest |v| of a few numbers, NaN when one is NaN (numpy's max, without its
+    per-call overhead)."""
+    largest = max(map(abs, values))
+    return largest if all(v == v for v in values) else math.nan
+
+
+def _solve_small(a: np.ndarray, b: np.ndarray, damping: list[float] | None = None) -> np.ndarray:
+    """Solve (a + diag(damping)) x = b for the 1-3 parameters here; 1 x 1 and 2 x 2 in closed
+    form, which is several times cheaper than a LAPACK call at this size."""
     if b.size == 1:
         a00 = float(a[0, 0])
-        if a00 == 0.0 or not np.isfinite(a00):
+        if damping:
+            a00 += damping[0]
+        if a00 == 0.0 or not math.isfinite(a00):
             raise np.linalg.LinAlgError("singular")
         return b / a00
     if b.size == 2:
         (a00, a01), (a10, a11) = a.tolist()
+        if damping:
+            a00, a11 = a00 + damping[0], a11 + damping[1]
         det = a00 * a11 - a01 * a10
-        if det == 0.0 or not np.isfinite(det):
+        if det == 0.0 or not math.isfinite(det):
             raise np.linalg.LinAlgError("singular")
         b0, b1 = b.tolist()
         return np.array([(a11 * b0 - a01 * b1) / det, (a00 * b1 - a10 * b0) / det])
-    return np.linalg.solve(a, b)
+    return np.linalg.solve(a if damping is None else a + np.diag(damping), b)
 
 
 def _start_values(obs: Observations, model: LogDModel, n_best: int = 3) -> list[np.ndarray]:
