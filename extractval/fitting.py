@@ -1055,6 +1055,15 @@ _RADIUS_TOL = 1e-10
 _RADIUS_ITER = 40
 
 
+@lru_cache(maxsize=None)
+def _unit_circle(k: int) -> np.ndarray:
+    """k points evenly spaced on the unit circle, (k, 2): the same for every traced boundary."""
+    phi = 2.0 * np.pi * np.arange(k) / k
+    circle = np.column_stack([np.cos(phi), np.sin(phi)])
+    circle.flags.writeable = False
+    return circle
+
+
 def _batch_ss(fit: FitResult, thetas: np.ndarray) -> np.ndarray:
     """The weighted SS at each row of ``thetas`` (m, p) in one vectorised pass; only for
     models of the form log D = logK + h(pH; rest), whose h broadcasts."""
@@ -1097,11 +1106,7 @@ class _Boundary:
             whiten = np.linalg.inv(chol.T)                      # theta - theta_hat = W z
         except np.linalg.LinAlgError:
             return
-        def directions(k):
-            phi = 2.0 * np.pi * np.arange(k) / k
-            return np.column_stack([np.cos(phi), np.sin(phi)]) @ whiten.T
-
-        dirs = directions(n)
+        dirs = _unit_circle(n) @ whiten.T
         # largest radius along each ray that stays inside the search box
         with np.errstate(divide="ignore", invalid="ignore"):
             to_box = np.where(dirs > 0, (hi_b - theta) / dirs,
@@ -1148,7 +1153,7 @@ class _Boundary:
         if n % 2 == 0:
             spectrum[-1] *= 0.5      # the Nyquist term is shared by +/- frequency
         radius = np.fft.irfft(spectrum, m) * (m / n)
-        self.points = theta + radius[:, None] * directions(m)
+        self.points = theta + radius[:, None] * (_unit_circle(m) @ whiten.T)
         self.traced = True
 
     @cached_property
