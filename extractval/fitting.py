@@ -322,8 +322,7 @@ class FitResult:
             if not self._profiles_log_d:
                 est = Estimate(value, se, wald, wald)
             elif self.boundary is not None:
-                lo, hi = (None if np.isnan(x[0]) else float(x[0])
-                          for x in self.boundary.log_d_range(self, key))
+                lo, hi = self.boundary.log_d_ends(self, key)
                 est = Estimate(value, se, Interval(lo, hi, INTERVAL_METHOD), wald)
             else:
                 est = self.profile_log_d_interval(key, hint)
@@ -1202,21 +1201,24 @@ class _Boundary:
         return -refine(-g), refine(g)
 
     def log_d_range(self, fit: FitResult, pH) -> tuple[np.ndarray, np.ndarray]:
-        """Ends of the 95 % interval of log D at each pH (NaN beyond LOG_D_LIMITS: open)."""
-        if np.ndim(pH) == 0:
-            g = self._log_d_at(fit, pH)
-            lo, hi = np.array([self._end_1d(g, -1.0)]), np.array([self._end_1d(g, 1.0)])
-        else:
-            pH = np.asarray(pH, dtype=float)
-            g = self.points[:, :1] + fit.model.h(pH[None, :], *[self.points[:, k:k + 1]
-                                                                 for k in range(1, fit.p)])
-            lo, hi = self.range_of(g)
+        """Ends of the 95 % interval of log D at each pH of a grid (NaN beyond LOG_D_LIMITS:
+        open)."""
+        pH = np.asarray(pH, dtype=float)
+        g = self.points[:, :1] + fit.model.h(pH[None, :], *[self.points[:, k:k + 1]
+                                                             for k in range(1, fit.p)])
+        lo, hi = self.range_of(g)
         lo = np.where(lo <= LOG_D_LIMITS[0], np.nan, lo)
         hi = np.where(hi >= LOG_D_LIMITS[1], np.nan, hi)
         return lo, hi
 
+    def log_d_ends(self, fit: FitResult, pH0: float) -> tuple[float | None, float | None]:
+        """The ends of :meth:`log_d_range` at one pH, in scalars, None where open."""
+        g = self._log_d_at(fit, pH0)
+        lo, hi = self._end_1d(g, -1.0), self._end_1d(g, 1.0)
+        return lo if lo > LOG_D_LIMITS[0] else None, hi if hi < LOG_D_LIMITS[1] else None
+
     def log_d_lower(self, fit: FitResult, pH0: float) -> float | None:
-        """The lower end alone of :meth:`log_d_range` at one pH, None where open."""
+        """The lower end alone of :meth:`log_d_ends`, None where open."""
         lo = self._end_1d(self._log_d_at(fit, pH0), -1.0)
         return lo if lo > LOG_D_LIMITS[0] else None
 
