@@ -157,14 +157,16 @@ class Observations:
 
     def implied_log_d(self) -> tuple[np.ndarray, np.ndarray]:
         """A rough log D per run (for start values) and its information weight."""
-        code = self._code
-        v = 10.0 ** self.y
-        with np.errstate(divide="ignore", invalid="ignore"):
-            e = np.clip(v, 1e-6, 1 - 1e-6)
-            from_e = np.log10(e / (1 - e)) - self.log_ratio
-            q = np.clip(v, 1e-12, 1 - 1e-6)
-            from_q = np.log10(1 / q - 1) - self.log_ratio
-        log_d = np.where(code == 0, self.y, np.where(code == 1, from_e, from_q))
+        if self._one_kind == LOG_D:
+            log_d = self.y.copy()      # what the np.where below gives then
+        else:
+            v = 10.0 ** self.y
+            with np.errstate(divide="ignore", invalid="ignore"):
+                e = np.clip(v, 1e-6, 1 - 1e-6)
+                from_e = np.log10(e / (1 - e)) - self.log_ratio
+                q = np.clip(v, 1e-12, 1 - 1e-6)
+                from_q = np.log10(1 / q - 1) - self.log_ratio
+            log_d = np.where(self._code == 0, self.y, np.where(self._code == 1, from_e, from_q))
         return log_d, (self.slope(log_d) / self.sd_factor) ** 2 + 1e-6
 
 
