@@ -777,8 +777,9 @@ class _Profile:
         self.h, self.dh, self.h_dh = model.h, model.dh, model.h_dh
         self.lo_b = fit.bounds[0][self.free]
         self.hi_b = fit.bounds[1][self.free]
+        self.limits = list(zip(self.lo_b.tolist(), self.hi_b.tolist()))
         self.s2 = fit.rss / fit.dof
-        self.t_crit = float(np.sqrt(f95(fit.dof)))
+        self.t_crit = math.sqrt(f95(fit.dof))
         theta = fit.theta
         u_hat = theta[self.free]
         self.v_hat = (float(theta[self.j]) if pH0 is None
@@ -815,6 +816,11 @@ class _Profile:
         if dh0 is None:
             return jac[:, 1:], j_v
         return jac[:, 1:] - j_v[:, None] * dh0, j_v
+
+    def _inside(self, pt: _Point) -> bool:
+        """Is every one of u strictly inside its search limits (then none is held)? In plain
+        Python: u has one or two numbers."""
+        return all(lo < x < hi for x, (lo, hi) in zip(pt.u.tolist(), self.limits))
 
     def _held(self, pt: _Point) -> np.ndarray:
         """Which of u sit at a search limit that the fit pushes against."""
@@ -918,7 +924,7 @@ class _Profile:
         Moving that limit outward by one unit moves the end by g_k / |dS/dv| (from S(v, limit)
         = S_crit); when that is half a unit or more, the end is the limit's, not the data's.
         """
-        if not pt.u.size or pt.ds == 0.0:
+        if not pt.u.size or pt.ds == 0.0 or self._inside(pt):
             return None
         held = self._held(pt)
         if not held.any():
