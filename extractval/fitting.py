@@ -1135,22 +1135,25 @@ class _Boundary:
             if done.all():
                 break
             k = np.flatnonzero(~done)
+            # the open rays' values, taken out once
+            rho_k, t_k, inside_k, outside_k, box_k = rho[k], t[k], inside[k], outside[k], rho_box[k]
             with np.errstate(divide="ignore", invalid="ignore"):
-                slope = (t[k] - prev_t[k]) / (rho[k] - prev_rho[k])
-                new = rho[k] + (target - t[k]) / slope
+                slope = (t_k - prev_t[k]) / (rho_k - prev_rho[k])
+                new = rho_k + (target - t_k) / slope
             # outside the bracket (or no usable slope): double outward, or bisect
-            bad = ~np.isfinite(new) | (new <= inside[k]) | (new >= outside[k])
-            grow = np.minimum(2.0 * rho[k], rho_box[k])
-            mid = 0.5 * (inside[k] + outside[k])
-            new = np.where(bad, np.where(np.isfinite(outside[k]), mid, grow), new)
-            prev_rho[k], prev_t[k] = rho[k], t[k]
+            bad = ~np.isfinite(new) | (new <= inside_k) | (new >= outside_k)
+            grow = np.minimum(2.0 * rho_k, box_k)
+            mid = 0.5 * (inside_k + outside_k)
+            new = np.where(bad, np.where(np.isfinite(outside_k), mid, grow), new)
+            prev_rho[k], prev_t[k] = rho_k, t_k
             rho[k] = new
-            t[k] = tau(new, k)
-            inside[k] = np.where(t[k] < target, np.maximum(inside[k], new), inside[k])
-            outside[k] = np.where(t[k] >= target, np.minimum(outside[k], new), outside[k])
-            done[k] = np.abs(t[k] - target) <= _RADIUS_TOL * target
+            t[k] = t_new = tau(new, k)
+            below = t_new < target
+            inside[k] = np.where(below, np.maximum(inside_k, new), inside_k)
+            outside[k] = np.where(t_new >= target, np.minimum(outside_k, new), outside_k)
+            done[k] = np.abs(t_new - target) <= _RADIUS_TOL * target
             # a ray that reaches the box without crossing S_crit: the region is not closed
-            if np.any((new >= rho_box[k]) & (t[k] < target)):
+            if np.any((new >= box_k) & below):
                 return
         if not done.all() or np.any(rho >= rho_box):
             return
