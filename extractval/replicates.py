@@ -67,7 +67,11 @@ def _conditions(run) -> str:
 
 
 def _span(runs) -> str:
-    lo, hi = min(r.pH for r in runs), max(r.pH for r in runs)
+    return _span_of([r.pH for r in runs])
+
+
+def _span_of(pHs: list[float]) -> str:
+    lo, hi = min(pHs), max(pHs)
     return f"pH {lo:g}" if lo == hi else f"pH {lo:g} to {hi:g}"
 
 
@@ -85,12 +89,13 @@ def precision_groups(runs, ph_tolerance: float = PH_TOLERANCE) -> Grouping:
     warnings: list[Problem] = []
     by_conditions = [r for r in runs if not r.replicate]
     for label, members in labelled.items():
-        spread = max(r.pH for r in members) - min(r.pH for r in members)
+        pHs = [r.pH for r in members]
+        spread = max(pHs) - min(pHs)
         consistent = (spread <= ph_tolerance + 1e-9
                       and all(_same_volumes(r, members[0]) for r in members))
         if consistent:
             groups.append(PrecisionGroup(label, tuple(r.run_id for r in members), (
-                f"replicate label {label!r}: the same volumes, {_span(members)} (within "
+                f"replicate label {label!r}: the same volumes, {_span_of(pHs)} (within "
                 f"{ph_tolerance:g})")))
             continue
         first = members[0]
@@ -127,8 +132,9 @@ def _by_conditions(runs, ph_tolerance: float, order: dict) -> list[PrecisionGrou
             members = members[len(group):]
             group.sort(key=lambda r: order[r.run_id])
             lo = group[0]
-            key = f"{_span(group)}, {lo.aqueous_mL:g} + {lo.organic_mL:g} mL"
+            span = _span(group)
+            key = f"{span}, {lo.aqueous_mL:g} + {lo.organic_mL:g} mL"
             reason = (f"no replicate label: the same volumes ({lo.aqueous_mL:g} + "
-                      f"{lo.organic_mL:g} mL), {_span(group)} (within {ph_tolerance:g})")
+                      f"{lo.organic_mL:g} mL), {span} (within {ph_tolerance:g})")
             out.append(PrecisionGroup(key, tuple(r.run_id for r in group), reason))
     return out
