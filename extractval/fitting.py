@@ -773,6 +773,7 @@ class _Profile:
         self.j = param if pH0 is None else 0
         self.free = [k for k in range(self.p) if k != self.j]
         self.names = [model.params[k] for k in self.free]
+        self._free_cols = np.array(self.free, dtype=int)    # for take: cheaper than a list index
         self.ph0 = None if pH0 is None else np.array([float(pH0)])
         self.h, self.dh, self.h_dh = model.h, model.dh, model.h_dh
         self.lo_b = fit.bounds[0][self.free]
@@ -812,7 +813,7 @@ class _Profile:
         """The Jacobian of r in (u, v) from the one in theta."""
         j_v = jac[:, self.j]
         if self.ph0 is None:
-            return jac[:, self.free], j_v
+            return jac.take(self._free_cols, axis=1), j_v
         if dh0 is None:
             return jac[:, 1:], j_v
         return jac[:, 1:] - j_v[:, None] * dh0, j_v
@@ -872,11 +873,11 @@ class _Profile:
         return min((q for q in self.points if side * (q.v - self.v_hat) <= side * (v - self.v_hat)),
                    key=lambda q: abs(q.v - v))
 
-    def _start(self, v: float) -> np.ndarray:
-        """Where to start the profile fit at v: the inner neighbour moved along its tangent."""
-        near = self._inner(v)
+    def _start(self, v: float, near: _Point) -> np.ndarray:
+        """Where to start the profile fit at v: the inner neighbour ``near`` (:meth:`_inner`)
+        moved along its tangent."""
         move = self.tangent(near) * (v - near.v)
-        longest = float(np.abs(move).max()) if move.size else 0.0
+        longest = _max_abs(move.tolist()) if move.size else 0.0
         if longest > PROFILE_MAX_STEP:     # near a singular point the tangent runs away
             move *= PROFILE_MAX_STEP / longest
         return near.u + move
@@ -906,7 +907,7 @@ class _Profile:
         kept: S(v) is a minimum, so no start can give an answer lower than the true one.
         """
         near = self._inner(v)
-        pt = self.at(v, start if start is not None else self._start(v))
+        pt = self.at(v, start if start is not None else self._start(v, near))
         tau = self.tau(pt)
         if (tau >= self.t_crit and self.free
                 and tau > 2.0 * (self.tau(near) + self._tau_slope(near) * abs(v - near.v)) + 1.0):
