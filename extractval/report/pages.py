@@ -277,7 +277,7 @@ def copy_button(identifier: str, citation: str | None, register_url: str,
     With ``register_url`` the id links to the number's line in the register; ``shown`` is the
     id as written there (on a study page: without the study id, which heads the page).
     Without ``citation`` the button copies the line it stands in (``p.xv-reg``: the register,
-    where the line is shown anyway; the page is then half the size)."""
+    where the line is shown anyway; the page is then 30 % smaller)."""
     ident = html_attr(identifier)
     id_attr = f' id="{html_attr(anchor)}"' if anchor else ""
     label = (f'<a class="xv-id-link" href="{html_attr(register_url)}#{ident}" '
