@@ -774,10 +774,7 @@ class PageCache:
                 if not old.name.startswith(key + "."):
                     old.unlink(missing_ok=True)
             for suffix, data in ((".json", json.dumps(entries).encode()), (".html", html)):
-                fd, tmp = tempfile.mkstemp(prefix=".tmp-", dir=folder)
-                with os.fdopen(fd, "wb") as fh:
-                    fh.write(data)
-                os.replace(tmp, folder / (key + suffix))
+                _write_whole(folder / (key + suffix), data)
         except OSError:
             pass        # a cache that cannot be written only costs time
 
@@ -792,10 +789,7 @@ class PageCache:
         folder = self._folder(page)
         try:
             folder.mkdir(parents=True, exist_ok=True)
-            fd, tmp = tempfile.mkstemp(prefix=".tmp-", dir=folder)
-            with os.fdopen(fd, "wb") as fh:
-                fh.write(body.encode("utf-8"))
-            os.replace(tmp, folder / (key + ".print.html"))
+            _write_whole(folder / (key + ".print.html"), body.encode("utf-8"))
         except OSError:
             pass        # a cache that cannot be written only costs time
 
@@ -823,12 +817,17 @@ class PageCache:
             for old in target.parent.iterdir():
                 if old.name != target.name:
                     old.unlink(missing_ok=True)
-            fd, tmp = tempfile.mkstemp(prefix=".tmp-", dir=target.parent)
-            with os.fdopen(fd, "wb") as fh:
-                fh.write(_pack_texts(parts.to_dict(), _LONG_PARTS))
-            os.replace(tmp, target)
+            _write_whole(target, _pack_texts(parts.to_dict(), _LONG_PARTS))
         except OSError:
             pass        # a cache that cannot be written only costs time
+
+
+def _write_whole(path: Path, data: bytes) -> None:
+    """Write ``path`` whole or not at all: a temporary file beside it, then a rename."""
+    fd, tmp = tempfile.mkstemp(prefix=".tmp-", dir=path.parent)
+    with os.fdopen(fd, "wb") as fh:
+        fh.write(data)
+    os.replace(tmp, path)
 
 
 #: the long texts of a StudyParts (HTML and JSON): kept as they are, not as JSON strings
