@@ -996,16 +996,17 @@ def publish(built: Path, site_dir: Path, later: bool = False) -> None:
             os.replace(old, site_dir)
             raise
         if later:
-            remove_later(old)
+            remove_later(old, site_dir)
         else:
             shutil.rmtree(old, ignore_errors=True)
     else:
         os.replace(built, site_dir)
 
 
-def remove_later(folder: Path) -> None:
-    """Remove ``folder`` in a detached process, so that a build returns as soon as its site
-    is published (a site of hundreds of studies is thousands of files: ~0.3 s to delete).
+def remove_later(folder: Path, site_dir: Path) -> None:
+    """Remove ``folder``, the site replaced at ``site_dir``, in a detached process, so that a
+    build returns as soon as its site is published (a site of hundreds of studies is
+    thousands of files: ~0.3 s to delete).
 
     POSIX only, and only while this process runs one thread (forking a threaded process is
     unsafe); otherwise the folder is removed now. The folder is first renamed after the
@@ -1015,13 +1016,12 @@ def remove_later(folder: Path) -> None:
     if not hasattr(os, "fork") or threading.active_count() != 1:
         shutil.rmtree(folder, ignore_errors=True)
         return
-    site_name = folder.name.split(".old-", 1)[0].lstrip(".")
     pid = os.fork()
     if pid == 0:                            # the child: start the remover and leave at once
         try:
             if os.fork() == 0:              # the remover, adopted by init when the child ends
                 os.setsid()
-                mine = folder.with_name(f".{site_name}.old-{os.getpid()}-removing")
+                mine = folder.with_name(_leftover(site_dir, "old") + "removing")
                 try:
                     os.replace(folder, mine)
                 except OSError:

@@ -363,8 +363,10 @@ def test_the_old_site_removed_later_goes_in_a_process_of_its_own(tmp_path):
         (old / f"s{i}" / "index.html").write_text("x", encoding="utf-8")
     # in a process of one thread, as the command line is (pytest's may run others)
     subprocess.run([sys.executable, "-c", "import sys; from pathlib import Path; "
-                    "from extractval.site import remove_later; remove_later(Path(sys.argv[1]))",
-                    str(old)], check=True, timeout=60, env=dict(os.environ, PYTHONPATH=str(ROOT)))
+                    "from extractval.site import remove_later; "
+                    "remove_later(Path(sys.argv[1]), Path(sys.argv[2]))",
+                    str(old), str(tmp_path / "site")],
+                   check=True, timeout=60, env=dict(os.environ, PYTHONPATH=str(ROOT)))
     deadline = time.monotonic() + 30
     while any(tmp_path.iterdir()) and time.monotonic() < deadline:
         time.sleep(0.05)
