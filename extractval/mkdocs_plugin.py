@@ -152,13 +152,10 @@ class DossierPlugin(BasePlugin[DossierConfig]):
             for study_id in sorted(o.study_id for o in self.prepared.outcomes):
                 body = kept.get(study_id)
                 if body is None:
-                    folder = study_url(study_id)
-                    page = root / folder / "index.html"
+                    page = root / study_url(study_id) / "index.html"
                     if not page.is_file():
                         continue
-                    body = study_body(PrintedStudy(study_id, folder,
-                                                   page.read_text(encoding="utf-8")),
-                                      PRINT_DIR + "/")
+                    body = _print_body(study_id, page.read_text(encoding="utf-8"))
                 bodies.append((study_id, body))
         except ValueError as exc:
             raise PluginError(f"the print page: {exc}") from None
@@ -179,6 +176,11 @@ class DossierPlugin(BasePlugin[DossierConfig]):
     def on_serve(self, server, *, config, builder):
         server.watch(str(self._studies(config)))
         return server
+
+
+def _print_body(study_id: str, page_html: str) -> str:
+    """The study's body of the print page from its finished page (printview.study_body)."""
+    return study_body(PrintedStudy(study_id, study_url(study_id), page_html), PRINT_DIR + "/")
 
 
 class _LinkedFile(File):
@@ -402,8 +404,7 @@ def _reusing_pages(cfg, plugin: DossierPlugin, prepared: site.Prepared):
         body = cache.get_print(uri, keys[uri])
         if body is None:
             try:
-                body = study_body(PrintedStudy(study_id, study_url(study_id),
-                                               html.decode("utf-8")), PRINT_DIR + "/")
+                body = _print_body(study_id, html.decode("utf-8"))
             except ValueError:
                 return          # _print_page makes it from the written page and says why
             cache.put_print(uri, keys[uri], body)
