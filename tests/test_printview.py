@@ -7,7 +7,7 @@ from __future__ import annotations
 import pytest
 
 from extractval.report.printview import (MARKER, PrintedStudy, article, assemble, rebase_url,
-                                         study_body, study_section)
+                                         section, study_body)
 
 
 def _page(body: str) -> str:
@@ -43,7 +43,8 @@ def test_a_study_section_keeps_its_ids_apart_and_drops_its_own_page_head():
             '<a href="#system-and-inputs">up</a><img src="log-d-vs-ph.svg">'
             '<span class="xv-idcell" id="A-1/logK"><a href="../../register/#A-1/logK">logK</a>'
             '</span>')
-    out = study_section(PrintedStudy("A-1", "studies/A-1/", _page(body)), 3, "print/")
+    out = section("A-1", study_body(PrintedStudy("A-1", "studies/A-1/", _page(body)), "print/"),
+                  3)
     assert out.startswith('<section class="xv-print-study" id="print-A-1" '
                           'style="page: xv-study-3">')
     assert "@page {" not in out and "<nav>" not in out and "<footer>" not in out

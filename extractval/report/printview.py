@@ -112,11 +112,6 @@ def section(study_id: str, body: str, index: int) -> str:
             f'style="page: xv-study-{index}">\n{body}\n</section>')
 
 
-def study_section(study: PrintedStudy, index: int, to_dir: str) -> str:
-    """One study's content for the print page, on the named CSS page ``xv-study-<index>``."""
-    return section(study.study_id, study_body(study, to_dir), index)
-
-
 def page_rules(study_ids: list[str]) -> str:
     """The running head of each study's pages: the named pages of its sections."""
     from .pages import css_string
