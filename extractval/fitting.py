@@ -122,6 +122,36 @@ class Observations:
         """The kind of every run when they are all of one kind (the common case), else None."""
         return self.kind[0] if self.kind and len(set(self.kind)) == 1 else None
 
+    @cached_property
+    def _distinct(self) -> tuple[np.ndarray, np.ndarray, Observations, np.ndarray]:
+        """The runs' distinct pH values and each row's index into them; the first run of each
+        distinct (pH, kind, volume ratio) as Observations of their own, and each run's index
+        into those.
+
+        Replicates repeat these, and log D and the predicted y are elementwise functions of
+        them: evaluated once per distinct value and indexed out to the runs, they are the very
+        numbers an evaluation at every run gives, at a fraction of the cost where many
+        parameter sets are evaluated at once (the start grid, the traced boundary).
+        """
+        rows: dict[tuple, int] = {}
+        row_of_run = [rows.setdefault(key, len(rows)) for key in
+                      zip(self.pH.tolist(), self.kind, self.log_ratio.tolist())]
+        first = [row_of_run.index(i) for i in range(len(rows))]
+        sub = Observations(tuple(self.run_ids[i] for i in first), self.pH[first],
+                           self.log_ratio[first], tuple(self.kind[i] for i in first),
+                           self.y[first])
+        ph: dict[float, int] = {}
+        ph_of_row = [ph.setdefault(x, len(ph)) for x in sub.pH.tolist()]
+        return (np.array(list(ph), dtype=float), np.array(ph_of_row, dtype=np.intp), sub,
+                np.array(row_of_run, dtype=np.intp))
+
+    def batch_y(self, log_k: np.ndarray, h) -> np.ndarray:
+        """Predicted y at every run for many parameter sets of a model log D = logK + h(pH):
+        ``log_k`` a column (m, 1), ``h`` called with the distinct pH values as a row (1, k)
+        and returning (m, k); see :attr:`_distinct` for why it is shaped so."""
+        ph, ph_of_row, sub, row_of_run = self._distinct
+        return sub.predict_y(log_k + h(ph[None, :])[:, ph_of_row])[:, row_of_run]
+
     def predict(self, log_d: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Predicted y and dy/dlogD for log D values (shape (..., n))."""
         return self.predict_y(log_d), self.slope(log_d)
@@ -562,16 +592,19 @@ def _start_values(obs: Observations, model: LogDModel, n_best: int = 3) -> list[
     rest = model.start_grid(obs.pH)
     if model.ion_pair:
         raise AssertionError("ion-pair start values come from the simple model")
+    # h at the distinct pH values (Observations._distinct), indexed out to the runs
+    ph, ph_of_row, sub, row_of_run = obs._distinct
     if not rest.shape[1]:
-        h = np.zeros((1, obs.n))
+        h_ph = np.zeros((1, ph.size))
     else:
         # every grid row at once: h broadcasts over a column of each parameter
-        h = model.h(obs.pH[None, :], *(col[:, None] for col in rest.T))
-        if np.shape(h) != (len(rest), obs.n):
-            h = np.stack([model.h(obs.pH, *r) for r in rest])
+        h_ph = model.h(ph[None, :], *(col[:, None] for col in rest.T))
+        if np.shape(h_ph) != (len(rest), ph.size):
+            h_ph = np.stack([model.h(ph, *r) for r in rest])
+    h_row = h_ph[:, ph_of_row]
+    h = h_row[:, row_of_run]
     logk = np.sum(w * (implied - h), axis=1) / np.sum(w)
-    log_d = logk[:, None] + h
-    y = obs.predict_y(log_d)
+    y = sub.predict_y(logk[:, None] + h_row)[:, row_of_run]
     s = np.sum(((y - obs.y) / obs.sd_factor) ** 2, axis=1)
     order = _grid_minima(rest, s)[:n_best]
     return [np.concatenate([[logk[i]], rest[i]]) for i in order]
@@ -1077,8 +1110,8 @@ def _batch_ss(fit: FitResult, thetas: np.ndarray) -> np.ndarray:
     models of the form log D = logK + h(pH; rest), whose h broadcasts."""
     obs = fit.obs
     rest = [thetas[:, k:k + 1] for k in range(1, thetas.shape[1])]
-    log_d = thetas[:, :1] + fit.model.h(obs.pH[None, :], *rest)
-    r = (obs.predict_y(log_d) - obs.y) / obs.sd_factor
+    y = obs.batch_y(thetas[:, :1], lambda pH: fit.model.h(pH, *rest))
+    r = (y - obs.y) / obs.sd_factor
     return np.einsum("ij,ij->i", r, r)
 
 
