@@ -489,8 +489,10 @@ def _least_squares(fun, x0, lo, hi, max_iter: int = 200, s_tol: float = 0.0,
         return x, s, out, True
     lam = 1e-3
     # the box as Python floats: the checks below are on 1-3 numbers, where numpy's per-call
-    # overhead is most of the cost
-    box = list(zip(np.broadcast_to(lo, x.shape).tolist(), np.broadcast_to(hi, x.shape).tolist()))
+    # overhead is most of the cost (broadcast_to, itself costly, only for a box not yet of
+    # x's shape: the callers here give one)
+    box = list(zip(*(b.tolist() if np.shape(b) == x.shape else np.broadcast_to(b, x.shape).tolist()
+                     for b in (lo, hi))))
     for _ in range(max_iter):
         J = out[1]
         g = r @ J
