@@ -80,7 +80,11 @@ def observed_log_d(run: Run, fitted_log_d: float | None = None) -> float | None:
     got = _observation(run)
     if isinstance(got, str):
         return None
-    kind, y = got
+    return _log_d_read(run, *got, fitted_log_d)
+
+
+def _log_d_read(run: Run, kind: str, y: float, fitted_log_d: float | None) -> float | None:
+    """:func:`observed_log_d` from the run's (kind, y) (:func:`_observation`)."""
     if kind == LOG_D:
         return y
     lo, hi = ONE_PHASE_PLOT_RANGE
@@ -92,6 +96,20 @@ def observed_log_d(run: Run, fitted_log_d: float | None = None) -> float | None:
         if not lo < dr / (1.0 + dr) < hi:
             return None
     return float(np.log10(e / (1.0 - e) / run.volume_ratio))
+
+
+def _location_text(loc) -> str:
+    """``str(loc)`` of a run's tables.Location: file, sheet, line and row as
+    errors.Problem.where joins them. Written out here because str() builds a Problem per
+    call (about 2 us, a fifth of a run_table row); tests/test_words.py checks the two agree."""
+    parts = [loc.file] if loc.file else []
+    if loc.sheet:
+        parts.append(f"sheet {loc.sheet!r}")
+    if loc.line is not None:
+        parts.append(f"line {loc.line}")
+    if loc.row is not None:
+        parts.append(f"row {loc.row}")
+    return ", ".join(parts)
 
 
 def build_observations(runs, ph_tolerance: float = PH_TOLERANCE,
@@ -378,10 +396,13 @@ class StudyReport:
                 "reason": o.reason, "note": r.note, "mass_balance_pct": col["mass_balance_pct"][k],
                 "spiked": col["spiked"][k], "found_aqueous": col["found_aqueous"][k],
                 "found_organic": col["found_organic"][k], "recovery_pct": col["recovery_pct"][k],
-                "fitted_as": o.kind, "y": ys[k], "location": str(r.location),
+                "fitted_as": o.kind, "y": ys[k], "location": _location_text(r.location),
             }
             if self.fit is not None:
-                row["log_d_observed"] = clean(observed_log_d(r, fitted_log_ds[k]))
+                # a used run's (kind, y) is in its outcome already (build_observations)
+                got = (o.kind, o.y) if o.kind is not None else _observation(r)
+                row["log_d_observed"] = (None if isinstance(got, str) else
+                                         clean(_log_d_read(r, *got, fitted_log_ds[k])))
                 if o.index is not None:
                     i = o.index
                     row["fitted"] = fitted[i]
