@@ -62,7 +62,8 @@ def clean_all(values, digits: int = 10) -> list[float | None]:
                 return rounded.tolist()
             return [x if ok else None for x, ok in zip(rounded.tolist(), finite.tolist())]
     isfinite = math.isfinite
-    return [None if x is None or not isfinite(y := float(x)) else float("%.*g" % (digits, y))
+    fmt = "%%.%dg" % digits      # "%.10g": the format clean() uses, built once, not per value
+    return [None if x is None or not isfinite(y := float(x)) else float(fmt % y)
             for x in (values.tolist() if hasattr(values, "tolist") else values)]
 
 
