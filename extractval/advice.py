@@ -432,6 +432,8 @@ def _greedy(m_inv: np.ndarray, c: np.ndarray, x: np.ndarray, k: int,
         i = _argmin_stable(v, preference)
         chosen.append(i)
         crit.append(float(v[i]))
+        if j == k - 1:
+            break       # the inverse after the last choice is never read: not updated
         u = m_inv @ x[i]
         m_inv -= np.outer(u, u) / (1.0 + float(x[i] @ u))   # Sherman-Morrison
     return chosen, crit
