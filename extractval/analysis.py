@@ -98,20 +98,6 @@ def _log_d_read(run: Run, kind: str, y: float, fitted_log_d: float | None) -> fl
     return float(np.log10(e / (1.0 - e) / run.volume_ratio))
 
 
-def _location_text(loc) -> str:
-    """``str(loc)`` of a run's tables.Location: file, sheet, line and row as
-    errors.Problem.where joins them. Written out here because str() builds a Problem per
-    call (about 2 us, a fifth of a run_table row); tests/test_words.py checks the two agree."""
-    parts = [loc.file] if loc.file else []
-    if loc.sheet:
-        parts.append(f"sheet {loc.sheet!r}")
-    if loc.line is not None:
-        parts.append(f"line {loc.line}")
-    if loc.row is not None:
-        parts.append(f"row {loc.row}")
-    return ", ".join(parts)
-
-
 def build_observations(runs, ph_tolerance: float = PH_TOLERANCE,
                        ) -> tuple[Observations, tuple[RunOutcome, ...]]:
     """The fitted runs' observations, each with its precision group (replicates.py), and how
@@ -396,7 +382,7 @@ class StudyReport:
                 "reason": o.reason, "note": r.note, "mass_balance_pct": col["mass_balance_pct"][k],
                 "spiked": col["spiked"][k], "found_aqueous": col["found_aqueous"][k],
                 "found_organic": col["found_organic"][k], "recovery_pct": col["recovery_pct"][k],
-                "fitted_as": o.kind, "y": ys[k], "location": _location_text(r.location),
+                "fitted_as": o.kind, "y": ys[k], "location": str(r.location),
             }
             if self.fit is not None:
                 # a used run's (kind, y) is in its outcome already (build_observations)

@@ -10,6 +10,26 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass, field
 
 
+def place_text(file=None, sheet=None, line=None, row=None, key=None, run=None,
+               column=None) -> str:
+    """The one wording of a place: file, sheet, line, row, key, run and column joined by
+    commas, each part left out when empty (Problem.where and tables.Location use it)."""
+    parts: list[str] = [file] if file else []
+    if sheet:
+        parts.append(f"sheet {sheet!r}")
+    if line is not None:
+        parts.append(f"line {line}")
+    if row is not None:
+        parts.append(f"row {row}")
+    if key is not None:
+        parts.append(f"key {key!r}")
+    if run is not None:
+        parts.append(f"run {run!r}")
+    if column is not None:
+        parts.append(f"column {column!r}")
+    return ", ".join(parts)
+
+
 @dataclass(frozen=True)
 class Problem:
     """One located finding about a study's input.
@@ -34,22 +54,8 @@ class Problem:
 
     def where(self) -> str:
         """The place, e.g. ``studies/s1/runs.csv, line 5, run R3, column pH``."""
-        parts: list[str] = []
-        if self.file:
-            parts.append(self.file)
-        if self.sheet:
-            parts.append(f"sheet {self.sheet!r}")
-        if self.line is not None:
-            parts.append(f"line {self.line}")
-        if self.row is not None:
-            parts.append(f"row {self.row}")
-        if self.key is not None:
-            parts.append(f"key {self.key!r}")
-        if self.run is not None:
-            parts.append(f"run {self.run!r}")
-        if self.column is not None:
-            parts.append(f"column {self.column!r}")
-        return ", ".join(parts)
+        return place_text(self.file, self.sheet, self.line, self.row,
+                          self.key, self.run, self.column)
 
     def __str__(self) -> str:
         return f"{self.severity}: {self.text()}"

@@ -59,7 +59,7 @@ from dataclasses import dataclass, field, replace
 from decimal import Decimal
 from pathlib import Path
 
-from .errors import Problem
+from .errors import Problem, place_text
 
 Cell = str | float | None
 
@@ -95,7 +95,7 @@ class Location:
                 if v is not None}
 
     def __str__(self) -> str:
-        return Problem("", **self.where()).where()
+        return place_text(self.file, self.sheet, self.line, self.row)
 
 
 @dataclass(frozen=True)

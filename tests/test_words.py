@@ -245,17 +245,19 @@ def test_one_phase_run_near_complete_extraction_is_not_drawn_far_from_the_curve(
     assert observed_log_d(run, fitted_log_d=math.log10(2.0)) == pytest.approx(math.log10(4.5))
 
 
-def test_run_table_location_is_the_text_str_of_the_location_gives():
-    """run_table writes a run's location without building a Problem per run
-    (analysis._location_text): it must read as str(location) does, for CSV lines, sheet rows
-    and the odd empty parts."""
-    from extractval.analysis import _location_text
+def test_a_runs_location_reads_as_a_problem_at_that_place_does():
+    """tables.Location and errors.Problem word a place by one function (errors.place_text):
+    a run's location in the run table reads as an error message at that place would, for CSV
+    lines, sheet rows and the odd empty parts."""
+    from extractval.errors import Problem
     from extractval.tables import Location
 
     for loc in (Location("ST-1/runs.csv", line=4), Location("ST-1/runs.xlsx", row=7, sheet="Runs"),
                 Location("runs.ods", row=2, sheet="it's"), Location("", line=3),
                 Location("runs.xlsx", row=5, sheet=""), Location("runs.csv")):
-        assert _location_text(loc) == str(loc)
+        assert str(loc) == Problem("", **loc.where()).where()
+    assert (str(Location("ST-1/runs.xlsx", row=7, sheet="Runs"))
+            == "ST-1/runs.xlsx, sheet 'Runs', row 7")
     report = fit_study(simulated_study("SYN-LOC", "neutral", (2.1,), (7.0,), rng=3))
     assert [row["location"] for row in report.run_rows()] == [
         str(o.run.location) for o in report.outcomes]
