@@ -907,17 +907,37 @@ def group_mean_ss(values: np.ndarray, sizes: Sequence[int]) -> tuple[np.ndarray,
     r"""Mean and sum of squared deviations from it of consecutive groups of ``values``.
 
     ``values`` holds the groups one after the other, ``sizes`` their lengths (each at least
-    1). One numpy pass for all groups, each group a row of a zero-padded matrix: a study has a
-    dozen groups of two or three runs, where numpy's per-call overhead would dominate. When no
-    group has 8 values or more, each group gets to the last bit what ``np.mean(g)`` and
-    ``np.sum((g - np.mean(g)) ** 2)`` give it alone (the same sums in the same order; numpy
-    sums 8 values or more pairwise, so wider rows may differ in the last bit).
+    1). When no group has 8 values or more (a study's replicate groups: a dozen groups of two
+    or three runs), each group gets to the last bit what ``np.mean(g)`` and
+    ``np.sum((g - np.mean(g)) ** 2)`` give it alone: numpy adds fewer than 8 values one after
+    the other, starting from 0.0, and so do the plain Python loops used then (numpy's
+    per-call overhead would dominate such small groups). Wider groups go through one numpy
+    pass, each group a row of a zero-padded matrix; numpy sums 8 values or more pairwise, so
+    those rows may differ from ``np.mean(g)`` in the last bit.
     ``np.std(g, ddof=1)`` is ``sqrt(ss / (n - 1))``.
 
     >>> means, ss = group_mean_ss(np.array([99.0, 101.0, 49.0, 51.0, 50.0]), [2, 3])
     >>> means.tolist(), ss.tolist()
     ([100.0, 50.0], [2.0, 2.0])
     """
+    if max(sizes) < 8:
+        xs = np.asarray(values, dtype=float).tolist()
+        means, sss = [], []
+        a = 0
+        for n in sizes:
+            group = xs[a:a + n]
+            a += n
+            total = 0.0
+            for x in group:
+                total += x
+            mean = total / n
+            ss = 0.0
+            for x in group:
+                d = x - mean
+                ss += d * d
+            means.append(mean)
+            sss.append(ss)
+        return np.array(means), np.array(sss)
     x = np.asarray(values, dtype=float)
     n = np.asarray(sizes, dtype=int)
     row = np.repeat(np.arange(n.size), n)
