@@ -950,6 +950,24 @@ def group_mean_ss(values: np.ndarray, sizes: Sequence[int]) -> tuple[np.ndarray,
     return means, (dev * dev).sum(axis=1)
 
 
+def numpy_mean(values: Sequence[float]) -> float:
+    """``float(np.mean(values))`` of a list of floats, to the last bit, without building an
+    array when it is short: numpy adds fewer than 8 values one after the other, starting from
+    0.0 (see :func:`group_mean_ss`), and so does the loop here; 8 values or more (summed
+    pairwise) and an empty list go to numpy itself.
+
+    >>> numpy_mean([1e16, 1.0, 1.0]) == float(np.mean([1e16, 1.0, 1.0]))
+    True
+    """
+    n = len(values)
+    if n == 0 or n >= 8:
+        return float(np.mean(values))
+    total = 0.0
+    for x in values:
+        total += x
+    return float(total / n)
+
+
 # --------------------------------------------------------------------------------------------
 # Agreement of log D across volume ratios (OECD TG 107)
 # --------------------------------------------------------------------------------------------
@@ -1055,7 +1073,7 @@ def ratio_agreement(
         return RatioAgreement(len(ratios), len(values), None, None, None, None, None, None,
                               float(limit), None)
     # a handful of values: plain Python, but the mean as numpy sums (pairwise from 8 values)
-    mean = float(np.mean(values))
+    mean = numpy_mean(values)
     dev = [abs(x - mean) for x in values]
     i = dev.index(max(dev))         # the first of equal deviations, as np.argmax
     lo, hi = min(values), max(values)

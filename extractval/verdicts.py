@@ -232,9 +232,9 @@ def ratio_agreement(fit: FitResult, limit: float) -> list[tuple[float, acc.Ratio
     log_d = np.where(is_d, obs.y, np.nan)
     log_d[one_phase] = np.log10(e[one_phase] / (1.0 - e[one_phase]) / r[one_phase])
     ratio_key = [float(f"{x:.4g}") for x in r.tolist()]
-    log_d, fitted = log_d.tolist(), fitted.tolist()
+    log_d, fitted, pH = log_d.tolist(), fitted.tolist(), obs.pH.tolist()
     clusters = []
-    for idx in _ph_clusters(obs.pH.tolist()):
+    for idx in _ph_clusters(pH):
         idx = [i for i in idx if math.isfinite(log_d[i])]
         if len({ratio_key[i] for i in idx}) >= 2:
             clusters.append(idx)
@@ -242,7 +242,7 @@ def ratio_agreement(fit: FitResult, limit: float) -> list[tuple[float, acc.Ratio
         return []
     # each value moved to its cluster's mean pH along the fitted curve: the model at every
     # cluster's mean pH in one call (the runs' own pH were evaluated above)
-    ph_means = [float(np.mean(obs.pH[idx])) for idx in clusters]
+    ph_means = [acc.numpy_mean([pH[i] for i in idx]) for idx in clusters]   # np.mean's bits
     at_means = np.asarray(fit.log_d(ph_means), dtype=float).tolist()
     out = []
     for idx, ph_mean, at_mean in zip(clusters, ph_means, at_means):
