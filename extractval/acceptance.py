@@ -886,8 +886,10 @@ def pooled_rsd_from_moments(sizes: Sequence[int], means: np.ndarray, ss: np.ndar
     num = 0.0
     df = 0
     per_group = []
-    for k, n, mean, ss_group in zip(names, sizes, np.asarray(means).tolist(),
-                                    np.asarray(ss).tolist()):
+    # Python floats to loop over (a caller may hand lists already)
+    means = means.tolist() if isinstance(means, np.ndarray) else [float(m) for m in means]
+    ss = ss.tolist() if isinstance(ss, np.ndarray) else [float(q) for q in ss]
+    for k, n, mean, ss_group in zip(names, sizes, means, ss):
         if not (math.isfinite(mean) and math.isfinite(ss_group)):
             raise ValueError(f"pooled RSD: group {k} has values that are not finite numbers")
         if not mean > 0.0:

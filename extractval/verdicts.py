@@ -37,6 +37,7 @@ from __future__ import annotations
 
 import math
 from collections import defaultdict
+from itertools import accumulate
 from dataclasses import dataclass
 
 import numpy as np
@@ -44,7 +45,7 @@ import numpy as np
 from . import acceptance as acc
 from .acceptance import Verdict, verdict
 from .fitting import LOG_D, LOG_E, LOG_Q, FitResult
-from .results import clean, fmt_pct
+from .results import clean_all, fmt_pct
 
 DEFAULT_MASS_BALANCE = (90.0, 110.0)
 #: runs whose measured pH differ by less than this belong to one nominal pH (pH units)
@@ -132,7 +133,8 @@ class Repeatability:
             groups=list(self.groups))
 
 
-def repeatability(fit: FitResult, outcomes) -> Repeatability | None:
+def repeatability(fit: FitResult, outcomes,
+                  groups: dict[str, list[int]] | None = None) -> Repeatability | None:
     """Pooled RSD of what the replicate runs measured (recovery or amount left in the water).
 
     Within a group, runs whose pH differ a little are brought to the group's mean pH through the
@@ -140,52 +142,71 @@ def repeatability(fit: FitResult, outcomes) -> Repeatability | None:
     same quantity at the run's volume ratio. The constant-CV error model makes that a pure
     rescaling, so only the scatter the model does not explain is pooled (ISO 5725-2 pools the
     within-cell variances of one level; here the cell is the group's conditions).
+    ``groups`` is :func:`fit_groups` of the fit, when the caller has it already.
     """
-    by_index = {o.index: o for o in outcomes if o.index is not None}
+    runs = {o.index: o.run for o in outcomes if o.index is not None}
     obs = fit.obs
+    kinds = obs.kind
     values: dict[tuple[str, str], list[tuple[int, float]]] = defaultdict(list)
-    for label, idx in fit_groups(fit).items():
+    for label, idx in (fit_groups(fit) if groups is None else groups).items():
         for i in idx:
-            got = measured_pct(by_index[i].run, obs.kind[i]) if i in by_index else None
+            run = runs.get(i)
+            got = None if run is None else measured_pct(run, kinds[i])
             if got is not None:
                 values[(label, got[0])].append((i, got[1]))
     kept = [(key, items) for key, items in values.items() if len(items) >= 2]
     if not kept:
         return None
     # every group's runs in one array, so that the model is evaluated twice in all (at the
-    # runs' pH and at their group's mean pH), not twice per group
-    idx = np.array([i for _, items in kept for i, _ in items])
-    x = np.array([v for _, items in kept for _, v in items])
-    sizes = [len(items) for _, items in kept]
-    starts = np.cumsum([0] + sizes)
-    ph_group = np.repeat(np.add.reduceat(obs.pH[idx], starts[:-1]) / sizes, sizes)
-    ratio = 10.0 ** obs.log_ratio[idx]
-    rd_run = ratio * 10.0 ** np.asarray(fit.log_d(obs.pH[idx]), dtype=float)
+    # runs' pH and at their group's mean pH), not twice per group; the lists are gathered in
+    # one pass over the groups
+    ids: list[int] = []
+    x: list[float] = []
+    sizes: list[int] = []
+    recovery: list[bool] = []
+    for (_, quantity), items in kept:
+        sizes.append(len(items))
+        recovery += [quantity == "recovery"] * len(items)
+        for i, v in items:
+            ids.append(i)
+            x.append(v)
+    bounds = list(accumulate(sizes, initial=0))
+    ph_run = obs.pH[ids]
+    ph_group = np.repeat(np.add.reduceat(ph_run, bounds[:-1]) / sizes, sizes)
+    ratio = 10.0 ** obs.log_ratio[ids]
+    rd_run = ratio * 10.0 ** np.asarray(fit.log_d(ph_run), dtype=float)
     rd_group = ratio * 10.0 ** np.asarray(fit.log_d(ph_group), dtype=float)
-    recovery = np.repeat([quantity == "recovery" for (_, quantity), _ in kept], sizes)
     # x * m(pH_group) / m(pH_run), m the expected recovery rd/(1+rd) or remainder 1/(1+rd)
     scale = np.where(recovery, rd_group / rd_run, 1.0) * (1.0 + rd_run) / (1.0 + rd_group)
-    adjusted = x * scale
+    adjusted = np.array(x) * scale
     means, ss = acc.group_mean_ss(adjusted, sizes)
-    rows = []
-    ids, ph_runs, bounds = idx.tolist(), ph_group.tolist(), starts.tolist()
-    for k, ((label, quantity), _), mean, ss_k in zip(range(len(kept)), kept, means.tolist(),
-                                                     ss.tolist()):
-        a, b = bounds[k], bounds[k + 1]
-        rows.append({"label": label, "quantity": quantity,
-                     "runs": [obs.run_ids[i] for i in ids[a:b]], "pH": clean(ph_runs[a], 6),
-                     "n": b - a, "mean_pct": clean(mean),
-                     "rsd_pct": clean(100.0 * math.sqrt(ss_k / (b - a - 1)) / mean)})
+    means_l, ss_l, ph_l = means.tolist(), ss.tolist(), ph_group.tolist()
+    # each column cleaned in one pass (clean_all is clean of every value)
+    rsd = clean_all([100.0 * math.sqrt(ss_k / (n - 1)) / mean
+                     for n, mean, ss_k in zip(sizes, means_l, ss_l)])
+    mean_pct = clean_all(means_l)
+    ph = clean_all([ph_l[a] for a in bounds[:-1]], 6)
+    run_ids = obs.run_ids
+    rows = tuple({"label": label, "quantity": quantity,
+                  "runs": [run_ids[i] for i in ids[bounds[k]:bounds[k + 1]]], "pH": ph[k],
+                  "n": sizes[k], "mean_pct": mean_pct[k], "rsd_pct": rsd[k]}
+                 for k, ((label, quantity), _) in enumerate(kept))
     quantities = tuple(q for q in QUANTITY_WORDS if any(key[1] == q for key, _ in kept))
-    pooled = acc.pooled_rsd_from_moments(sizes, means, ss)
-    return Repeatability(pooled, quantities, tuple(rows))
+    pooled = acc.pooled_rsd_from_moments(sizes, means_l, ss_l)
+    return Repeatability(pooled, quantities, rows)
 
 
-def lack_of_fit(fit: FitResult) -> acc.LackOfFit:
-    labels = [""] * fit.obs.n
-    for (label, kind), idx in replicate_groups(fit).items():
+def lack_of_fit(fit: FitResult, groups: dict[str, list[int]] | None = None) -> acc.LackOfFit:
+    """The lack-of-fit test with pure error from the fit's replicate groups split by kind of
+    measurement (:func:`replicate_groups`); ``groups`` is :func:`fit_groups` of the fit, when
+    the caller has it already. A run in no group is one group with the others in none."""
+    labels: list = [""] * fit.obs.n
+    kinds = fit.obs.kind
+    # the (group, kind) pair as the label: the same partition, in the same order of first
+    # appearance, as replicate_groups, without building its dict
+    for label, idx in (fit_groups(fit) if groups is None else groups).items():
         for i in idx:
-            labels[i] = f"{label}|{kind}"
+            labels[i] = (label, kinds[i])
     return acc.lack_of_fit_test(fit.weighted_residuals, labels, fit.p)
 
 
@@ -426,7 +447,8 @@ def study_verdicts(fit: FitResult, outcomes, targets) -> tuple[list[Verdict], di
     """Study-level verdicts and the numbers behind them (repeatability, lack of fit, ratios)."""
     out: list[Verdict] = []
     details: dict = {}
-    rep = repeatability(fit, outcomes)
+    groups = fit_groups(fit)        # shared by the repeatability and the lack of fit
+    rep = repeatability(fit, outcomes, groups)
     details["repeatability"] = None if rep is None else rep.to_dict()
     if targets.max_rsd_pct is not None:
         if rep is None or rep.rsd_pct is None:
@@ -464,7 +486,7 @@ def study_verdicts(fit: FitResult, outcomes, targets) -> tuple[list[Verdict], di
                            "no pH has two or more volume ratios with runs measured in both "
                            "phases or with a fitted fraction extracted of 20-80 % (a log D read "
                            "off one phase outside that is too uncertain for the limit)"))
-    lof = lack_of_fit(fit)
+    lof = lack_of_fit(fit, groups)
     alpha = targets.lack_of_fit_alpha
     details["lack_of_fit"] = dict(
         lof.to_dict(), target_alpha=alpha,
