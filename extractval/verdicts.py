@@ -275,8 +275,13 @@ def ratio_agreement(fit: FitResult, limit: float) -> list[tuple[float, acc.Ratio
 
 
 def mass_balance(report_runs, lo_hi, basis: str = "target") -> Verdict | None:
-    rows = [(o.run.run_id, o.run.mass_balance_pct) for o in report_runs
-            if o.status != "excluded" and o.run.mass_balance_pct is not None]
+    # each run's mass balance read once (a property computed on every read): the runs in the
+    # fit, and those the study excluded
+    rows, excluded = [], []
+    for o in report_runs:
+        mb = o.run.mass_balance_pct
+        if mb is not None:
+            (excluded if o.status == "excluded" else rows).append((o.run.run_id, mb))
     if not rows:
         return None
     lo, hi = lo_hi
@@ -286,9 +291,7 @@ def mass_balance(report_runs, lo_hi, basis: str = "target") -> Verdict | None:
         " (default band, common practice; not set in study.yaml)"
     # an excluded run is not judged, but one outside the band is named so that nobody reads
     # "every run" as including it
-    left_out = [(o.run.run_id, o.run.mass_balance_pct) for o in report_runs
-                if o.status == "excluded" and o.run.mass_balance_pct is not None
-                and not (lo <= o.run.mass_balance_pct <= hi)]
+    left_out = [(rid, mb) for rid, mb in excluded if not (lo <= mb <= hi)]
     aside = ("; not judged, excluded by the study: "
              + ", ".join(f"{rid} ({mb:.1f} %)" for rid, mb in left_out)) if left_out else ""
     if outside:
