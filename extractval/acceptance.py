@@ -1063,8 +1063,13 @@ def ratio_agreement(
     values: list[float] = []
     owner: list[Hashable] = []
     for ratio, v in log_d_values_by_ratio.items():
-        given = [float(x) for x in np.ravel(v).tolist()]
-        if not all(math.isfinite(x) for x in given):
+        # a list of finite Python floats (what verdicts.ratio_agreement passes) is taken as it
+        # is, checked in one pass; anything else is flattened and converted first
+        if type(v) is list and all(type(x) is float and math.isfinite(x) for x in v):
+            given = v
+        else:
+            given = [float(x) for x in np.ravel(v).tolist()]
+        if given is not v and not all(math.isfinite(x) for x in given):
             raise ValueError(
                 f"ratio agreement: ratio {ratio!r} has log D values that are not finite numbers"
             )

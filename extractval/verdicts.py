@@ -252,7 +252,10 @@ def ratio_agreement(fit: FitResult, limit: float) -> list[tuple[float, acc.Ratio
     one_phase = ~is_d & (lo < e_fit) & (e_fit < hi) & (0.0 < e) & (e < 1.0)
     log_d = np.where(is_d, obs.y, np.nan)
     log_d[one_phase] = np.log10(e[one_phase] / (1.0 - e[one_phase]) / r[one_phase])
-    ratio_key = [float(f"{x:.4g}") for x in r.tolist()]
+    # a study has a few distinct ratios among many runs: each one's key formatted once
+    keys: dict[float, float] = {}
+    ratio_key = [keys[x] if x in keys else keys.setdefault(x, float(f"{x:.4g}"))
+                 for x in r.tolist()]
     log_d, fitted, pH = log_d.tolist(), fitted.tolist(), obs.pH.tolist()
     clusters = []
     for idx in _ph_clusters(pH):
