@@ -361,10 +361,11 @@ class StudyReport:
 
     def run_rows(self) -> list[dict]:
         runs = [o.run for o in self.outcomes]
-        # each numeric column cleaned in one pass (clean_all), not one call per cell
-        col = {name: clean_all([getattr(r, name) for r in runs])
-               for name in ("pH", "aqueous_mL", "organic_mL", "volume_ratio", "mass_balance_pct",
-                            "spiked", "found_aqueous", "found_organic", "recovery_pct")}
+        # every run's nine numeric cells cleaned in one clean_all pass, not one call per cell
+        # (nor one per column), and unpacked again run by run below
+        cells = clean_all([v for r in runs for v in (
+            r.pH, r.aqueous_mL, r.organic_mL, r.volume_ratio, r.mass_balance_pct, r.spiked,
+            r.found_aqueous, r.found_organic, r.recovery_pct)])
         ys = clean_all([o.y for o in self.outcomes])
         if self.fit is not None:
             # the model at every run's pH in one call, not one call per run
@@ -375,20 +376,26 @@ class StudyReport:
             studentized = clean_all(self.fit.studentized_residuals)
         rows = []
         for k, (o, r) in enumerate(zip(self.outcomes, runs)):
+            (pH, aqueous_mL, organic_mL, volume_ratio, mass_balance_pct, spiked, found_aqueous,
+             found_organic, recovery_pct) = cells[9 * k:9 * k + 9]
             row = {
-                "run": r.run_id, "pH": col["pH"][k], "aqueous_mL": col["aqueous_mL"][k],
-                "organic_mL": col["organic_mL"][k], "volume_ratio": col["volume_ratio"][k],
-                "measurement": r.measurement, "replicate": r.replicate, "status": o.status,
-                "reason": o.reason, "note": r.note, "mass_balance_pct": col["mass_balance_pct"][k],
-                "spiked": col["spiked"][k], "found_aqueous": col["found_aqueous"][k],
-                "found_organic": col["found_organic"][k], "recovery_pct": col["recovery_pct"][k],
-                "fitted_as": o.kind, "y": ys[k], "location": str(r.location),
+                "run": r.run_id, "pH": pH, "aqueous_mL": aqueous_mL, "organic_mL": organic_mL,
+                "volume_ratio": volume_ratio, "measurement": r.measurement,
+                "replicate": r.replicate, "status": o.status, "reason": o.reason, "note": r.note,
+                "mass_balance_pct": mass_balance_pct, "spiked": spiked,
+                "found_aqueous": found_aqueous, "found_organic": found_organic,
+                "recovery_pct": recovery_pct, "fitted_as": o.kind, "y": ys[k],
+                "location": str(r.location),
             }
             if self.fit is not None:
-                # a used run's (kind, y) is in its outcome already (build_observations)
-                got = (o.kind, o.y) if o.kind is not None else _observation(r)
-                row["log_d_observed"] = (None if isinstance(got, str) else
-                                         clean(_log_d_read(r, *got, fitted_log_ds[k])))
+                if o.kind == LOG_D:
+                    # a used run fitted as log D: its log D is its y, cleaned already
+                    row["log_d_observed"] = ys[k]
+                else:
+                    # a used run's (kind, y) is in its outcome already (build_observations)
+                    got = (o.kind, o.y) if o.kind is not None else _observation(r)
+                    row["log_d_observed"] = (None if isinstance(got, str) else
+                                             clean(_log_d_read(r, *got, fitted_log_ds[k])))
                 if o.index is not None:
                     i = o.index
                     row["fitted"] = fitted[i]
