@@ -6,6 +6,7 @@ the dossier all render :meth:`StudyReport.to_dict`.
 
 from __future__ import annotations
 
+from collections import Counter
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 from pathlib import Path
@@ -411,8 +412,7 @@ class StudyReport:
 
     def to_dict(self) -> dict:
         s, fit = self.study, self.fit
-        counts = {k: sum(o.status == k for o in self.outcomes)
-                  for k in ("used", "excluded", "not usable")}
+        counts = Counter(o.status for o in self.outcomes)     # one pass, not one per status
         out = {
             "study": s.study_id,
             "title": s.title,
