@@ -417,10 +417,11 @@ def lack_of_fit_test(
     for k, label in enumerate(labels):
         index.setdefault(label, []).append(k)
     sizes = [len(members) for members in index.values()]
-    means, ss = group_mean_ss(e[[k for members in index.values() for k in members]], sizes)
+    el = e.tolist()
+    means, ss = group_moments([el[k] for members in index.values() for k in members], sizes)
     ss_pe = 0.0
     ss_lof = 0.0
-    for n, mean, ss_group in zip(sizes, means.tolist(), ss.tolist()):
+    for n, mean, ss_group in zip(sizes, means, ss):
         ss_pe += ss_group
         ss_lof += n * mean * mean
     m = len(index)
@@ -916,30 +917,16 @@ def group_mean_ss(values: np.ndarray, sizes: Sequence[int]) -> tuple[np.ndarray,
     per-call overhead would dominate such small groups). Wider groups go through one numpy
     pass, each group a row of a zero-padded matrix; numpy sums 8 values or more pairwise, so
     those rows may differ from ``np.mean(g)`` in the last bit.
-    ``np.std(g, ddof=1)`` is ``sqrt(ss / (n - 1))``.
+    ``np.std(g, ddof=1)`` is ``sqrt(ss / (n - 1))``. :func:`group_moments` gives the same
+    numbers as lists.
 
     >>> means, ss = group_mean_ss(np.array([99.0, 101.0, 49.0, 51.0, 50.0]), [2, 3])
     >>> means.tolist(), ss.tolist()
     ([100.0, 50.0], [2.0, 2.0])
     """
     if max(sizes) < 8:
-        xs = np.asarray(values, dtype=float).tolist()
-        means, sss = [], []
-        a = 0
-        for n in sizes:
-            group = xs[a:a + n]
-            a += n
-            total = 0.0
-            for x in group:
-                total += x
-            mean = total / n
-            ss = 0.0
-            for x in group:
-                d = x - mean
-                ss += d * d
-            means.append(mean)
-            sss.append(ss)
-        return np.array(means), np.array(sss)
+        means, ss = group_moments(values, sizes)
+        return np.array(means), np.array(ss)
     x = np.asarray(values, dtype=float)
     n = np.asarray(sizes, dtype=int)
     row = np.repeat(np.arange(n.size), n)
@@ -950,6 +937,35 @@ def group_mean_ss(values: np.ndarray, sizes: Sequence[int]) -> tuple[np.ndarray,
     dev = np.zeros_like(table)
     dev[row, col] = x - means[row]
     return means, (dev * dev).sum(axis=1)
+
+
+def group_moments(values, sizes: Sequence[int]) -> tuple[list[float], list[float]]:
+    """:func:`group_mean_ss` as two lists of Python floats, for callers that loop over them
+    (no arrays built only to be turned back into lists).
+
+    >>> group_moments([99.0, 101.0, 49.0, 51.0, 50.0], [2, 3])
+    ([100.0, 50.0], [2.0, 2.0])
+    """
+    if max(sizes) >= 8:
+        means_a, ss_a = group_mean_ss(values, sizes)
+        return means_a.tolist(), ss_a.tolist()
+    xs = values.tolist() if isinstance(values, np.ndarray) else [float(x) for x in values]
+    means, sss = [], []
+    a = 0
+    for n in sizes:
+        group = xs[a:a + n]
+        a += n
+        total = 0.0
+        for x in group:
+            total += x
+        mean = total / n
+        ss = 0.0
+        for x in group:
+            d = x - mean
+            ss += d * d
+        means.append(mean)
+        sss.append(ss)
+    return means, sss
 
 
 def numpy_mean(values: Sequence[float]) -> float:

@@ -179,8 +179,8 @@ def repeatability(fit: FitResult, outcomes,
     # x * m(pH_group) / m(pH_run), m the expected recovery rd/(1+rd) or remainder 1/(1+rd)
     scale = np.where(recovery, rd_group / rd_run, 1.0) * (1.0 + rd_run) / (1.0 + rd_group)
     adjusted = np.array(x) * scale
-    means, ss = acc.group_mean_ss(adjusted, sizes)
-    means_l, ss_l, ph_l = means.tolist(), ss.tolist(), ph_group.tolist()
+    means_l, ss_l = acc.group_moments(adjusted, sizes)
+    ph_l = ph_group.tolist()
     # each column cleaned in one pass (clean_all is clean of every value)
     rsd = clean_all([100.0 * math.sqrt(ss_k / (n - 1)) / mean
                      for n, mean, ss_k in zip(sizes, means_l, ss_l)])
