@@ -390,6 +390,25 @@ def test_group_mean_ss_is_numpy_per_group():
                               else pytest.approx(np.std(g, ddof=1), rel=1e-12))
 
 
+def test_group_moments_are_group_mean_ss_as_lists():
+    # the list form gives group_mean_ss's numbers, on both of its paths (under 8 values a
+    # group, and a wider group summed by numpy)
+    rng = np.random.default_rng(11)
+    for sizes in ([2, 3, 1, 7, 2], [2, 9, 3]):
+        values = rng.uniform(-5.0, 110.0, sum(sizes))
+        means, ss = acc.group_mean_ss(values, sizes)
+        assert acc.group_moments(values, sizes) == (means.tolist(), ss.tolist())
+        assert acc.group_moments(values.tolist(), sizes) == (means.tolist(), ss.tolist())
+
+
+def test_numpy_mean_is_np_mean_to_the_bit():
+    rng = np.random.default_rng(12)
+    for n in (1, 2, 5, 7, 8, 13):
+        values = (rng.uniform(-1.0, 1.0, n) * 10.0 ** rng.integers(-6, 7, n)).tolist()
+        assert acc.numpy_mean(values) == float(np.mean(values))
+    assert str(acc.numpy_mean([-0.0])) == str(float(np.mean([-0.0])))
+
+
 def test_pooled_rsd_from_moments_is_pooled_rsd_usp1010():
     # the same USP <1010> runs, given as sizes, means and squared deviations
     runs = [np.asarray(g, dtype=float) for g in ref.USP1010_RUNS]
