@@ -240,23 +240,30 @@ def ratio_agreement(fit: FitResult, limit: float) -> list[tuple[float, acc.Ratio
     """
     obs = fit.obs
     r = 10.0 ** obs.log_ratio
-    lo, hi = ONE_PHASE_RANGE
     fitted = np.asarray(fit.log_d(obs.pH), dtype=float)
-    rd = r * 10.0 ** fitted
-    e_fit = rd / (1.0 + rd)
-    # log D of each run: directly, or read off the one measured phase where the fitted
-    # fraction lies in ONE_PHASE_RANGE (NaN where it does not enter)
-    is_d = np.array([kind == LOG_D for kind in obs.kind], dtype=bool)
-    v = 10.0 ** obs.y
-    e = np.where([kind == LOG_E for kind in obs.kind], v, 1.0 - v)
-    one_phase = ~is_d & (lo < e_fit) & (e_fit < hi) & (0.0 < e) & (e < 1.0)
-    log_d = np.where(is_d, obs.y, np.nan)
-    log_d[one_phase] = np.log10(e[one_phase] / (1.0 - e[one_phase]) / r[one_phase])
+    is_d = [kind == LOG_D for kind in obs.kind]
+    if all(is_d):
+        # every run measured in both phases (a common study): its log D is its y, and no
+        # log D is read off one phase
+        log_d = obs.y.tolist()
+    else:
+        # log D of each run: directly, or read off the one measured phase where the fitted
+        # fraction lies in ONE_PHASE_RANGE (NaN where it does not enter)
+        lo, hi = ONE_PHASE_RANGE
+        rd = r * 10.0 ** fitted
+        e_fit = rd / (1.0 + rd)
+        d_mask = np.array(is_d, dtype=bool)
+        v = 10.0 ** obs.y
+        e = np.where([kind == LOG_E for kind in obs.kind], v, 1.0 - v)
+        one_phase = ~d_mask & (lo < e_fit) & (e_fit < hi) & (0.0 < e) & (e < 1.0)
+        log_d_a = np.where(d_mask, obs.y, np.nan)
+        log_d_a[one_phase] = np.log10(e[one_phase] / (1.0 - e[one_phase]) / r[one_phase])
+        log_d = log_d_a.tolist()
     # a study has a few distinct ratios among many runs: each one's key formatted once
     keys: dict[float, float] = {}
     ratio_key = [keys[x] if x in keys else keys.setdefault(x, float(f"{x:.4g}"))
                  for x in r.tolist()]
-    log_d, fitted, pH = log_d.tolist(), fitted.tolist(), obs.pH.tolist()
+    fitted, pH = fitted.tolist(), obs.pH.tolist()
     clusters = []
     for idx in _ph_clusters(pH):
         idx = [i for i in idx if math.isfinite(log_d[i])]
