@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from collections import Counter
 from dataclasses import dataclass, field, replace
-from functools import cached_property
+from functools import cached_property, lru_cache
 from pathlib import Path
 
 import numpy as np
@@ -190,6 +190,16 @@ def choose_model(study: Study, obs: Observations) -> tuple[FitResult, list[Candi
     return chosen, cands
 
 
+@lru_cache(maxsize=256)
+def _fine_grid(start: float, stop: float) -> tuple[np.ndarray, tuple[float | None, ...]]:
+    """The curve's fine pH grid from ``start`` to ``stop`` (read-only) and its values as
+    written out: a function of the band's ends alone, which lie on the band's 0.5 grid, so
+    that studies spanning the same pH range share it instead of rebuilding and rounding it."""
+    fine = np.round(np.arange(start, stop + CURVE_STEP / 2, CURVE_STEP), 6)
+    fine.setflags(write=False)
+    return fine, tuple(clean_all(fine, 6))
+
+
 @dataclass
 class StudyReport:
     """Everything computed for one study; :meth:`to_dict` is what every renderer uses."""
@@ -354,11 +364,11 @@ class StudyReport:
             return None
         # the estimate alone on a grid ten times finer, so that the plotted line shows no
         # corners; the band keeps its profile points (each costs a profile search)
-        fine = np.round(np.arange(b.pH[0], b.pH[-1] + CURVE_STEP / 2, CURVE_STEP), 6)
+        fine, fine_pH = _fine_grid(float(b.pH[0]), float(b.pH[-1]))
         return {"pH": clean_all(b.pH, 6), "log_d": clean_all(b.value, 6),
                 "lo": clean_all(b.lo, 6), "hi": clean_all(b.hi, 6),
                 "method": b.method,
-                "fine": {"pH": clean_all(fine, 6), "log_d": clean_all(self.fit.log_d(fine), 6)}}
+                "fine": {"pH": list(fine_pH), "log_d": clean_all(self.fit.log_d(fine), 6)}}
 
     def run_rows(self) -> list[dict]:
         runs = [o.run for o in self.outcomes]
