@@ -364,21 +364,24 @@ class FitResult:
     def log_d_intervals(self, pH) -> list[Estimate]:
         """:meth:`log_d_interval` at each pH of a grid, in order; where the joint region is
         traced, every pH not yet asked for is taken from the boundary in one vectorised pass."""
-        keys = [round(float(x), 9) for x in np.atleast_1d(pH)]
-        new = sorted({k for k in keys if k not in self._log_d_memo})
+        memo = self._log_d_memo
+        keys = [round(x, 9) for x in np.atleast_1d(np.asarray(pH, dtype=float)).tolist()]
+        new = sorted({k for k in keys if k not in memo})
         if new and self._profiles_log_d and self.boundary is not None:
             grid = np.array(new)
             values, ses = self.log_d_wald(grid)
             los, his = self.boundary.log_d_range(self, grid)
+            # a band is a few dozen pH: the quantile read once and NaN tested on Python floats
+            # (lo != lo), not a property chain and a numpy call per pH
+            t95 = self.t95
             for k, value, se, lo, hi in zip(new, values.tolist(), ses.tolist(), los.tolist(),
                                             his.tolist()):
                 self._wald_memo.setdefault(k, (value, se))
-                wald = Interval(value - self.t95 * se, value + self.t95 * se,
-                                "Wald (delta method)")
-                self._log_d_memo[k] = Estimate(
-                    value, se, Interval(None if np.isnan(lo) else lo,
-                                        None if np.isnan(hi) else hi, INTERVAL_METHOD), wald)
-        return [self.log_d_interval(k) for k in keys]
+                wald = Interval(value - t95 * se, value + t95 * se, "Wald (delta method)")
+                memo[k] = Estimate(value, se, Interval(None if lo != lo else lo,
+                                                       None if hi != hi else hi,
+                                                       INTERVAL_METHOD), wald)
+        return [memo[k] if k in memo else self.log_d_interval(k) for k in keys]
 
     def profile_log_d_interval(self, pH0: float,
                                hint: tuple[float, float] | None = None) -> Estimate:
