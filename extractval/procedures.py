@@ -199,6 +199,28 @@ def log_d_band(fit: FitResult, step: float = BAND_STEP) -> LogDBand:
                     arr(lambda e: e.ci95.hi), ests[0].ci95.method)
 
 
+def _equal_portions_pct(log_d, aqueous_mL: float, portion_mL: float, n: int) -> float:
+    """``recovery_pct_from_log_d(log_d, aqueous_mL, [portion_mL] * n)`` as a float.
+
+    For a float log D (the scalar path) the n equal log1p terms are one number: it is
+    computed once and added n times in the same order, which gives the same bits at a
+    fraction of the cost (best_split asks for n = 1..10 at two log D per procedure).
+    """
+    if not isinstance(log_d, float):
+        return float(recovery_pct_from_log_d(log_d, aqueous_mL, [portion_mL] * n))
+    try:
+        d = 10.0 ** log_d
+    except OverflowError:
+        d = math.inf
+    if math.isnan(d):
+        return math.nan
+    term = math.log1p(d * float(portion_mL) / aqueous_mL)
+    log_q = 0.0
+    for _ in range(n):
+        log_q += term
+    return 100.0 * (1.0 - math.exp(-log_q))
+
+
 def _recovery_lower(log_d_lo: float | None, aqueous_mL: float, organic_mL) -> float | None:
     if log_d_lo is None or not math.isfinite(log_d_lo):
         return None
@@ -302,14 +324,17 @@ def steps_needed(fit: FitResult, p: Procedure, target_pct: float) -> tuple[dict 
 def best_split(fit: FitResult, p: Procedure, n_max: int = MAX_PORTIONS) -> tuple[tuple, float]:
     """The procedure's total solvent split into 1..n_max equal portions, and the split limit."""
     est = fit.log_d_interval(p.pH)
-    rows = []
-    for n in range(1, n_max + 1):
-        portions = [p.total_organic_mL / n] * n
-        rows.append({"portions": n, "per_portion_mL": clean(p.total_organic_mL / n),
-                     "recovery_pct": clean(float(recovery_pct_from_log_d(est.value, p.aqueous_mL,
-                                                                          portions))),
-                     "recovery_lo_pct": clean(_recovery_lower(est.ci95.lo, p.aqueous_mL,
-                                                              portions))})
+    total, aq, lo = p.total_organic_mL, p.aqueous_mL, est.ci95.lo
+    lo = lo if lo is not None and math.isfinite(lo) else None      # as _recovery_lower
+    counts = range(1, n_max + 1)
+    per = [total / n for n in counts]
+    rec = [_equal_portions_pct(est.value, aq, v, n) for n, v in zip(counts, per)]
+    rec_lo = [None if lo is None else _equal_portions_pct(lo, aq, v, n)
+              for n, v in zip(counts, per)]
+    # the three columns cleaned in one clean_all pass (clean's rounding, 30 calls fewer)
+    per, rec, rec_lo = (clean_all(col) for col in (per, rec, rec_lo))
+    rows = [{"portions": n, "per_portion_mL": per[i], "recovery_pct": rec[i],
+             "recovery_lo_pct": rec_lo[i]} for i, n in enumerate(counts)]
     limit = 100.0 * (1.0 - chem.split_limit_remaining(10.0 ** est.value, p.aqueous_mL,
                                                        p.total_organic_mL))
     return tuple(rows), limit

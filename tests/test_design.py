@@ -88,6 +88,21 @@ def test_best_split_never_beats_the_limit():
     assert rec[-1] < d["split_limit_recovery_pct"]
 
 
+def test_equal_portions_recovery_is_the_general_formula_to_the_bit():
+    # best_split sums one log1p term n times instead of n equal terms: the same operations in
+    # the same order, so exactly the number recovery_pct_from_log_d gives (either path)
+    from extractval.procedures import _equal_portions_pct, recovery_pct_from_log_d
+
+    rng = np.random.default_rng(20261205)
+    log_d = np.concatenate([rng.uniform(-8.0, 8.0, 300), [0.0, -400.0, 400.0, np.inf, -np.inf,
+                                                           np.nan]])
+    for x in log_d.tolist():
+        for aq, v, n in ((25.0, 30.0, 1), (10.0, 3.3, 3), (50.0, 1.7, 7), (7.5, 0.2, 10)):
+            got = _equal_portions_pct(x, aq, v, n)
+            want = float(recovery_pct_from_log_d(x, aq, [v] * n))
+            assert got == want or (math.isnan(got) and math.isnan(want))
+
+
 def test_design_space_map_matches_closed_form():
     proc = Procedure("P1", "x", 3.0, 25.0, (10.0,))
     ds = _report((proc,))["design_space"]
