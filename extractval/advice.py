@@ -435,7 +435,8 @@ def _greedy(m_inv: np.ndarray, c: np.ndarray, x: np.ndarray, k: int,
         if j == k - 1:
             break       # the inverse after the last choice is never read: not updated
         u = m_inv @ x[i]
-        m_inv -= np.outer(u, u) / (1.0 + float(x[i] @ u))   # Sherman-Morrison
+        # Sherman-Morrison; u u' written as the product np.outer computes, without its wrapper
+        m_inv -= u[:, None] * u[None, :] / (1.0 + float(x[i] @ u))
     return chosen, crit
 
 
@@ -453,9 +454,11 @@ TIE = {"linearised": 1e-6, "simulation": 1e-3}
 
 def _ties(scores: np.ndarray, rel: float) -> np.ndarray:
     """Scores rounded so that near-equal ones compare equal."""
-    scale = max(float(np.min(np.abs(scores))), 1e-300)
+    # the array methods and np.rint (what np.round does with no decimals) rather than the
+    # np.min / np.round wrappers: a greedy batch asks for this seven times per study
+    scale = max(float(np.abs(scores).min()), 1e-300)
     with np.errstate(invalid="ignore", over="ignore"):
-        return np.where(np.isfinite(scores), np.round(scores / (scale * rel)), np.inf)
+        return np.where(np.isfinite(scores), np.rint(scores / (scale * rel)), np.inf)
 
 
 def _argmin_stable(v: np.ndarray, preference: np.ndarray) -> int:
@@ -463,8 +466,8 @@ def _argmin_stable(v: np.ndarray, preference: np.ndarray) -> int:
     then the one nearest the measured pH (the first of a lexsort by ties, then preference,
     found without sorting: preference ranks every candidate differently)."""
     ties = _ties(v, TIE["linearised"])
-    best = np.flatnonzero(ties == ties.min())
-    return int(best[np.argmin(preference[best])])
+    best = (ties == ties.min()).nonzero()[0]
+    return int(best[preference[best].argmin()])
 
 
 def _ranked_distinct(cands: Candidates, scores: np.ndarray, n: int,
