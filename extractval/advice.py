@@ -28,6 +28,7 @@ every build).
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import lru_cache
 
 import numpy as np
 
@@ -115,7 +116,7 @@ class Candidates:
     def observations(self, idx, y=None) -> Observations:
         idx = np.asarray(idx, dtype=int)
         kinds = tuple(FORM_KIND[self.form[i]] for i in idx.tolist())
-        ids = tuple(f"next-{j + 1}" for j in range(idx.size))
+        ids = _next_ids(idx.size)
         return Observations(ids, self.pH[idx], np.log10(self.ratio[idx]), kinds,
                             np.zeros(idx.size) if y is None else np.asarray(y, dtype=float),
                             ids)
@@ -123,6 +124,13 @@ class Candidates:
     def run(self, i: int) -> dict:
         return {"pH": clean(self.pH[i], 6), "ratio": clean(self.ratio[i], 6),
                 "form": self.form[i]}
+
+
+@lru_cache(maxsize=None)
+def _next_ids(n: int) -> tuple[str, ...]:
+    """Run ids of n candidate runs, "next-1" to "next-n": one shared tuple per n, since writing
+    a hundred or more ids cost more than the rest of the candidates' observations."""
+    return tuple(f"next-{j + 1}" for j in range(n))
 
 
 @dataclass
@@ -367,14 +375,15 @@ def _by_frequency(items: list) -> list:
 
 
 def weighted_rows(fit: FitResult, cands: Candidates, theta: np.ndarray | None = None,
-                  idx=None) -> np.ndarray:
+                  idx=None, log_d: np.ndarray | None = None) -> np.ndarray:
     """Weighted Jacobian rows (d y / d theta) / f of candidate runs, as the fit would see them:
-    the rows a run adds to J, so that it adds x x' to the information J'J."""
+    the rows a run adds to J, so that it adds x x' to the information J'J. ``log_d``: log D
+    at those runs for ``theta`` when the caller has it already (advise keeps it to draw)."""
     theta = fit.theta if theta is None else theta
     idx = np.arange(cands.size) if idx is None else np.asarray(idx, dtype=int)
     obs = cands.observations(idx)
     g = fit.model.jacobian(obs.pH, theta)
-    slope = obs.slope(fit.model.log_d(obs.pH, theta))
+    slope = obs.slope(fit.model.log_d(obs.pH, theta) if log_d is None else log_d)
     return g * (slope / obs.sd_factor)[:, None]
 
 
@@ -568,7 +577,9 @@ def advise(fit: FitResult, study: Study,
     pH_range, range_note = usable_pH_range(fit, study)
     cands = build_candidates(fit, study, pH_range)
     c = target.gradient(fit, fit.theta)
-    x = weighted_rows(fit, cands)
+    # log D at every candidate: for their information rows and, kept, to draw the advice
+    log_d = fit.log_d(cands.pH)
+    x = weighted_rows(fit, cands, log_d=log_d)
     m_inv = _information_inverse(fit)
     s2 = fit.residual_sd ** 2
     n, p = fit.n, fit.p
@@ -610,5 +621,4 @@ def advise(fit: FitResult, study: Study,
         if _open_now(fit, target):
             before = None
     return NextRuns(target, criterion, method, weak, pH_range, range_note, cands, before,
-                    singles, batches, fit.residual_sd, notes, target.value(fit),
-                    fit.log_d(cands.pH))
+                    singles, batches, fit.residual_sd, notes, target.value(fit), log_d)
