@@ -455,19 +455,26 @@ def design_space(band: LogDBand, procedures, target_pct: float | None,
     ``measured_pH`` is the pH span of the runs in the fit: the map beyond it (the band is
     traced BAND_MARGIN further on each side) is an extrapolation of the model.
     """
-    # all cells at once: the same operations as recovery_pct_from_log_d, cell by cell
-    D = _ratio(np.where(np.isfinite(band.lo), band.lo, 0.0))
+    # all cells at once: the same operations as recovery_pct_from_log_d, cell by cell. Its
+    # log1p terms of n equal portions are one number per cell: that term is computed once and
+    # added n times in order, the bits numpy's sum of the n copies gives (it adds fewer than
+    # eight terms one by one; MAP_PORTIONS stays far below that)
+    closed = np.isfinite(band.lo)
+    D = _ratio(np.where(closed, band.lo, 0.0))
+    term = np.log1p(D[:, None] * (np.array(MAP_RATIOS) * aqueous_mL) / aqueous_mL)
+    closed = closed.tolist()
+    width = len(MAP_RATIOS)
     table = []
     for n in MAP_PORTIONS:
-        portions = np.repeat(np.array(MAP_RATIOS)[:, None] * aqueous_mL, n, axis=1)
-        q = np.exp(-np.sum(np.log1p(D[:, None, None] * portions / aqueous_mL), axis=-1))
-        rec = 100.0 * (1.0 - q)
+        log_q = term
+        for _ in range(n - 1):
+            log_q = log_q + term
+        rec = 100.0 * (1.0 - np.exp(-log_q))
         # what clean(x, 6) gives, for the whole table at once: ~700 cells per study, all
         # finite where lo is
         rows = clean_all(rec.ravel(), 6)
-        width = rec.shape[1]
-        table.append([rows[i * width:(i + 1) * width] if np.isfinite(lo) else [None] * width
-                      for i, lo in enumerate(band.lo)])
+        table.append([rows[i * width:(i + 1) * width] if ok else [None] * width
+                      for i, ok in enumerate(closed)])
     span = (float(band.pH[0]), float(band.pH[-1]))
     return {
         "pH": clean_all(band.pH, 6),
