@@ -188,11 +188,11 @@ class NextRuns:
             out["log_d"] = clean(self.log_d[i], 6)
         return out
 
-    def _groups(self, idx: list[int]) -> list[dict]:
-        """The runs of a batch with repeats counted, in the order chosen."""
+    def _groups(self, runs: list[dict]) -> list[dict]:
+        """The runs of a batch (its :meth:`_run` rows, in the order chosen) with repeats
+        counted."""
         out: list[dict] = []
-        for i in idx:
-            run = self._run(i)
+        for run in runs:
             same = [g for g in out if all(g[k] == run[k] for k in ("pH", "ratio", "form"))]
             if same:
                 same[0]["count"] += 1
@@ -203,6 +203,20 @@ class NextRuns:
     def to_dict(self) -> dict:
         c = self.candidates
         t = self.target
+        # each candidate's row is written once: the singles and the batches name the same few
+        # candidates over and over (the batch of 6 holds the batch of 3, and each batch's
+        # groups repeat its runs); every place in the output gets its own copy
+        written: dict[int, dict] = {}
+
+        def run(i: int) -> dict:
+            if i not in written:
+                written[i] = self._run(i)
+            return dict(written[i])
+
+        def batch(idx: list[int], w: float) -> dict:
+            runs = [run(k) for k in idx]
+            return dict(k=len(idx), runs=runs, groups=self._groups(runs), **self._row(w))
+
         current = (t.procedure.log_d if t.kind == "procedure"
                    else None)
         return {
@@ -223,11 +237,9 @@ class NextRuns:
                 "forms": sorted(set(c.form)),
                 "count": c.size,
             },
-            "single_runs": [dict(rank=i + 1, **self._run(k), **self._row(w))
+            "single_runs": [dict(rank=i + 1, **run(k), **self._row(w))
                             for i, (k, w) in enumerate(self.singles)],
-            "batches": [dict(k=len(idx), runs=[self._run(k) for k in idx],
-                             groups=self._groups(idx), **self._row(w))
-                        for idx, w in self.batches],
+            "batches": [batch(idx, w) for idx, w in self.batches],
             "notes": list(self.notes),
         }
 
