@@ -30,6 +30,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from functools import lru_cache
 
+import math
+
 import numpy as np
 
 from .fitting import (LOG_D, LOG_E, LOG_Q, FitImpossible, FitResult, Observations, fit_model,
@@ -162,7 +164,7 @@ class NextRuns:
         lo = self.target.procedure.log_d.ci95.lo
         if width is not None and width == self.width_before:
             return clean(self.target.procedure.recovery_pct.ci95.lo)   # the reported bound
-        if width is None or not np.isfinite(width):
+        if width is None or not math.isfinite(width):
             return None
         if lo is not None and self.width_before:
             below = (self.value - lo) * width / self.width_before
@@ -172,13 +174,15 @@ class NextRuns:
         return clean(float(recovery_pct_from_log_d(self.value - below, p.aqueous_mL,
                                                    p.organic_mL)), 10)
 
-    def _row(self, width: float) -> dict:
+    def _row(self, width: float, before: tuple[float | None, float | None]) -> dict:
+        """Width after and what it gives; ``before`` is the cleaned width now and the recovery
+        bound now, the same in every row (to_dict writes them once)."""
         shrink = (100.0 * (1.0 - width / self.width_before)
-                  if self.width_before and np.isfinite(width) else None)
-        out = {"width_before": clean(self.width_before, 6), "width_after": clean(width, 6),
+                  if self.width_before and math.isfinite(width) else None)
+        out = {"width_before": before[0], "width_after": clean(width, 6),
                "shrink_pct": clean(shrink, 2)}
         if self.target.kind == "procedure":
-            out["recovery_lower_pct_before"] = self._recovery_lower(self.width_before)
+            out["recovery_lower_pct_before"] = before[1]
             out["recovery_lower_pct_after"] = self._recovery_lower(width)
         return out
 
@@ -207,6 +211,7 @@ class NextRuns:
         # candidates over and over (the batch of 6 holds the batch of 3, and each batch's
         # groups repeat its runs); every place in the output gets its own copy
         written: dict[int, dict] = {}
+        before = (clean(self.width_before, 6), self._recovery_lower(self.width_before))
 
         def run(i: int) -> dict:
             if i not in written:
@@ -215,7 +220,7 @@ class NextRuns:
 
         def batch(idx: list[int], w: float) -> dict:
             runs = [run(k) for k in idx]
-            return dict(k=len(idx), runs=runs, groups=self._groups(runs), **self._row(w))
+            return dict(k=len(idx), runs=runs, groups=self._groups(runs), **self._row(w, before))
 
         current = (t.procedure.log_d if t.kind == "procedure"
                    else None)
@@ -237,7 +242,7 @@ class NextRuns:
                 "forms": sorted(set(c.form)),
                 "count": c.size,
             },
-            "single_runs": [dict(rank=i + 1, **run(k), **self._row(w))
+            "single_runs": [dict(rank=i + 1, **run(k), **self._row(w, before))
                             for i, (k, w) in enumerate(self.singles)],
             "batches": [batch(idx, w) for idx, w in self.batches],
             "notes": list(self.notes),
