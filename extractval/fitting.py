@@ -1227,7 +1227,9 @@ class _Boundary:
     def _end_1d(g: np.ndarray, sign: float) -> float:
         """:meth:`range_of` for one quantity and one end (sign -1: least, +1: greatest), in
         scalars (the common call, one pH at a time)."""
-        i = int(np.argmax(g)) if sign > 0 else int(np.argmin(g))
+        # the array's own argmax/argmin, without np.argmax's wrapper: a pH window's root
+        # search asks for an end at every step
+        i = int(g.argmax()) if sign > 0 else int(g.argmin())
         a, b, c = sign * g.item(i - 1), sign * g.item(i), sign * g.item((i + 1) % g.size)
         curv = a - 2.0 * b + c
         shift = min(max(0.5 * (a - c) / curv, -1.0), 1.0) if curv < 0 else 0.0
