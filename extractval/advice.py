@@ -29,6 +29,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from functools import lru_cache
+from itertools import chain
 
 import math
 
@@ -362,9 +363,13 @@ def usable_pH_range(fit: FitResult, study: Study) -> tuple[tuple[float, float], 
 def build_candidates(fit: FitResult, study: Study, pH_range: tuple[float, float]) -> Candidates:
     """pH on the PH_STEP grid x the study's measurement forms x ratios (one-phase forms only:
     with both phases measured, the constant-CV error model makes the ratio irrelevant)."""
-    used = [r for r in study.runs if not r.excluded and r.measurement in FORM_KIND]
-    forms = _by_frequency([r.measurement for r in used]) or ["both"]
-    own = [float(f"{r.volume_ratio:.4g}") for r in used]
+    # (measurement, volume ratio) of each run that enters: each property read once per run
+    used = [(form, r.volume_ratio) for r in study.runs
+            if not r.excluded and (form := r.measurement) in FORM_KIND]
+    forms = _by_frequency([form for form, _ in used]) or ["both"]
+    # replicates share their volumes: each distinct ratio is written to 4 digits once
+    written = {v: float(f"{v:.4g}") for v in dict.fromkeys(v for _, v in used)}
+    own = [written[v] for _, v in used]
     own_ratios = _by_frequency([x for x in own if RATIO_LIMITS[0] <= x <= RATIO_LIMITS[1]])
     main = own_ratios[0] if own_ratios else 1.0
     ratios = own_ratios + [x for x in RATIOS if x not in own_ratios]
@@ -380,7 +385,7 @@ def build_candidates(fit: FitResult, study: Study, pH_range: tuple[float, float]
     preference = np.empty(pH.size, dtype=int)
     preference[np.lexsort((outside, block))] = np.arange(pH.size)
     return Candidates(pH, np.repeat(np.array([r for _, r in blocks], dtype=float), grid.size),
-                      tuple(f for f, _ in blocks for _ in range(grid.size)), preference)
+                      tuple(chain.from_iterable([f] * grid.size for f, _ in blocks)), preference)
 
 
 def _by_frequency(items: list) -> list:
