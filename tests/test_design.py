@@ -169,6 +169,36 @@ def test_design_space_map_is_the_cell_by_cell_recovery():
                                          6)
 
 
+@pytest.mark.parametrize("one_call", [True, False])
+def test_design_space_cells_are_the_general_formula_cleaned(one_call, monkeypatch):
+    # the map sums one log1p term per portion and rounds its three tables in one call; each
+    # cell must be what the general formula (a sum over the portions) and clean_all give, table
+    # by table; also where the one-call rounding declines (None) and each table is cleaned on
+    # its own
+    from extractval import procedures
+    from extractval.procedures import MAP_PORTIONS, MAP_RATIOS, LogDBand, design_space
+    from extractval.results import clean_all
+
+    if not one_call:
+        monkeypatch.setattr(procedures, "round_significant", lambda a, digits: None)
+    rng = np.random.default_rng(11)
+    pH = np.arange(0.0, 12.5, 0.5)
+    lo = rng.uniform(-4.0, 4.0, pH.size)
+    lo[3], lo[7], lo[-1] = np.nan, -20.0, 350.0
+    band = LogDBand(pH, lo + 0.5, lo, lo + 1.0, "test")
+    ds = design_space(band, (), 95.0)
+    with np.errstate(over="ignore"):
+        D = np.power(10.0, np.where(np.isfinite(lo), lo, 0.0))
+    for k, n in enumerate(MAP_PORTIONS):
+        portions = np.repeat(np.array(MAP_RATIOS)[:, None] * 10.0, n, axis=1)
+        rec = 100.0 * (1.0 - np.exp(-np.sum(np.log1p(D[:, None, None] * portions / 10.0),
+                                            axis=-1)))
+        flat = clean_all(rec.ravel(), 6)
+        w = len(MAP_RATIOS)
+        assert ds["recovery_lo_pct"][k] == [flat[i * w:(i + 1) * w] if np.isfinite(x)
+                                            else [None] * w for i, x in enumerate(lo)]
+
+
 def test_clean_all_is_clean_of_each_value():
     # the one-pass cleaning of a column or an array writes what clean() writes for each value:
     # Python's own format(x, ".<n>g") as reference, None for missing and non-finite values
