@@ -1256,9 +1256,12 @@ class _Boundary:
         """Ends of the 95 % interval of log D at each pH of a grid (NaN beyond LOG_D_LIMITS:
         open)."""
         pH = np.asarray(pH, dtype=float)
-        g = self.points[:, :1] + fit.model.h(pH[None, :], *[self.points[:, k:k + 1]
-                                                             for k in range(1, fit.p)])
-        lo, hi = self.range_of(g)
+        # computed as (pH, point), each pH's values over the boundary contiguous, and handed
+        # to range_of transposed: its searches down each column then read contiguous memory
+        # (the same numbers as the (point, pH) layout, element by element)
+        log_k, rest = self._columns
+        g = log_k[None, :] + fit.model.h(pH[:, None], *[c[None, :] for c in rest])
+        lo, hi = self.range_of(g.T)
         lo = np.where(lo <= LOG_D_LIMITS[0], np.nan, lo)
         hi = np.where(hi >= LOG_D_LIMITS[1], np.nan, hi)
         return lo, hi
