@@ -27,11 +27,10 @@ every build).
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from functools import lru_cache
 from itertools import chain
-
-import math
 
 import numpy as np
 
