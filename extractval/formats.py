@@ -16,6 +16,10 @@ The rules that are not plain digit counts (the project's conventions, not a stan
 * **Tiny fractions** (style ``frac``): below :data:`FRACTION_FLOOR` (one part per million) the
   text "< 1e-06". The model would give 5.5e-84 after enough portions, but no run of a study
   measures anything near that; the register keeps the identifier and shows the bound.
+* **Significant digits are kept** (styles ``se`` and ``frac``, numbers estimated from data):
+  a standard error of 0.04999 is written "0.050", not "0.05", which would claim one digit
+  only; a point left bare by that rule ("12.") is dropped. Limits and set values (style
+  ``g``) are written as they were set ("95", not "95.00").
 * **No negative zero**: a value that rounds to zero is written without a sign ("0.00", never
   "-0.00").
 """
@@ -40,9 +44,9 @@ RECOVERY_TWO_DECIMALS_PCT = 99.85
 FRACTION_FLOOR = 1e-6
 
 #: digits of each plain number style (format specifications)
-_FORMAT_SPECS = {"log": ".3f", "pH": ".2f", "r": ".3f", "se": ".2g", "f2": ".2f", "mL": "g",
+_FORMAT_SPECS = {"log": ".3f", "pH": ".2f", "r": ".3f", "se": "#.2g", "f2": ".2f", "mL": "g",
                  "g": ".4g", "r4": ".4f", "f1": ".1f", "g6": ".6g",
-                "f3": ".3f"}
+                 "f3": ".3f"}
 #: the styles :func:`fmt_number` knows
 STYLES = ("int", "log", "pH", "r", "se", "frac", "pct", "f2", "rel", "mL", "g", "r4", "f1",
           "g6", "f3")
@@ -56,6 +60,17 @@ def _unsigned_zero(text: str) -> str:
     ('0.00', '-0.01', '0 %')
     """
     return _NEGATIVE_ZERO.sub("", text) if text.startswith("-") else text
+
+
+def _no_bare_point(text: str) -> str:
+    """ "12." -> "12": the point the alternate form ("#") leaves after a whole number.
+
+    >>> _no_bare_point(format(0.04999, "#.2g")), _no_bare_point(format(12.4, "#.2g"))
+    ('0.050', '12')
+    >>> _no_bare_point(format(1.2e-7, "#.2g")), _no_bare_point(format(0.7, "#.4g"))
+    ('1.2e-07', '0.7000')
+    """
+    return text[:-1] if text.endswith(".") else text
 
 
 def fmt_pct(x: float | None) -> str:
@@ -82,14 +97,14 @@ def fmt_fraction(x: float | None) -> str:
 
     >>> fmt_fraction(0.04281604923), fmt_fraction(2.517609524e-07), fmt_fraction(5.5e-84)
     ('0.0428', '< 1e-06', '< 1e-06')
-    >>> fmt_fraction(1.2e-5), fmt_fraction(0.0)
-    ('1.2e-05', '< 1e-06')
+    >>> fmt_fraction(1.2e-5), fmt_fraction(0.0), fmt_fraction(0.0210)
+    ('1.20e-05', '< 1e-06', '0.0210')
     """
     if x is None:
         return "open"
     if 0.0 <= x < FRACTION_FLOOR:          # 0 too: a float underflow, never a true zero
         return f"< {FRACTION_FLOOR:.0e}"
-    return _unsigned_zero(format(x, ".3g"))
+    return _unsigned_zero(format(x, "#.3g"))
 
 
 def fmt_number(value, style: str) -> str:
@@ -115,7 +130,7 @@ def fmt_number(value, style: str) -> str:
     if style == "rel":                      # a relative SD held as a fraction, shown in percent
         return _unsigned_zero(format(value, ".2%").replace("%", " %"))
     if style in _FORMAT_SPECS:
-        return _unsigned_zero(format(value, _FORMAT_SPECS[style]))
+        return _unsigned_zero(_no_bare_point(format(value, _FORMAT_SPECS[style])))
     raise ValueError(f"unknown number style {style!r}")
 
 

@@ -121,6 +121,18 @@ def test_no_negative_zero_and_a_floor_for_tiny_fractions(value, style, shown):
     assert fmt_number(value, style) == shown
 
 
+@pytest.mark.parametrize("value, style, shown", [
+    (0.04998752981, "se", "0.050"), (0.0719, "se", "0.072"), (12.4, "se", "12"),
+    (4.96, "se", "5.0"), (0.0210, "frac", "0.0210"), (0.00025, "frac", "0.000250"),
+    (4.5e-06, "frac", "4.50e-06"), (95.0, "g", "95"), (0.7, "g", "0.7")])
+def test_significant_zeros_of_estimates_are_written_and_set_limits_stay_as_set(value, style,
+                                                                              shown):
+    """An SE of 0.04999 is "0.050" (two significant digits, as every other SE), not "0.05";
+    a set limit (style g) is written as set ("95"). Exact strings: the suite's doctests compare
+    numbers loosely (NUMBER flag) and cannot see a dropped zero."""
+    assert fmt_number(value, style) == shown
+
+
 def test_no_100_point_0_and_no_tiny_numbers_anywhere(edge):
     """The procedure far on the plateau: the page, the register, the summary and the reading
     write its recovery as a bound and give the fraction left in the water instead."""
