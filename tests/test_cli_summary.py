@@ -65,6 +65,24 @@ def test_text_shows_status_verdicts_and_worst_cases_from_the_json(outputs, capsy
         assert f"lower 95 % end {fmt_number(wc['recovery_pct'], 'pct')} %" in line
 
 
+def test_constants_read_as_the_register_writes_them(outputs, capsys):
+    """log K and pKa, their SE and interval ends: the CLI line carries the register's digits
+    (formats: styles log and se), so the terminal and the dossier never show two SEs."""
+    from extractval.report.register import study_register
+
+    _, (text_args, json_args) = outputs
+    _, text, _ = _run(capsys, text_args)
+    _, js, _ = _run(capsys, json_args)
+    d = json.loads(js)
+    register = {q.name: q for q in study_register(d)}
+    for name in d["parameters"]:
+        q = register[name]
+        shown = [q.get(s).display for s in ("value", "se", "ci95_lo", "ci95_hi")]
+        line, = [ln for ln in text.splitlines() if ln.split()[:1] == [name]]
+        assert line.split() == [name, shown[0], "SE", shown[1], "95%", "CI",
+                                f"[{shown[2]},", f"{shown[3]}]"]
+
+
 def test_json_shape_is_unchanged(outputs, capsys):
     folder, (_, json_args) = outputs
     _, js, _ = _run(capsys, json_args)

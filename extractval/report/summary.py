@@ -32,8 +32,10 @@ def render_summary(d: dict, input_warnings=()) -> str:
         lines.append(f"   NOT FITTED: {prob}")
     for name, p in d["parameters"].items():
         lo, hi = p["ci95"]
-        lines.append(f"   {name:<9} {fmt(p['value'])}  SE {fmt(p['se'])}  "
-                     f"95% CI [{fmt(lo)}, {fmt(hi)}]")
+        # the digits of the register and the study page (formats: log and se styles)
+        lines.append(f"   {name:<9} {fmt_number(p['value'], 'log')}  "
+                     f"SE {fmt_number(p['se'], 'se')}  "
+                     f"95% CI [{fmt_number(lo, 'log')}, {fmt_number(hi, 'log')}]")
     st = d.get("statistics")
     if st:
         lines.append(f"   residual sd {100 * st['residual_sd']:.2f} % per measured amount, "
