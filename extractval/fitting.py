@@ -1208,8 +1208,14 @@ class _Boundary:
     @cached_property
     def parameter_ranges(self) -> tuple[np.ndarray, np.ndarray]:
         """Least and greatest value of each parameter over the boundary (each of shape (p,)):
-        the first steps of the parameters' profiles and the check of the trace share them."""
-        return self.range_of(self.points)
+        the first steps of the parameters' profiles and the check of the trace share them.
+
+        Column by column with :meth:`_end_1d`, the same operations as :meth:`range_of` in
+        scalars: for the two or three columns here numpy's per-call overhead is most of the
+        cost."""
+        cols = self.points.T
+        return (np.array([self._end_1d(g, -1.0) for g in cols]),
+                np.array([self._end_1d(g, 1.0) for g in cols]))
 
     def reproduces(self, fit: FitResult) -> bool:
         """Do the traced ranges of the parameters match their profile intervals?"""
