@@ -335,9 +335,11 @@ class FitResult:
     def log_d_wald(self, pH) -> tuple[np.ndarray, np.ndarray]:
         """log D at pH and its delta-method standard error (correlations included)."""
         pH = np.atleast_1d(np.asarray(pH, dtype=float))
-        g = self.model.jacobian(pH, self.theta)
+        # log D and its gradient from one evaluation of the model (the very numbers that
+        # model.log_d and model.jacobian give, tests/test_models.py)
+        value, g = self.model.value_and_jacobian(pH, self.theta)
         se = np.sqrt(np.clip(np.einsum("ij,jk,ik->i", g, self.covariance, g), 0, None))
-        return self.model.log_d(pH, self.theta), se
+        return value, se
 
     def log_d_interval(self, pH0: float, hint: tuple[float, float] | None = None) -> Estimate:
         """log D at one pH with its 95 % interval (profile likelihood where the model allows).
