@@ -493,55 +493,60 @@ def _least_squares(fun, x0, lo, hi, max_iter: int = 200, s_tol: float = 0.0,
     if x.size == 0:
         return x, s, out, True
     lam = 1e-3
-    # the box as Python floats: the checks below are on 1-3 numbers, where numpy's per-call
-    # overhead is most of the cost (broadcast_to, itself costly, only for a box not yet of
-    # x's shape: the callers here give one)
+    # Only r @ J and J'J (sums over the runs) are numpy's; the rest works on the 1-3 numbers
+    # of x, g and A as Python floats, with the same operations in the same order, where
+    # numpy's per-call overhead would be most of the cost. The box likewise (broadcast_to,
+    # itself costly, only for a box not yet of x's shape: the callers here give one).
     box = list(zip(*(b.tolist() if np.shape(b) == x.shape else np.broadcast_to(b, x.shape).tolist()
                      for b in (lo, hi))))
+    xs = x.tolist()
     for _ in range(max_iter):
         J = out[1]
-        g = r @ J
-        A = J.T @ J
-        xs = x.tolist()
-        held = None
+        g_arr = r @ J
+        A_arr = J.T @ J
+        free = None           # the parameters the step is solved for when some are held
         if any(not a < xj < b for xj, (a, b) in zip(xs, box)):
-            at_lo, at_hi = x <= lo, x >= hi
-            held = (at_lo & (g > 0)) | (at_hi & (g < 0))
-            if held.all():
+            held = [(xj <= a and gj > 0) or (xj >= b and gj < 0)
+                    for xj, gj, (a, b) in zip(xs, g_arr.tolist(), box)]
+            if all(held):
                 break
-            if held.any():
-                free = ~held
-                A, g = A[np.ix_(free, free)], g[free]
-            else:
-                held = None
+            if any(held):
+                free = [i for i, h in enumerate(held) if not h]
+                A_arr, g_arr = A_arr[np.ix_(free, free)], g_arr[free]
+        g, A = g_arr.tolist(), A_arr.tolist()
+        minus_g = [-v for v in g]
         if s_tol > 0.0:
             # the decrease the Gauss-Newton model predicts for the full step, g'A^-1 g / 2
+            # (one parameter: the product itself; more: numpy's dot, as the sum was made)
             try:
-                if -0.5 * float(g @ _solve_small(A, -g)) <= s_tol:
+                gn = _solve_small(A, minus_g)
+                if -0.5 * (g[0] * gn[0] if len(g) == 1 else float(g_arr @ np.array(gn))) <= s_tol:
                     break
             except np.linalg.LinAlgError:
                 pass
-        d = [1e-12 if v <= 0 else v for v in A.diagonal().tolist()]
+        d = [1e-12 if row[i] <= 0 else row[i] for i, row in enumerate(A)]
         scale = 1.0 + _max_abs(xs)
         improved = False
         while lam < 1e16:
             try:
-                step = _solve_small(A, -g, [lam * dj for dj in d])
+                step = _solve_small(A, minus_g, [lam * dj for dj in d])
             except np.linalg.LinAlgError:
                 lam *= 10.0
                 continue
-            longest = _max_abs(step.tolist())
+            longest = _max_abs(step)
             if longest > max_step:
-                step = step * (max_step / longest)
-            if held is None:
-                x_new = x + step
+                step = [v * (max_step / longest) for v in step]
+            if free is None:
+                new = [xj + sj for xj, sj in zip(xs, step)]
             else:
-                x_new = x.copy()
-                x_new[~held] += step
-            x_new = np.minimum(np.maximum(x_new, lo), hi)
-            moved = _max_abs([a - b for a, b in zip(x_new.tolist(), xs)])
+                new = list(xs)
+                for i, sj in zip(free, step):
+                    new[i] += sj
+            new = [_clip(v, a, b) for v, (a, b) in zip(new, box)]
+            moved = _max_abs([a - b for a, b in zip(new, xs)])
             if moved <= 1e-11 * scale:
                 break          # no step left to take: converged (or pinned at a bound)
+            x_new = np.array(new)
             out_new = fun(x_new)
             r_new = out_new[0]
             s_new = float(r_new @ r_new)
@@ -553,7 +558,7 @@ def _least_squares(fun, x0, lo, hi, max_iter: int = 200, s_tol: float = 0.0,
             break              # no step lowers S any more: a minimum to working precision
         small = moved < 1e-10 * scale
         flat = s - s_new <= 1e-15 * max(s, 1e-300)
-        x, out, r, s = x_new, out_new, r_new, s_new
+        x, xs, out, r, s = x_new, new, out_new, r_new, s_new
         lam = max(lam * 0.1, 1e-12)
         if small or flat:
             break
@@ -569,26 +574,37 @@ def _max_abs(values: list[float]) -> float:
     return largest if all(v == v for v in values) else math.nan
 
 
-def _solve_small(a: np.ndarray, b: np.ndarray, damping: list[float] | None = None) -> np.ndarray:
-    """Solve (a + diag(damping)) x = b for the 1-3 parameters here; 1 x 1 and 2 x 2 in closed
-    form, which is several times cheaper than a LAPACK call at this size."""
-    if b.size == 1:
-        a00 = float(a[0, 0])
+def _clip(v: float, lo: float, hi: float) -> float:
+    """np.minimum(np.maximum(v, lo), hi) of one number, as numpy gives it: NaN when any is NaN,
+    and on a tie (0.0 against -0.0) the bound."""
+    if v != v or lo != lo or hi != hi:
+        return math.nan
+    v = v if v > lo else lo
+    return v if v < hi else hi
+
+
+def _solve_small(a: list[list[float]], b: list[float],
+                 damping: list[float] | None = None) -> list[float]:
+    """Solve (a + diag(damping)) x = b for the 1-3 parameters here, as lists of floats; 1 x 1
+    and 2 x 2 in closed form, which is several times cheaper than a LAPACK call at this size."""
+    if len(b) == 1:
+        a00 = a[0][0]
         if damping:
             a00 += damping[0]
         if a00 == 0.0 or not math.isfinite(a00):
             raise np.linalg.LinAlgError("singular")
-        return b / a00
-    if b.size == 2:
-        (a00, a01), (a10, a11) = a.tolist()
+        return [b[0] / a00]
+    if len(b) == 2:
+        (a00, a01), (a10, a11) = a
         if damping:
             a00, a11 = a00 + damping[0], a11 + damping[1]
         det = a00 * a11 - a01 * a10
         if det == 0.0 or not math.isfinite(det):
             raise np.linalg.LinAlgError("singular")
-        b0, b1 = b.tolist()
-        return np.array([(a11 * b0 - a01 * b1) / det, (a00 * b1 - a10 * b0) / det])
-    return np.linalg.solve(a if damping is None else a + np.diag(damping), b)
+        b0, b1 = b
+        return [(a11 * b0 - a01 * b1) / det, (a00 * b1 - a10 * b0) / det]
+    a = np.array(a)
+    return np.linalg.solve(a if damping is None else a + np.diag(damping), np.array(b)).tolist()
 
 
 def _start_values(obs: Observations, model: LogDModel, n_best: int = 3) -> list[np.ndarray]:
