@@ -27,6 +27,8 @@ from __future__ import annotations
 import numpy as np
 
 LN10 = np.log(10.0)
+#: the factor of fraction_of_pow10's tanh, made once (0.5 * LN10 * x is this times x)
+_HALF_LN10 = 0.5 * LN10
 
 
 def log10_one_plus_pow10(x):
@@ -48,7 +50,7 @@ def fraction_of_pow10(x):
     0.5
     """
     x = np.asarray(x, dtype=float)
-    return 0.5 * (1.0 + np.tanh(0.5 * LN10 * x))
+    return 0.5 * (1.0 + np.tanh(_HALF_LN10 * x))
 
 
 def log_d_neutral(pH, logK):

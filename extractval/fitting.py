@@ -222,14 +222,17 @@ class _Residuals:
         # one expression with the sign of the exponent, as in Observations.predict
         self.sign = np.where(is_q, 1.0, -1.0)
         self.log_ratio = obs.log_ratio
+        # made once, not per evaluation: -sign for the slope, f as a column for the Jacobian
+        self.minus_sign = -self.sign
+        self.f_col = self.f[:, None]
 
     def __call__(self, theta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         log_d, g = self.model.value_and_jacobian(self.pH, theta)
         if self.all_log_d:
-            return (log_d - self.y) / self.f, g / self.f[:, None]
+            return (log_d - self.y) / self.f, g / self.f_col
         z = self.sign * (log_d + self.log_ratio)
         y = -chem.log10_one_plus_pow10(z)
-        slope = -self.sign * chem.fraction_of_pow10(z)
+        slope = self.minus_sign * chem.fraction_of_pow10(z)
         if self.mixed:
             y = np.where(self.is_d, log_d, y)
             slope = np.where(self.is_d, 1.0, slope)
