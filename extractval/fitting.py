@@ -891,14 +891,16 @@ class _Profile:
         """du/dv along the profile at pt (Gauss-Newton); parameters held at a limit stay."""
         if pt._tangent is None:
             t = np.zeros(pt.u.size)
-            free = ~self._held(pt) if pt.u.size else np.zeros(0, dtype=bool)
+            # strictly inside their limits none of u is held: _held's numpy calls (and the
+            # finiteness check's) are spared on the one or two numbers of u
+            free = np.ones(pt.u.size, dtype=bool) if self._inside(pt) else ~self._held(pt)
             if free.any():
                 a = pt.j_u[:, free]
                 try:
                     t[free] = -np.linalg.solve(a.T @ a, a.T @ pt.j_v)
                 except np.linalg.LinAlgError:
                     pass
-            pt._tangent = t if np.all(np.isfinite(t)) else np.zeros(pt.u.size)
+            pt._tangent = t if all(map(math.isfinite, t.tolist())) else np.zeros(pt.u.size)
         return pt._tangent
 
     # -- evaluations -----------------------------------------------------------------------------
