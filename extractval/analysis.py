@@ -592,7 +592,7 @@ def fit_study(study: Study) -> StudyReport:
     warnings.extend(fit.warnings)
     # procedures beyond the runs: check_study warns already (same rule, same words); a Study
     # made in code gets the warning here
-    span = Span.of_runs(study.runs)
+    span = Span.of_fitted([o.run for o in outcomes if o.status == "used"])
     if any(extrapolation(p, span) is not None for p in study.procedures):
         # (the study file's shown path asks the file system: only when a warning needs it)
         known = set(study.warnings)

@@ -55,7 +55,12 @@ class Span:
 
     @classmethod
     def of_runs(cls, runs) -> "Span | None":
-        runs = [r for r in runs if enters_fit(r)]
+        return cls.of_fitted([r for r in runs if enters_fit(r)])
+
+    @classmethod
+    def of_fitted(cls, runs) -> "Span | None":
+        """:meth:`of_runs` of runs already known to enter the fit (the runs
+        analysis.build_observations used), without asking each run again."""
         if not runs:
             return None
         pHs = [r.pH for r in runs]
