@@ -807,13 +807,15 @@ LIMIT_FOLLOWING = 0.5
 class _Point:
     """One evaluation of a profile: the weighted SS minimised with the quantity held at v."""
 
-    __slots__ = ("v", "u", "s", "ds", "theta", "converged", "r", "j_u", "j_v", "_tangent")
+    __slots__ = ("v", "u", "s", "ds", "theta", "converged", "r", "j_u", "j_v", "_tangent",
+                 "_slope")
 
     def __init__(self, v, u, s, theta, converged, r, j_u, j_v):
         self.v, self.u, self.s, self.theta, self.converged = v, u, s, theta, converged
         self.r, self.j_u, self.j_v = r, j_u, j_v
         self.ds = 2.0 * float(r @ j_v)   # dS/dv along the profile (the gradient in u is 0)
         self._tangent = None
+        self._slope = None               # _Profile._tau_slope, once asked for
 
 
 class _Profile:
@@ -953,7 +955,13 @@ class _Profile:
         return near.u + move
 
     def _tau_slope(self, pt: _Point) -> float:
-        """|d tau / d v| at an evaluated point; at the estimate, from the curvature of S."""
+        """|d tau / d v| at an evaluated point; at the estimate, from the curvature of S.
+        Kept on the point: the estimate is the inner neighbour of both ends' first fits."""
+        if pt._slope is None:
+            pt._slope = self._tau_slope_at(pt)
+        return pt._slope
+
+    def _tau_slope_at(self, pt: _Point) -> float:
         tau = self.tau(pt)
         if tau > 0.0:
             return abs(pt.ds) / (2.0 * self.s2 * tau)
