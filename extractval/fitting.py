@@ -160,6 +160,9 @@ class Observations:
         """dy/dlogD alone for log D values (shape (..., n)): what information weights need."""
         _, is_e, is_q = self._masks
         log_d = np.asarray(log_d, dtype=float)
+        if self._one_kind == LOG_E:
+            # what the masked assignment below gives when every run is log E, without it
+            return chem.fraction_of_pow10(-(log_d + self.log_ratio))
         slope = np.ones_like(log_d)
         if is_e.any():
             slope[..., is_e] = chem.fraction_of_pow10(-(log_d[..., is_e] + self.log_ratio[is_e]))
@@ -194,9 +197,11 @@ class Observations:
             with np.errstate(divide="ignore", invalid="ignore"):
                 e = np.clip(v, 1e-6, 1 - 1e-6)
                 from_e = np.log10(e / (1 - e)) - self.log_ratio
-                q = np.clip(v, 1e-12, 1 - 1e-6)
-                from_q = np.log10(1 / q - 1) - self.log_ratio
-            log_d = np.where(self._code == 0, self.y, np.where(self._code == 1, from_e, from_q))
+                if self._one_kind != LOG_E:      # (all log E: from_e is what the where gives)
+                    q = np.clip(v, 1e-12, 1 - 1e-6)
+                    from_q = np.log10(1 / q - 1) - self.log_ratio
+            log_d = (from_e if self._one_kind == LOG_E else
+                     np.where(self._code == 0, self.y, np.where(self._code == 1, from_e, from_q)))
         return log_d, (self.slope(log_d) / self.sd_factor) ** 2 + 1e-6
 
 
