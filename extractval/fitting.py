@@ -295,7 +295,7 @@ class FitResult:
 
     @cached_property
     def correlation(self) -> np.ndarray:
-        sd = np.sqrt(np.clip(np.diag(self.covariance), 0, None))
+        sd = np.sqrt(np.maximum(np.diag(self.covariance), 0.0))    # (np.clip's own call)
         with np.errstate(divide="ignore", invalid="ignore"):
             c = self.covariance / np.outer(sd, sd)
         return np.where(np.isfinite(c), c, np.nan)
@@ -327,7 +327,7 @@ class FitResult:
         """Internally studentized residuals e_i / (s sqrt(1 - h_ii))."""
         j = self.jac
         h = np.einsum("ij,jk,ik->i", j, self._jtj_pinv, j)
-        return self.weighted_residuals / (self.residual_sd * np.sqrt(np.clip(1 - h, 1e-12, None)))
+        return self.weighted_residuals / (self.residual_sd * np.sqrt(np.maximum(1 - h, 1e-12)))
 
     @property
     def aicc(self) -> float:
@@ -346,7 +346,8 @@ class FitResult:
         # log D and its gradient from one evaluation of the model (the very numbers that
         # model.log_d and model.jacobian give, tests/test_models.py)
         value, g = self.model.value_and_jacobian(pH, self.theta)
-        se = np.sqrt(np.clip(np.einsum("ij,jk,ik->i", g, self.covariance, g), 0, None))
+        # np.maximum is the call np.clip(x, 0, None) makes, without its three wrappers
+        se = np.sqrt(np.maximum(np.einsum("ij,jk,ik->i", g, self.covariance, g), 0.0))
         return value, se
 
     def log_d_interval(self, pH0: float, hint: tuple[float, float] | None = None) -> Estimate:
@@ -742,7 +743,7 @@ def _traced_steps(fit: FitResult, j: int) -> tuple[float, float] | None:
 
 
 def _fill_parameters(fit: FitResult, intervals: bool) -> None:
-    se_all = np.sqrt(np.clip(np.diag(fit.covariance), 0, None))
+    se_all = np.sqrt(np.maximum(np.diag(fit.covariance), 0.0))    # (np.clip's own call)
     lo_b, hi_b = fit.bounds
     for j, name in enumerate(fit.model.params):
         value, se = float(fit.theta[j]), float(se_all[j])
