@@ -295,7 +295,7 @@ class FitResult:
 
     @cached_property
     def correlation(self) -> np.ndarray:
-        sd = np.sqrt(np.maximum(np.diag(self.covariance), 0.0))    # (np.clip's own call)
+        sd = np.sqrt(np.maximum(np.diag(self.covariance), 0.0))    # = np.clip(x, 0, None)
         with np.errstate(divide="ignore", invalid="ignore"):
             c = self.covariance / np.outer(sd, sd)
         return np.where(np.isfinite(c), c, np.nan)
@@ -526,7 +526,8 @@ def _least_squares(fun, x0, lo, hi, max_iter: int = 200, s_tol: float = 0.0,
         minus_g = [-v for v in g]
         if s_tol > 0.0:
             # the decrease the Gauss-Newton model predicts for the full step, g'A^-1 g / 2
-            # (one parameter: the product itself; more: numpy's dot, as the sum was made)
+            # (one parameter: the plain product, which is numpy's dot of one term; more:
+            # numpy's dot itself, whose sum Python's may not reproduce to the last bit)
             try:
                 gn = _solve_small(A, minus_g)
                 if -0.5 * (g[0] * gn[0] if len(g) == 1 else float(g_arr @ np.array(gn))) <= s_tol:
@@ -743,7 +744,7 @@ def _traced_steps(fit: FitResult, j: int) -> tuple[float, float] | None:
 
 
 def _fill_parameters(fit: FitResult, intervals: bool) -> None:
-    se_all = np.sqrt(np.maximum(np.diag(fit.covariance), 0.0))    # (np.clip's own call)
+    se_all = np.sqrt(np.maximum(np.diag(fit.covariance), 0.0))    # = np.clip(x, 0, None)
     lo_b, hi_b = fit.bounds
     for j, name in enumerate(fit.model.params):
         value, se = float(fit.theta[j]), float(se_all[j])
