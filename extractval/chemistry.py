@@ -171,7 +171,8 @@ def remaining_fraction(D, aqueous_mL, organic_portions_mL):
     D = np.asarray(D, dtype=float)
     portions = np.asarray(organic_portions_mL, dtype=float)
     # log form keeps very large D (q -> 0) finite and exact to machine precision
-    log_q = -np.sum(np.log1p(D[..., None] * portions / aqueous_mL), axis=-1)
+    # (np.add.reduce: the call np.sum makes on an ndarray, without its Python wrappers)
+    log_q = -np.add.reduce(np.log1p(D[..., None] * portions / aqueous_mL), axis=-1)
     out = np.exp(log_q)
     return float(out) if out.ndim == 0 else out
 

@@ -636,9 +636,10 @@ def _start_values(obs: Observations, model: LogDModel, n_best: int = 3) -> list[
             h_ph = np.stack([model.h(ph, *r) for r in rest])
     h_row = h_ph[:, ph_of_row]
     h = h_row[:, row_of_run]
-    logk = np.sum(w * (implied - h), axis=1) / np.sum(w)
+    # np.add.reduce is the call np.sum makes on an ndarray, without its Python wrappers
+    logk = np.add.reduce(w * (implied - h), axis=1) / np.add.reduce(w, axis=None)
     y = sub.predict_y(logk[:, None] + h_row)[:, row_of_run]
-    s = np.sum(((y - obs.y) / obs.sd_factor) ** 2, axis=1)
+    s = np.add.reduce(((y - obs.y) / obs.sd_factor) ** 2, axis=1)
     order = _grid_minima(rest, s)[:n_best]
     return [np.concatenate([[logk[i]], rest[i]]) for i in order]
 
