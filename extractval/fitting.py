@@ -851,20 +851,23 @@ class _Profile:
         self.j = param if pH0 is None else 0
         self.free = [k for k in range(self.p) if k != self.j]
         self.names = [model.params[k] for k in self.free]
-        self._free_cols = np.array(self.free, dtype=int)    # for take: cheaper than a list index
+        # the index as an array: take and fancy indexing by it are cheaper than by a list
+        self._free_cols = np.array(self.free, dtype=int)
         self.ph0 = None if pH0 is None else np.array([float(pH0)])
         self.h, self.dh, self.h_dh = model.h, model.dh, model.h_dh
-        self.lo_b = fit.bounds[0][self.free]
-        self.hi_b = fit.bounds[1][self.free]
+        self.lo_b = fit.bounds[0][self._free_cols]
+        self.hi_b = fit.bounds[1][self._free_cols]
         self.limits = list(zip(self.lo_b.tolist(), self.hi_b.tolist()))
         self.s2 = fit.rss / fit.dof
         self.t_crit = math.sqrt(f95(fit.dof))
         theta = fit.theta
-        u_hat = theta[self.free]
+        u_hat = theta[self._free_cols]
         self.v_hat = (float(theta[self.j]) if pH0 is None
                       else float(model.log_d(self.ph0, theta)[0]))
+        # (a parameter's profile needs no dh0: _theta_dh0 gives None then)
+        dh0 = None if pH0 is None else self._theta_dh0(self.v_hat, u_hat)[1]
         self.points = [_Point(self.v_hat, u_hat, fit.rss, theta, True, fit._r_hat,
-                              *self._split(fit.jac, self._theta_dh0(self.v_hat, u_hat)[1]))]
+                              *self._split(fit.jac, dh0))]
         self.open_reason: dict[int, str] = {}
 
     # -- the reparametrisation ------------------------------------------------------------------
@@ -876,7 +879,7 @@ class _Profile:
         th = np.empty(self.p)
         if self.ph0 is None:
             th[self.j] = v
-            th[self.free] = u
+            th[self._free_cols] = u
             return th, None
         if not u.size:
             th[0] = v
