@@ -1214,9 +1214,8 @@ class _Boundary:
             s = _batch_ss(fit, theta + rho[:, None] * dirs[rows])
             return np.sqrt(np.maximum(s - fit.rss, 0.0))
 
-        rows = np.arange(n)
         rho = np.minimum(np.full(n, target), 0.5 * rho_box)   # exact if S were quadratic
-        t = tau(rho, rows)
+        t = tau(rho, slice(None))      # every ray (a slice: a view of dirs, not a copy)
         inside = np.where(t < target, rho, 0.0)
         outside = np.where(t >= target, rho, np.inf)
         prev_rho, prev_t = np.zeros(n), np.zeros(n)
@@ -1243,9 +1242,9 @@ class _Boundary:
             outside[k] = np.where(t_new >= target, np.minimum(outside_k, new), outside_k)
             done[k] = np.abs(t_new - target) <= _RADIUS_TOL * target
             # a ray that reaches the box without crossing S_crit: the region is not closed
-            if np.any((new >= box_k) & below):
+            if ((new >= box_k) & below).any():      # (the method: np.any's wrappers spared)
                 return
-        if not done.all() or np.any(rho >= rho_box):
+        if not done.all() or (rho >= rho_box).any():
             return
         self.rays = theta + rho[:, None] * dirs
         # the radius between the rays: its Fourier series, zero-padded from n to m terms
