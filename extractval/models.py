@@ -66,10 +66,11 @@ class LogDModel:
 
     def bounds(self, pH) -> tuple[np.ndarray, np.ndarray]:
         lo, hi = [LOGK_LIMITS[0]], [LOGK_LIMITS[1]]
+        pH = np.asarray(pH)       # its min and max methods: np.min's wrappers spared
         for name in self.params[1:]:
             if name.startswith("pKa"):
-                lo.append(float(np.min(pH)) - PKA_MARGIN)
-                hi.append(float(np.max(pH)) + PKA_MARGIN)
+                lo.append(float(pH.min()) - PKA_MARGIN)
+                hi.append(float(pH.max()) + PKA_MARGIN)
             else:
                 lo.append(LOGK_LIMITS[0])
                 hi.append(LOGK_LIMITS[1])
@@ -92,7 +93,8 @@ def _additive(h, dh):
 
 
 def _pka_grid(pH: np.ndarray, step: float = 0.25) -> np.ndarray:
-    return np.arange(np.min(pH) - PKA_MARGIN + 0.5, np.max(pH) + PKA_MARGIN - 0.5 + 1e-9, step)
+    pH = np.asarray(pH)       # its min and max methods: np.min's wrappers spared
+    return np.arange(pH.min() - PKA_MARGIN + 0.5, pH.max() + PKA_MARGIN - 0.5 + 1e-9, step)
 
 
 def _h_neutral(pH):
