@@ -45,9 +45,11 @@ def _recovery_pct_scalar(log_d: float, aqueous_mL: float, organic_mL) -> float:
         d = math.inf
     if math.isnan(d):
         return math.nan
-    log_q = 0.0
+    log_q, last, term = 0.0, None, 0.0
     for v in organic_mL:
-        log_q += math.log1p(d * float(v) / aqueous_mL)
+        if v != last:         # equal portions share one log1p term (the same bits, once)
+            term, last = math.log1p(d * float(v) / aqueous_mL), v
+        log_q += term
     return 100.0 * (1.0 - math.exp(-log_q))
 
 
@@ -202,23 +204,12 @@ def log_d_band(fit: FitResult, step: float = BAND_STEP) -> LogDBand:
 def _equal_portions_pct(log_d, aqueous_mL: float, portion_mL: float, n: int) -> float:
     """``recovery_pct_from_log_d(log_d, aqueous_mL, [portion_mL] * n)`` as a float.
 
-    For a float log D (the scalar path) the n equal log1p terms are one number: it is
-    computed once and added n times in the same order, which gives the same bits at a
-    fraction of the cost (best_split asks for n = 1..10 at two log D per procedure).
+    For a float log D the scalar path computes the n equal log1p terms once
+    (:func:`_recovery_pct_scalar`; best_split asks for n = 1..10 at two log D per procedure).
     """
     if not isinstance(log_d, float):
         return float(recovery_pct_from_log_d(log_d, aqueous_mL, [portion_mL] * n))
-    try:
-        d = 10.0 ** log_d
-    except OverflowError:
-        d = math.inf
-    if math.isnan(d):
-        return math.nan
-    term = math.log1p(d * float(portion_mL) / aqueous_mL)
-    log_q = 0.0
-    for _ in range(n):
-        log_q += term
-    return 100.0 * (1.0 - math.exp(-log_q))
+    return _recovery_pct_scalar(log_d, aqueous_mL, (portion_mL,) * n)
 
 
 def _recovery_lower(log_d_lo: float | None, aqueous_mL: float, organic_mL) -> float | None:
