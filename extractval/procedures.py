@@ -16,7 +16,7 @@ from scipy import optimize
 from . import chemistry as chem
 from .extrapolation import Span
 from .fitting import FitResult
-from .results import Estimate, Interval, clean, clean_all, round_significant
+from .results import Estimate, Interval, clean, clean_all
 from .study import Procedure
 
 
@@ -459,25 +459,15 @@ def design_space(band: LogDBand, procedures, target_pct: float | None,
         for _ in range(n - 1):
             log_q = log_q + term
         recs.append(100.0 * (1.0 - np.exp(-log_q)))
-    recs = np.stack(recs)                               # (portions, pH, ratio)
-    # what clean(x, 6) gives, for every cell (~700 per study). clean_all rounds a long, finite
-    # array by round_significant, cell by cell, so one call over the three tables writes what
-    # one call per table writes; where it cannot round them all exactly (None) each table is
-    # cleaned on its own, as clean_all does
-    rounded = (round_significant(recs, 6)
-               if recs[0].size >= 64 and np.isfinite(recs).all() else None)
-    if rounded is not None:
-        cells = rounded.tolist()
-    else:
-        width = len(MAP_RATIOS)
-        cells = []
-        for rec in recs:
-            flat = clean_all(rec.ravel(), 6)
-            cells.append([flat[i * width:(i + 1) * width] for i in range(len(rec))])
-    # no number where the lower end of log D is open
-    none_row = [None] * len(MAP_RATIOS)
+    # what clean(x, 6) gives, each table in one clean_all pass (a few hundred cells); no
+    # number where the lower end of log D is open
+    width = len(MAP_RATIOS)
     closed = closed.tolist()
-    table = [[row if ok else list(none_row) for row, ok in zip(rows, closed)] for rows in cells]
+    table = []
+    for rec in recs:
+        flat = clean_all(rec.ravel(), 6)
+        table.append([flat[i * width:(i + 1) * width] if ok else [None] * width
+                      for i, ok in enumerate(closed)])
     span = (float(band.pH[0]), float(band.pH[-1]))
     return {
         "pH": clean_all(band.pH, 6),

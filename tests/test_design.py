@@ -169,18 +169,17 @@ def test_design_space_map_is_the_cell_by_cell_recovery():
                                          6)
 
 
-@pytest.mark.parametrize("one_call", [True, False])
-def test_design_space_cells_are_the_general_formula_cleaned(one_call, monkeypatch):
-    # the map sums one log1p term per portion and rounds its three tables in one call; each
-    # cell must be what the general formula (a sum over the portions) and clean_all give, table
-    # by table; also where the one-call rounding declines (None) and each table is cleaned on
-    # its own
-    from extractval import procedures
+@pytest.mark.parametrize("array_rounding", [True, False])
+def test_design_space_cells_are_the_general_formula_cleaned(array_rounding, monkeypatch):
+    # the map sums one log1p term per portion; each cell must be what the general formula (a
+    # sum over the portions) and clean_all give, table by table; also where clean_all's array
+    # rounding declines (None) and every value is cleaned on its own
+    from extractval import results
     from extractval.procedures import MAP_PORTIONS, MAP_RATIOS, LogDBand, design_space
     from extractval.results import clean_all
 
-    if not one_call:
-        monkeypatch.setattr(procedures, "round_significant", lambda a, digits: None)
+    if not array_rounding:
+        monkeypatch.setattr(results, "round_significant", lambda a, digits: None)
     rng = np.random.default_rng(11)
     pH = np.arange(0.0, 12.5, 0.5)
     lo = rng.uniform(-4.0, 4.0, pH.size)
