@@ -955,10 +955,7 @@ def group_moments(values, sizes: Sequence[int]) -> tuple[list[float], list[float
     for n in sizes:
         group = xs[a:a + n]
         a += n
-        total = 0.0
-        for x in group:
-            total += x
-        mean = total / n
+        mean = numpy_mean(group)
         ss = 0.0
         for x in group:
             d = x - mean

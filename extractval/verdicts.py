@@ -92,15 +92,6 @@ def fit_groups(fit: FitResult) -> dict[str, list[int]]:
     return dict(groups)
 
 
-def replicate_groups(fit: FitResult) -> dict[tuple, list[int]]:
-    """Row indices of the fitted runs grouped by precision group and measurement kind."""
-    groups: dict[tuple, list[int]] = defaultdict(list)
-    for label, idx in fit_groups(fit).items():
-        for i in idx:
-            groups[(label, fit.obs.kind[i])].append(i)
-    return dict(groups)
-
-
 @dataclass(frozen=True)
 class Repeatability:
     """Pooled repeatability RSD of the measured quantity, with the groups behind it."""
@@ -197,13 +188,12 @@ def repeatability(fit: FitResult, outcomes,
 
 
 def lack_of_fit(fit: FitResult, groups: dict[str, list[int]] | None = None) -> acc.LackOfFit:
-    """The lack-of-fit test with pure error from the fit's replicate groups split by kind of
-    measurement (:func:`replicate_groups`); ``groups`` is :func:`fit_groups` of the fit, when
-    the caller has it already. A run in no group is one group with the others in none."""
+    """The lack-of-fit test with pure error from the fit's replicate groups, each split by
+    kind of measurement; ``groups`` is :func:`fit_groups` of the fit, when the caller has it
+    already. A run in no group is one group with the others in none."""
     labels: list = [""] * fit.obs.n
     kinds = fit.obs.kind
-    # the (group, kind) pair as the label: the same partition, in the same order of first
-    # appearance, as replicate_groups, without building its dict
+    # the (group, kind) pair labels each run
     for label, idx in (fit_groups(fit) if groups is None else groups).items():
         for i in idx:
             labels[i] = (label, kinds[i])
