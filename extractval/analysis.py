@@ -399,14 +399,10 @@ class StudyReport:
                 "location": str(r.location),
             }
             if self.fit is not None:
-                if o.kind == LOG_D:
-                    # a used run fitted as log D: its log D is its y, cleaned already
-                    row["log_d_observed"] = ys[k]
-                else:
-                    # a used run's (kind, y) is in its outcome already (build_observations)
-                    got = (o.kind, o.y) if o.kind is not None else _observation(r)
-                    row["log_d_observed"] = (None if isinstance(got, str) else
-                                             clean(_log_d_read(r, *got, fitted_log_ds[k])))
+                # a used run's (kind, y) is in its outcome already (build_observations)
+                got = (o.kind, o.y) if o.kind is not None else _observation(r)
+                row["log_d_observed"] = (None if isinstance(got, str) else
+                                         clean(_log_d_read(r, *got, fitted_log_ds[k])))
                 if o.index is not None:
                     i = o.index
                     row["fitted"] = fitted[i]
