@@ -201,17 +201,6 @@ def log_d_band(fit: FitResult, step: float = BAND_STEP) -> LogDBand:
                     arr(lambda e: e.ci95.hi), ests[0].ci95.method)
 
 
-def _equal_portions_pct(log_d, aqueous_mL: float, portion_mL: float, n: int) -> float:
-    """``recovery_pct_from_log_d(log_d, aqueous_mL, [portion_mL] * n)`` as a float.
-
-    For a float log D the scalar path computes the n equal log1p terms once
-    (:func:`_recovery_pct_scalar`; best_split asks for n = 1..10 at two log D per procedure).
-    """
-    if not isinstance(log_d, float):
-        return float(recovery_pct_from_log_d(log_d, aqueous_mL, [portion_mL] * n))
-    return _recovery_pct_scalar(log_d, aqueous_mL, (portion_mL,) * n)
-
-
 def _recovery_lower(log_d_lo: float | None, aqueous_mL: float, organic_mL) -> float | None:
     if log_d_lo is None or not math.isfinite(log_d_lo):
         return None
@@ -315,15 +304,14 @@ def steps_needed(fit: FitResult, p: Procedure, target_pct: float) -> tuple[dict 
 def best_split(fit: FitResult, p: Procedure, n_max: int = MAX_PORTIONS) -> tuple[tuple, float]:
     """The procedure's total solvent split into 1..n_max equal portions, and the split limit."""
     est = fit.log_d_interval(p.pH)
-    total, aq, lo = p.total_organic_mL, p.aqueous_mL, est.ci95.lo
-    lo = lo if lo is not None and math.isfinite(lo) else None      # as _recovery_lower
+    aq = p.aqueous_mL
     counts = range(1, n_max + 1)
-    per = [total / n for n in counts]
-    rec = [_equal_portions_pct(est.value, aq, v, n) for n, v in zip(counts, per)]
-    rec_lo = [None if lo is None else _equal_portions_pct(lo, aq, v, n)
-              for n, v in zip(counts, per)]
-    # the three columns cleaned in one clean_all pass (clean's rounding, 30 calls fewer)
-    per, rec, rec_lo = (clean_all(col) for col in (per, rec, rec_lo))
+    splits = [[p.total_organic_mL / n] * n for n in counts]
+    # (the scalar recovery adds the n equal log1p terms of a split as one: _recovery_pct_scalar)
+    rec = [float(recovery_pct_from_log_d(est.value, aq, split)) for split in splits]
+    rec_lo = [_recovery_lower(est.ci95.lo, aq, split) for split in splits]
+    # the three columns cleaned in one clean_all pass each (clean's rounding, 30 calls fewer)
+    per, rec, rec_lo = (clean_all(col) for col in ([s[0] for s in splits], rec, rec_lo))
     rows = [{"portions": n, "per_portion_mL": per[i], "recovery_pct": rec[i],
              "recovery_lo_pct": rec_lo[i]} for i, n in enumerate(counts)]
     limit = 100.0 * (1.0 - chem.split_limit_remaining(10.0 ** est.value, p.aqueous_mL,

@@ -89,17 +89,30 @@ def test_best_split_never_beats_the_limit():
 
 
 def test_equal_portions_recovery_is_the_general_formula_to_the_bit():
-    # best_split sums one log1p term n times instead of n equal terms: the same operations in
-    # the same order, so exactly the number recovery_pct_from_log_d gives (either path)
-    from extractval.procedures import _equal_portions_pct, recovery_pct_from_log_d
+    # the scalar recovery adds one log1p term n times for n equal portions instead of n equal
+    # terms: the same operations in the same order, so exactly the number the general formula
+    # (100 (1 - prod q_i) in log form, one log1p per portion, written out here) gives
+    from extractval.procedures import recovery_pct_from_log_d
+
+    def general(x, aq, portions):
+        try:
+            d = 10.0 ** x
+        except OverflowError:
+            d = math.inf
+        if math.isnan(d):
+            return math.nan
+        log_q = 0.0
+        for v in portions:
+            log_q += math.log1p(d * v / aq)
+        return 100.0 * (1.0 - math.exp(-log_q))
 
     rng = np.random.default_rng(20261205)
     log_d = np.concatenate([rng.uniform(-8.0, 8.0, 300), [0.0, -400.0, 400.0, np.inf, -np.inf,
                                                            np.nan]])
     for x in log_d.tolist():
         for aq, v, n in ((25.0, 30.0, 1), (10.0, 3.3, 3), (50.0, 1.7, 7), (7.5, 0.2, 10)):
-            got = _equal_portions_pct(x, aq, v, n)
-            want = float(recovery_pct_from_log_d(x, aq, [v] * n))
+            got = float(recovery_pct_from_log_d(x, aq, [v] * n))
+            want = general(x, aq, [v] * n)
             assert got == want or (math.isnan(got) and math.isnan(want))
 
 
